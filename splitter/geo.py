@@ -1,0 +1,219 @@
+"""Distances, nearest neighbours and equal-area projections.
+
+Distances are geodesic on the WGS84 ellipsoid (``pyproj.Geod``) for geographic
+coordinates and Euclidean for a projected CRS, always returned in kilometres.
+
+Nearest-neighbour search for geographic points uses a KD-tree on unit-sphere
+Cartesian coordinates (chord distance is monotone in great-circle distance), then
+measures the candidates on the ellipsoid. Because the sphere and the ellipsoid
+disagree by well under 1 %, a second, bounded query over every candidate within
+1 % of the first answer makes the result the exact geodesic nearest neighbour.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pyproj
+from scipy.spatial import cKDTree
+
+from splitter.errors import InputError
+
+WGS84 = pyproj.CRS.from_epsg(4326)
+GEOD = pyproj.Geod(ellps="WGS84")
+# Sphere-vs-ellipsoid distance disagreement is < 0.5 %; 1 % leaves margin.
+_SPHERE_SLACK = 1.01
+_EARTH_RADIUS_KM = 6371.0088
+
+
+@dataclass(frozen=True)
+class Points:
+    """Point coordinates with their CRS.
+
+    Parameters
+    ----------
+    x, y : ndarray
+        Longitude/latitude (degrees) for a geographic CRS, easting/northing otherwise.
+    crs : pyproj.CRS
+
+    Examples
+    --------
+    >>> p = Points.lonlat([10.0, 11.0], [45.0, 45.0])
+    >>> round(float(distance_km(p, Points.lonlat([10.0], [46.0]))[0]), 1)
+    111.1
+    """
+
+    x: np.ndarray
+    y: np.ndarray
+    crs: pyproj.CRS
+
+    def __post_init__(self):
+        x = np.asarray(self.x, dtype=float)
+        y = np.asarray(self.y, dtype=float)
+        if x.shape != y.shape or x.ndim != 1:
+            raise InputError("x and y must be 1-D arrays of the same length.")
+        object.__setattr__(self, "x", x)
+        object.__setattr__(self, "y", y)
+        object.__setattr__(self, "crs", pyproj.CRS.from_user_input(self.crs))
+
+    @classmethod
+    def lonlat(cls, lon, lat) -> "Points":
+        return cls(np.asarray(lon, float), np.asarray(lat, float), WGS84)
+
+    def __len__(self) -> int:
+        return self.x.shape[0]
+
+    @property
+    def geographic(self) -> bool:
+        return bool(self.crs.is_geographic)
+
+    def take(self, index) -> "Points":
+        return Points(self.x[index], self.y[index], self.crs)
+
+    def to_crs(self, crs) -> "Points":
+        crs = pyproj.CRS.from_user_input(crs)
+        if crs == self.crs:
+            return self
+        tr = pyproj.Transformer.from_crs(self.crs, crs, always_xy=True)
+        x, y = tr.transform(self.x, self.y)
+        return Points(np.asarray(x, float), np.asarray(y, float), crs)
+
+    def to_lonlat(self) -> "Points":
+        return self.to_crs(WGS84)
+
+
+def _unit_factor_km(crs: pyproj.CRS) -> float:
+    """Kilometres per unit of a projected CRS's first axis."""
+    factor = crs.axis_info[0].unit_conversion_factor if crs.axis_info else 1.0
+    return float(factor) / 1000.0
+
+
+def equal_area_crs(points: Points) -> pyproj.CRS:
+    """Lambert azimuthal equal-area CRS centred on the points (metres).
+
+    The centre is the midpoint of the points' latitude range and the circular
+    mean of their longitudes, so a block of L km has area L² wherever it lies.
+    """
+    ll = points.to_lonlat()
+    ok = np.isfinite(ll.x) & np.isfinite(ll.y)
+    if not ok.any():
+        raise InputError("No record has usable coordinates.")
+    lon = np.deg2rad(ll.x[ok])
+    lon0 = float(np.rad2deg(np.arctan2(np.sin(lon).mean(), np.cos(lon).mean())))
+    lat0 = float((ll.y[ok].min() + ll.y[ok].max()) / 2)
+    return pyproj.CRS.from_proj4(
+        f"+proj=laea +lat_0={lat0:.6f} +lon_0={lon0:.6f} +x_0=0 +y_0=0 "
+        "+datum=WGS84 +units=m +no_defs"
+    )
+
+
+def planar_km(points: Points, crs: pyproj.CRS) -> tuple[np.ndarray, np.ndarray]:
+    """Coordinates of ``points`` in a projected ``crs``, in kilometres."""
+    p = points.to_crs(crs)
+    f = _unit_factor_km(p.crs)
+    return p.x * f, p.y * f
+
+
+def distance_km(a: Points, b: Points) -> np.ndarray:
+    """Element-wise distance between two equally long point sets (km).
+
+    Geodesic on WGS84 when the CRS is geographic, Euclidean otherwise.
+    """
+    if a.crs != b.crs:
+        b = b.to_crs(a.crs)
+    if a.geographic:
+        ll_a, ll_b = a.to_lonlat(), b.to_lonlat()
+        _, _, d = GEOD.inv(ll_a.x, ll_a.y, ll_b.x, ll_b.y)
+        return np.asarray(d, float) / 1000.0
+    f = _unit_factor_km(a.crs)
+    return np.hypot(a.x - b.x, a.y - b.y) * f
+
+
+def _unit_xyz(points: Points) -> np.ndarray:
+    ll = points.to_lonlat()
+    lon, lat = np.deg2rad(ll.x), np.deg2rad(ll.y)
+    c = np.cos(lat)
+    return np.column_stack([c * np.cos(lon), c * np.sin(lon), np.sin(lat)])
+
+
+def _chord(km):
+    return 2.0 * np.sin(np.minimum(np.asarray(km, float) / (2 * _EARTH_RADIUS_KM), np.pi / 2))
+
+
+class NeighbourIndex:
+    """Nearest-neighbour index over reference points; answers in kilometres.
+
+    Examples
+    --------
+    >>> ref = Points.lonlat([0.0, 1.0], [0.0, 0.0])
+    >>> d, i = NeighbourIndex(ref).nearest(Points.lonlat([0.9], [0.0]))
+    >>> int(i[0])
+    1
+    """
+
+    def __init__(self, reference: Points):
+        if len(reference) == 0:
+            raise InputError("The reference point set is empty.")
+        self.reference = reference
+        if reference.geographic:
+            self._tree = cKDTree(_unit_xyz(reference))
+        else:
+            self._tree = cKDTree(np.column_stack([reference.x, reference.y]))
+            self._factor = _unit_factor_km(reference.crs)
+
+    def nearest(self, query: Points) -> tuple[np.ndarray, np.ndarray]:
+        """Distance (km) and index of the nearest reference point for each query point."""
+        if query.crs != self.reference.crs:
+            query = query.to_crs(self.reference.crs)
+        n = len(query)
+        if n == 0:
+            return np.zeros(0), np.zeros(0, dtype=np.int64)
+        if not self.reference.geographic:
+            d, i = self._tree.query(np.column_stack([query.x, query.y]), k=1, workers=-1)
+            return d * self._factor, i.astype(np.int64)
+
+        xyz = _unit_xyz(query)
+        _, idx = self._tree.query(xyz, k=1, workers=-1)
+        idx = idx.astype(np.int64)
+        best = distance_km(query, self.reference.take(idx))
+        # Any point nearer on the ellipsoid is within the slack on the sphere.
+        bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
+        k = 2
+        todo = np.arange(n)
+        nref = len(self.reference)
+        while todo.size:
+            kk = min(k, nref)
+            dd, ii = self._tree.query(xyz[todo], k=kk, workers=-1)
+            dd = dd.reshape(len(todo), kk)
+            ii = ii.reshape(len(todo), kk)
+            found = dd <= bound[todo, None]
+            rows, cols = np.nonzero(found)
+            if rows.size:
+                qsel = todo[rows]
+                cand = ii[rows, cols].astype(np.int64)
+                dist = distance_km(query.take(qsel), self.reference.take(cand))
+                order = np.lexsort((cand, dist, qsel))
+                qsel, cand, dist = qsel[order], cand[order], dist[order]
+                first = np.r_[True, qsel[1:] != qsel[:-1]]
+                q1, c1, d1 = qsel[first], cand[first], dist[first]
+                better = (d1 < best[q1]) | ((d1 == best[q1]) & (c1 < idx[q1]))
+                best[q1[better]] = d1[better]
+                idx[q1[better]] = c1[better]
+            # Rows whose k-th candidate was still inside the bound may hide more.
+            full = found[:, -1]
+            todo = todo[full]
+            if kk >= nref:
+                break
+            k *= 4
+        return best, idx
+
+    def within(self, query: Points, radius_km: float) -> np.ndarray:
+        """Boolean mask: query points with a reference point closer than ``radius_km``."""
+        d, _ = self.nearest(query)
+        return d < radius_km
+
+
+def nearest_km(query: Points, reference: Points) -> np.ndarray:
+    """Distance (km) from each query point to its nearest reference point."""
+    return NeighbourIndex(reference).nearest(query)[0]
