@@ -1,0 +1,178 @@
+"""Command line: thin shell over the Python API.
+
+Exit codes: 0 ok, 1 a failed test or verdict asked for with --fail-on,
+2 bad input (one line on stderr naming the file, row or option and what to do).
+"""
+
+from __future__ import annotations
+
+import functools
+import sys
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.console import Console
+from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+from rich.table import Table
+
+from splitter import __version__
+from splitter.errors import InputError
+
+app = typer.Typer(
+    help="Independent evaluation data for species distribution models: design folds, "
+    "audit residual dependence, test each fold, write a methods appendix.",
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+)
+out = Console(highlight=False)
+err = Console(stderr=True, highlight=False)
+
+
+def _fail(message: str, code: int = 2):
+    err.print(f"splitter: error: {message}", markup=False, soft_wrap=True)
+    raise typer.Exit(code)
+
+
+def guarded(fn):
+    """Turn bad input into one line + exit 2, and Ctrl-C into a clean stop."""
+
+    @functools.wraps(fn)
+    def wrapper(*args, **kwargs):
+        try:
+            return fn(*args, **kwargs)
+        except InputError as e:
+            _fail(str(e))
+        except FileNotFoundError as e:
+            _fail(f"{e.filename}: no such file; check the path.")
+        except KeyboardInterrupt:
+            err.print("splitter: interrupted; no partial output was left behind.")
+            raise typer.Exit(130)
+
+    return wrapper
+
+
+def progress() -> Progress:
+    return Progress(SpinnerColumn(), TextColumn("{task.description}"), TimeElapsedColumn(),
+                    console=err, transient=True, disable=not err.is_terminal)
+
+
+def version_callback(value: bool):
+    if value:
+        out.print(f"splitter {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def main(version: bool = typer.Option(False, "--version", callback=version_callback, is_eager=True,
+                                      help="Print the version and exit.")):
+    """splitter command line."""
+
+
+def load_records(records: Path, x, y, crs, id_column, kind_column, background: Optional[Path],
+                 background_count: Optional[int], env: List[Path], region: Optional[Path], seed: int):
+    """Read records (+ background file or sampled background) as the API expects."""
+    from splitter.io.records import combine, read_records
+
+    recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    if background is not None:
+        bg = read_records(background, x=x, y=y, crs=crs, id_column=id_column, default_kind="background")
+        recs = combine(recs, bg, kind="background")
+    if background_count:
+        from splitter.design import add_background
+
+        recs = add_background(recs, int(background_count), env=env, region=region, seed=seed)
+    return recs
+
+
+def fold_summary_table(assignment, title: str) -> Table:
+    counts = assignment.counts()
+    t = Table(title=title, title_justify="left")
+    t.add_column("fold", justify="right")
+    t.add_column("eval presence", justify="right")
+    t.add_column("eval background", justify="right")
+    t.add_column("calib presence", justify="right")
+    t.add_column("calib background", justify="right")
+    t.add_column("in buffer gap", justify="right")
+    show = counts if len(counts) <= 25 else counts.head(25)
+    for r in show.itertuples():
+        t.add_row(str(r.fold), str(r.evaluation_presence), str(r.evaluation_background),
+                  str(r.calibration_presence), str(r.calibration_background), str(r.gap))
+    if len(counts) > 25:
+        t.caption = f"... {len(counts) - 25} more folds in the sidecar"
+    return t
+
+
+@app.command()
+@guarded
+def design(
+    records: Path = typer.Argument(..., help="Occurrence records: CSV, GeoPackage or GeoParquet."),
+    method: str = typer.Option("blocks", "--method", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, random or leave-one-out."),
+    folds: int = typer.Option(5, "--folds", help="Number of folds k."),
+    block_size: Optional[str] = typer.Option(None, "--block-size", help="Block/hexagon/checkerboard size in km, 'auto' (autocorrelation range of --env) or 'match'."),
+    buffer: float = typer.Option(0.0, "--buffer", help="Buffer radius in km around each fold's evaluation records."),
+    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", help="Covariate column of the records table (repeatable), for clusters."),
+    group_column: Optional[str] = typer.Option(None, "--group-column", help="Survey method / source column for groups and holdout-group."),
+    calibrate_on: Optional[str] = typer.Option(None, "--calibrate-on", help="holdout-group: group values to calibrate on (comma-separated)."),
+    evaluate_on: Optional[str] = typer.Option(None, "--evaluate-on", help="holdout-group: group values to evaluate on (comma-separated)."),
+    background: Optional[Path] = typer.Option(None, "--background", help="A separate file of background points."),
+    background_count: Optional[int] = typer.Option(None, "--background-count", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
+    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file of the study region (for --background-count)."),
+    x: Optional[str] = typer.Option(None, "--x", help="Longitude / easting column."),
+    y: Optional[str] = typer.Option(None, "--y", help="Latitude / northing column."),
+    crs: Optional[str] = typer.Option(None, "--crs", help="CRS of the coordinates (default EPSG:4326 for CSV)."),
+    id_column: Optional[str] = typer.Option(None, "--id-column", help="Record id column (default: record_id, else row number)."),
+    kind_column: Optional[str] = typer.Option(None, "--kind-column", help="presence/absence/background column (default: kind)."),
+    seed: int = typer.Option(0, "--seed", help="Seed for every random step."),
+    out_path: Path = typer.Option(..., "--out", help="Fold table to write: .csv, .gpkg or .parquet."),
+):
+    """Design calibration/evaluation folds before modelling."""
+    from splitter.design import design as run_design
+    from splitter.io.foldtable import write_design
+
+    with progress() as bar:
+        bar.add_task("reading records", total=None)
+        recs = load_records(records, x, y, crs, id_column, kind_column, background, background_count, env, region, seed)
+        bar.add_task(f"making {method} folds", total=None)
+        assignment = run_design(
+            recs, method=method, folds=folds, block_size=block_size, buffer=buffer, env=env,
+            covariates=covariate_column, group_column=group_column, calibrate_on=calibrate_on,
+            evaluate_on=evaluate_on, seed=seed,
+        )
+        bar.add_task("writing outputs", total=None)
+        paths = write_design(assignment, out_path)
+    _print_design(assignment, paths)
+
+
+def _print_design(assignment, paths):
+    p = assignment.parameters
+    c = assignment.records.counts() if assignment.records is not None else {}
+    out.print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
+    if p.get("block_size_km"):
+        out.print(f"block size: {p['block_size_km']:.4g} km ({p.get('block_size_rule', 'given')})")
+    if "presence_imbalance" in p:
+        out.print(f"fold imbalance (max-min)/mean: presences {p['presence_imbalance']:.3f}, background {p['background_imbalance']:.3f}")
+    if "ladder" in p:
+        lad = p["ladder"]
+        out.print("block-size ladder (W1 = distance-distribution mismatch, km): " + ", ".join(
+            f"{r['block_km']:.4g} km W1={r['wasserstein_km']:.3g}" for r in lad["rungs"]))
+    dropped = int((assignment.fold < 0).sum())
+    if dropped:
+        import pandas as pd
+
+        reasons = pd.Series(assignment.dropped[assignment.fold < 0]).value_counts().sort_index()
+        out.print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
+    for note in p.get("notes", []):
+        out.print(f"note: {note}")
+    for role, path in paths.items():
+        out.print(f"{role}: {path}")
+
+
+def run():  # pragma: no cover - console entry for python -m
+    app()
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(app())

@@ -1,0 +1,1 @@
+"""Reading and writing: records, rasters, fold tables; every output written atomically."""

@@ -1,0 +1,187 @@
+"""Atomic file output: write beside the target, then rename.
+
+Every output of ``splitter`` goes through one of these two context managers, so an
+interrupted run (an error, Ctrl-C) never leaves a half-written file and never damages
+a file that was already there: the data go to a hidden temporary file in the same
+directory (same file system, so the final ``os.replace`` is atomic) and only a
+complete, fsync'ed file takes the target's name.
+
+Examples
+--------
+>>> import tempfile, pathlib
+>>> out = pathlib.Path(tempfile.mkdtemp()) / "folds.csv"
+>>> with atomic_write(out) as f:
+...     _ = f.write("record_id,fold\\n1,2\\n")
+>>> out.read_text()
+'record_id,fold\\n1,2\\n'
+"""
+
+from __future__ import annotations
+
+import os
+import secrets
+from contextlib import contextmanager
+from pathlib import Path
+from typing import IO, Iterator
+
+__all__ = ["atomic_write", "atomic_path"]
+
+_TEXT_MODES = {"w", "wt"}
+_BINARY_MODES = {"wb"}
+
+
+def _temp_name(path: Path) -> Path:
+    """A fresh hidden name beside ``path`` that keeps its extension.
+
+    ``.name.tmp-1a2b3c4d.gpkg`` for ``name.gpkg``: drivers that pick a format from the
+    extension (GDAL, pandas) still recognise it.
+    """
+    while True:
+        candidate = path.with_name(f".{path.stem}.tmp-{secrets.token_hex(4)}{path.suffix}")
+        if not candidate.exists():
+            return candidate
+
+
+def _companions(temp: Path) -> list[Path]:
+    """The temporary file plus any side files a driver wrote next to it.
+
+    A Shapefile is several files (``.shp``, ``.shx``, ``.dbf``, ``.prj``...) and GDAL
+    may add ``.aux.xml``; they all share the temporary stem.
+    """
+    prefix = _stem(temp) + "."
+    # startswith, not glob: the user's file name may hold glob characters such as "[".
+    return sorted(p for p in temp.parent.iterdir() if p.name.startswith(prefix))
+
+
+def _stem(path: Path) -> str:
+    """File name without its last extension (``Path.stem``, spelled out for clarity)."""
+    return path.name[: len(path.name) - len(path.suffix)]
+
+
+def _fsync_file(path: Path) -> None:
+    fd = os.open(path, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def _fsync_dir(directory: Path) -> None:
+    # Makes the rename itself durable; some file systems refuse to open a directory.
+    try:
+        fd = os.open(directory, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
+def _remove(paths) -> None:
+    for p in paths:
+        try:
+            p.unlink()
+        except FileNotFoundError:
+            pass
+
+
+@contextmanager
+def atomic_write(path, mode: str = "w", encoding: str = "utf-8", newline: str | None = None) -> Iterator[IO]:
+    """Open a file for writing that appears at ``path`` only if the block succeeds.
+
+    Parameters
+    ----------
+    path : str or Path
+        Final file name. Its directory must exist.
+    mode : {"w", "wb"}
+        Text or binary.
+    encoding, newline
+        As for :func:`open`, text mode only.
+
+    Yields
+    ------
+    file object
+        Writes go to a temporary file beside ``path``. On normal exit it is flushed,
+        fsync'ed and renamed over ``path``; on any exception (KeyboardInterrupt
+        included) it is deleted and ``path`` is left as it was.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "a.bin"
+    >>> with atomic_write(out, "wb") as f:
+    ...     _ = f.write(b"abc")
+    >>> out.read_bytes()
+    b'abc'
+    """
+    if mode not in _TEXT_MODES | _BINARY_MODES:
+        raise ValueError(f"atomic_write mode must be 'w' or 'wb', not {mode!r}.")
+    path = Path(path)
+    temp = _temp_name(path)
+    # O_EXCL: never reuse someone else's file; 0o666 lets the umask set permissions
+    # as an ordinary open() would.
+    fd = os.open(temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    try:
+        if mode in _BINARY_MODES:
+            handle = os.fdopen(fd, "wb")
+        else:
+            handle = os.fdopen(fd, "w", encoding=encoding, newline=newline)
+    except BaseException:
+        os.close(fd)
+        _remove([temp])
+        raise
+    try:
+        with handle:
+            yield handle
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(temp, path)
+    except BaseException:
+        _remove([temp])
+        raise
+    _fsync_dir(path.parent)
+
+
+@contextmanager
+def atomic_path(path) -> Iterator[Path]:
+    """Yield a temporary file name for a library that writes by name.
+
+    For GDAL/rasterio, ``DataFrame.to_parquet``, ``GeoDataFrame.to_file`` and the like.
+    The temporary name sits beside ``path`` and keeps its extension
+    (``.name.tmp-XXXXXXXX.gpkg``) so format detection still works. On success the file
+    (and any side files the driver wrote with the same stem, e.g. a Shapefile's
+    ``.dbf``) is fsync'ed and renamed to the final name; on any exception, including
+    KeyboardInterrupt, they are all deleted and ``path`` is left as it was.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> out = pathlib.Path(tempfile.mkdtemp()) / "table.txt"
+    >>> with atomic_path(out) as tmp:
+    ...     _ = tmp.write_text("ok")
+    >>> out.read_text()
+    'ok'
+    """
+    path = Path(path)
+    temp = _temp_name(path)
+    temp_stem, final_stem = _stem(temp), _stem(path)
+    try:
+        yield temp
+        if not temp.exists():
+            raise FileNotFoundError(f"Nothing was written to the temporary file for {path}.")
+        written = _companions(temp) if path.suffix else [temp]
+        for p in written:
+            _fsync_file(p)
+        # The main file is renamed last, so a reader never sees it without its side files.
+        for p in written:
+            if p != temp:
+                os.replace(p, path.with_name(final_stem + p.name[len(temp_stem):]))
+        os.replace(temp, path)
+    except BaseException:
+        # Without an extension there is no stem to share, so only the file itself.
+        _remove(_companions(temp) if path.suffix else [temp])
+        raise
+    _fsync_dir(path.parent)

@@ -1,0 +1,227 @@
+"""Write a design (fold table, gaps, sidecar) and read fold tables back."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from splitter.errors import InputError
+from splitter.io.atomic import atomic_path, atomic_write
+from splitter.io.records import Records, read_records
+from splitter.partition.assignment import FoldAssignment
+
+TABLE_SUFFIXES = (".csv", ".gpkg", ".parquet")
+ROLE_VALUES = {
+    "calibration": 0, "calibrate": 0, "train": 0, "training": 0, "fit": 0,
+    "evaluation": 1, "evaluate": 1, "test": 1, "testing": 1, "validation": 1,
+}
+
+
+def companion(path, suffix: str) -> Path:
+    """``folds.csv`` -> ``folds.gaps.csv`` / ``folds.design.json``."""
+    path = Path(path)
+    return path.with_name(path.stem + suffix)
+
+
+def to_json(obj) -> str:
+    """Stable JSON text: sorted keys, NaN as null, numpy scalars as Python."""
+
+    def clean(o):
+        if isinstance(o, dict):
+            return {str(k): clean(v) for k, v in o.items()}
+        if isinstance(o, (list, tuple)):
+            return [clean(v) for v in o]
+        if isinstance(o, np.ndarray):
+            return [clean(v) for v in o.tolist()]
+        if isinstance(o, (np.integer,)):
+            return int(o)
+        if isinstance(o, (np.floating, float)):
+            f = float(o)
+            return None if not np.isfinite(f) else f
+        if isinstance(o, np.bool_):
+            return bool(o)
+        return o
+
+    return json.dumps(clean(obj), indent=2, sort_keys=True, allow_nan=False) + "\n"
+
+
+def write_table(frame: pd.DataFrame, path, points=None) -> Path:
+    """Write a table by extension (.csv, .gpkg, .parquet), atomically."""
+    path = Path(path)
+    suffix = path.suffix.lower()
+    if suffix not in TABLE_SUFFIXES:
+        raise InputError(f"--out {path}: use a .csv, .gpkg or .parquet file name.")
+    path.parent.mkdir(parents=True, exist_ok=True)
+    if suffix == ".csv":
+        with atomic_write(path, "w") as f:
+            frame.to_csv(f, index=False, lineterminator="\n")
+        return path
+    import geopandas as gpd
+
+    if points is None:
+        raise InputError(f"--out {path}: a {suffix} output needs coordinates.")
+    gdf = gpd.GeoDataFrame(frame.copy(), geometry=gpd.points_from_xy(points.x, points.y), crs=points.crs)
+    # Nullable integers are not understood by every driver: write plain int with -1 dropped? Keep nulls.
+    with atomic_path(path) as tmp:
+        if suffix == ".parquet":
+            gdf.to_parquet(tmp, index=False)
+        else:
+            import pyogrio
+
+            # A fixed timestamp keeps GeoPackages byte-identical between runs.
+            pyogrio.set_gdal_config_options({"OGR_CURRENT_DATE": "2000-01-01T00:00:00.000Z"})
+            gdf.to_file(tmp, driver="GPKG", layer="folds", engine="pyogrio")
+    return path
+
+
+def design_summary(assignment: FoldAssignment) -> dict:
+    """The sidecar's content: how the folds were made and what they hold."""
+    counts = assignment.counts()
+    kinds = assignment.kind
+    kept = assignment.fold >= 0
+    return {
+        "method": assignment.method,
+        "parameters": {k: v for k, v in assignment.parameters.items() if k not in ("inputs", "software", "notes", "geometry_crs")},
+        "seed": assignment.parameters.get("seed"),
+        "geometry_crs": assignment.parameters.get("geometry_crs"),
+        "block_size_km": assignment.parameters.get("block_size_km"),
+        "buffer_km": assignment.parameters.get("buffer_km"),
+        "software": assignment.parameters.get("software"),
+        "inputs_sha256": assignment.parameters.get("inputs", {}),
+        "notes": assignment.parameters.get("notes", []),
+        "n_folds": assignment.n_folds,
+        "records": {
+            "rows": int(len(assignment)),
+            "kept": int(kept.sum()),
+            "presence": int(np.sum(kept & (kinds == "presence"))),
+            "absence": int(np.sum(kept & (kinds == "absence"))),
+            "background": int(np.sum(kept & (kinds == "background"))),
+            "calibration_only": int(np.sum(assignment.fold == 0)),
+            "dropped": {str(k): int(v) for k, v in pd.Series(assignment.dropped[~kept]).value_counts().sort_index().items()},
+        },
+        "folds": counts.to_dict(orient="records"),
+    }
+
+
+def write_design(assignment: FoldAssignment, out) -> dict:
+    """Write the fold table, its gaps file (with a buffer) and the design sidecar.
+
+    Returns the paths written, by role.
+    """
+    out = Path(out)
+    frame = assignment.to_frame()
+    pts = assignment.records.points if assignment.records is not None else None
+    paths = {"folds": write_table(frame, out, pts)}
+    gaps_path = companion(out, ".gaps.csv")
+    if assignment.parameters.get("buffer_km", 0) and assignment.parameters.get("buffer_km") > 0:
+        with atomic_write(gaps_path, "w") as f:
+            assignment.gaps_frame().to_csv(f, index=False, lineterminator="\n")
+        paths["gaps"] = gaps_path
+    side = companion(out, ".design.json")
+    summary = design_summary(assignment)
+    summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
+    with atomic_write(side, "w") as f:
+        f.write(to_json(summary))
+    paths["design"] = side
+    return paths
+
+
+def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str | None = None,
+                    x=None, y=None, crs=None, id_column=None, kind_column=None) -> tuple[Records, FoldAssignment, dict]:
+    """Read a fold table (ours or a user's) as records plus a FoldAssignment.
+
+    The fold column may hold numbers (1..k evaluation folds, 0 calibration
+    only, empty = not used) or names (each distinct name becomes a fold,
+    numbered in sorted order). A role column holding calibration/evaluation
+    (or train/test) makes a single fold. Gaps are read from ``<stem>.gaps.csv``
+    when it exists beside the table.
+
+    Returns
+    -------
+    records, assignment, fold_names (fold number -> original label)
+    """
+    path = Path(path)
+    recs = read_records(path, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    table = recs.table
+    n = len(table)
+    fold = np.full(n, -1, np.int64)
+    names: dict = {}
+    if role_column:
+        if role_column not in table.columns:
+            raise InputError(f"{path}: no role column '{role_column}'; columns are: {', '.join(map(str, table.columns))}.")
+        roles = table[role_column].astype(str).str.strip().str.lower()
+        mapped = roles.map(ROLE_VALUES)
+        unknown = mapped.isna() & (roles != "")
+        if unknown.any():
+            bad = sorted(set(roles[unknown]))[:4]
+            row = int(np.flatnonzero(unknown.to_numpy())[0]) + 2
+            raise InputError(
+                f"{path}: row {row}: role '{bad[0]}' in column '{role_column}' is not known; "
+                "use calibration/evaluation (or train/test)."
+            )
+        fold = np.where(mapped.isna(), -1, mapped.fillna(-1)).astype(np.int64)
+        names = {1: "evaluation"}
+        method = "given (role column)"
+    else:
+        if fold_column not in table.columns:
+            raise InputError(f"{path}: no fold column '{fold_column}'; name it with --fold-column (columns: {', '.join(map(str, table.columns))}).")
+        raw = table[fold_column].astype(str).str.strip()
+        blank = raw.isin(["", "nan", "NA", "<NA>", "None"])
+        num = pd.to_numeric(raw.where(~blank), errors="coerce")
+        if num[~blank].notna().all() and (num[~blank] % 1 == 0).all():
+            fold = np.where(blank, -1, num.fillna(-1)).astype(np.int64)
+            if (fold < -1).any():
+                raise InputError(f"{path}: column '{fold_column}' has negative fold numbers; use 1..k (0 = calibration only).")
+            names = {int(v): str(int(v)) for v in np.unique(fold[fold >= 1])}
+            # Renumber sparse fold numbers (e.g. 2, 5, 9) to 1..k, keeping the labels.
+            uniq = np.unique(fold[fold >= 1])
+            remap = {int(v): i + 1 for i, v in enumerate(uniq)}
+            if any(k != v for k, v in remap.items()):
+                f2 = fold.copy()
+                for old, new in remap.items():
+                    f2[fold == old] = new
+                fold = f2
+                names = {remap[k]: v for k, v in names.items()}
+        else:
+            labels = np.unique(raw[~blank].to_numpy(str))
+            fold = np.full(n, -1, np.int64)
+            pos = np.searchsorted(labels, raw.to_numpy(str))
+            fold[~blank.to_numpy()] = pos[~blank.to_numpy()] + 1
+            names = {i + 1: str(v) for i, v in enumerate(labels)}
+        method = "given (fold column)"
+    k = int(fold.max()) if (fold >= 1).any() else 0
+    if k < 1:
+        col = role_column or fold_column
+        raise InputError(f"{path}: column '{col}' names no evaluation fold; it needs at least one fold (or 'evaluation' rows).")
+    if k == 1 and not role_column and not (fold == 0).any():
+        raise InputError(f"{path}: column '{fold_column}' has one value only; a split needs at least two folds (or 0 = calibration-only rows).")
+    dropped = recs.dropped.copy()
+    if "dropped" in table.columns:  # our own fold table: keep its reasons
+        given = table["dropped"].astype(str).str.strip().to_numpy(object)
+        dropped = np.where((dropped == "") & (given != ""), given, dropped).astype(object)
+    dropped[(fold < 0) & (dropped == "")] = "no-fold"
+    fold[dropped != ""] = -1
+    gap_rows = np.zeros(0, np.int64)
+    gap_folds = np.zeros(0, np.int64)
+    gpath = companion(path, ".gaps.csv")
+    if gpath.exists():
+        g = pd.read_csv(gpath, dtype=str, keep_default_na=False)
+        pos = pd.Series(np.arange(n), index=recs.record_id.astype(str))
+        ok = g["record_id"].isin(pos.index)
+        gap_rows = pos.loc[g.loc[ok, "record_id"]].to_numpy(np.int64)
+        gap_folds = g.loc[ok, "fold"].astype(int).to_numpy(np.int64)
+    params = {"source_table": str(path)}
+    side = companion(path, ".design.json")
+    if side.exists():
+        try:
+            params["design"] = json.loads(side.read_text())
+        except json.JSONDecodeError:
+            pass
+    assignment = FoldAssignment(
+        record_id=recs.record_id, kind=recs.kind, fold=fold, dropped=dropped, n_folds=k,
+        gap_rows=gap_rows, gap_folds=gap_folds, method=method, parameters=params, records=recs,
+    )
+    return recs, assignment, names

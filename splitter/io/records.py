@@ -1,0 +1,379 @@
+"""Read occurrence records (CSV or any vector file) into a validated table.
+
+Every input row is kept, in order, with its original columns untouched (CSV cells
+are read as text so that ``1.50`` stays ``1.50``). Rows that cannot take part get a
+``dropped`` reason instead of disappearing.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io as _io
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pyproj
+
+from splitter.errors import InputError
+from splitter.geo import WGS84, Points
+
+X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x")
+Y_NAMES = ("latitude", "lat", "decimallatitude", "y")
+VECTOR_SUFFIXES = {".gpkg", ".parquet", ".geoparquet", ".shp", ".geojson", ".json", ".fgb"}
+KIND_VALUES = {
+    "presence": "presence", "1": "presence", "present": "presence",
+    "absence": "absence", "absent": "absence",
+    # 0 means background: most presence-background tables use it that way.
+    # True absences must be written as "absence".
+    "background": "background", "0": "background", "pseudo-absence": "background",
+}
+ADDED_COLUMNS = ("record_id", "kind", "fold", "dropped")
+
+
+def sha256_of(path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as f:
+        for chunk in iter(lambda: f.read(1 << 20), b""):
+            h.update(chunk)
+    return h.hexdigest()
+
+
+@dataclass(frozen=True)
+class Records:
+    """Occurrence records read from one or more files.
+
+    Attributes
+    ----------
+    table : DataFrame
+        The input rows with their original columns (text for CSV input).
+    points : Points
+        Coordinates in ``crs`` (NaN where a row has none).
+    record_id, kind, dropped : ndarray of str
+        One entry per row; ``dropped`` is "" for usable rows.
+    x_column, y_column : str or None
+        Coordinate columns of CSV input (None for vector input).
+    sources : dict
+        File name -> SHA-256 of each input file.
+    notes : list of str
+        Things the reader decided that a user should know.
+    """
+
+    table: pd.DataFrame
+    points: Points
+    record_id: np.ndarray
+    kind: np.ndarray
+    dropped: np.ndarray
+    x_column: str | None = None
+    y_column: str | None = None
+    sources: dict = field(default_factory=dict)
+    notes: tuple = ()
+
+    def __len__(self) -> int:
+        return len(self.table)
+
+    @property
+    def kept(self) -> np.ndarray:
+        return self.dropped == ""
+
+    def with_dropped(self, mask, reason: str) -> "Records":
+        """Mark still-kept rows in ``mask`` as dropped with ``reason``."""
+        dropped = self.dropped.copy()
+        sel = np.asarray(mask, bool) & (dropped == "")
+        dropped[sel] = reason
+        return _replace(self, dropped=dropped)
+
+    def counts(self) -> dict:
+        kept = self.kept
+        out = {k: int(np.sum(kept & (self.kind == k))) for k in ("presence", "absence", "background")}
+        out["dropped"] = int(np.sum(~kept))
+        return out
+
+
+def _replace(rec: Records, **kw) -> Records:
+    from dataclasses import replace
+
+    return replace(rec, **kw)
+
+
+def _decode_csv(path: Path) -> str:
+    raw = path.read_bytes()
+    if not raw.strip():
+        raise InputError(f"{path}: the file is empty; give a table with a header row and one row per record.")
+    try:
+        return raw.decode("utf-8-sig")
+    except UnicodeDecodeError as e:
+        line = raw[: e.start].count(b"\n") + 1
+        raise InputError(
+            f"{path}: line {line} is not UTF-8 text (byte 0x{raw[e.start]:02x}); "
+            "re-save the file as UTF-8 (e.g. 'Save as CSV UTF-8')."
+        ) from None
+
+
+def _find_column(columns, wanted, names, option, path) -> str:
+    if wanted is not None:
+        if wanted not in columns:
+            raise InputError(f"{path}: no column named '{wanted}' (given with {option}); columns are: {', '.join(columns)}.")
+        return wanted
+    lower = {c.lower().strip(): c for c in columns}
+    for n in names:
+        if n in lower:
+            return lower[n]
+    return None
+
+
+def _read_csv_table(path: Path) -> pd.DataFrame:
+    text = _decode_csv(path)
+    try:
+        table = pd.read_csv(_io.StringIO(text), dtype=str, keep_default_na=False, na_filter=False)
+    except pd.errors.EmptyDataError:
+        raise InputError(f"{path}: the file is empty; give a table with a header row and one row per record.") from None
+    except pd.errors.ParserError as e:
+        raise InputError(f"{path}: cannot be read as CSV ({str(e).splitlines()[0]}); check the delimiter and quoting.") from None
+    if len(table) == 0:
+        raise InputError(f"{path}: the table has a header but no rows; add one row per record.")
+    return table
+
+
+def read_records(
+    path,
+    *,
+    x: str | None = None,
+    y: str | None = None,
+    crs=None,
+    id_column: str | None = None,
+    kind_column: str | None = None,
+    default_kind: str = "presence",
+) -> Records:
+    """Read occurrence records from a CSV or vector file.
+
+    Parameters
+    ----------
+    path : path-like
+        CSV with coordinate columns, or a GeoPackage, GeoParquet, Shapefile, ...
+    x, y : str, optional
+        Coordinate columns of a CSV; detected from common spellings when omitted.
+    crs : str, optional
+        CRS of CSV coordinates (default EPSG:4326) or of a vector file without one.
+    id_column : str, optional
+        Column holding record ids (default: ``record_id`` if present, else row number).
+    kind_column : str, optional
+        Column saying presence / absence / background (or 1 / 0, where 0 is background).
+        Default: ``kind`` if present, else every row is ``default_kind``.
+
+    Returns
+    -------
+    Records
+
+    Examples
+    --------
+    >>> recs = read_records("demo_data/records.csv")  # doctest: +SKIP
+    >>> recs.counts()["presence"]  # doctest: +SKIP
+    """
+    path = Path(path)
+    if not path.exists():
+        raise InputError(f"{path}: no such file; check the path.")
+    notes = []
+    suffix = path.suffix.lower()
+    if suffix in VECTOR_SUFFIXES:
+        table, pts, x_col, y_col = _read_vector(path, crs, notes)
+    else:
+        table = _read_csv_table(path)
+        pts, x_col, y_col = _csv_points(table, path, x, y, crs, notes)
+
+    n = len(table)
+    dropped = np.full(n, "", dtype=object)
+
+    # Coordinates: missing or out of range rows are dropped, whole-file problems are errors.
+    finite = np.isfinite(pts.x) & np.isfinite(pts.y)
+    if not finite.any():
+        what = f"columns '{x_col}' and '{y_col}'" if x_col else "the geometry"
+        raise InputError(f"{path}: no row has numeric coordinates in {what}; check the columns or name them with --x/--y.")
+    dropped[~finite] = "missing-coordinates"
+    if pts.geographic:
+        lon_ok = np.abs(pts.x) <= 180
+        lat_ok = np.abs(pts.y) <= 90
+        bad_lat = finite & ~lat_ok
+        if bad_lat.sum() > 0.5 * finite.sum():
+            swapped = finite & (np.abs(pts.x) <= 90) & (np.abs(pts.y) <= 180)
+            hint = (
+                f" They fit as longitudes: the columns look swapped; name them with --x {y_col} --y {x_col}."
+                if x_col and swapped.sum() >= bad_lat.sum()
+                else " If the coordinates are projected, give their CRS with --crs."
+            )
+            raise InputError(f"{path}: {int(bad_lat.sum())} of {int(finite.sum())} rows have latitudes outside -90..90.{hint}")
+        dropped[finite & ~(lon_ok & lat_ok)] = "coordinates-out-of-range"
+
+    record_id = _record_ids(table, path, id_column)
+    kind = _kinds(table, path, kind_column, default_kind, dropped)
+    return Records(
+        table=table, points=pts, record_id=record_id, kind=kind, dropped=dropped,
+        x_column=x_col, y_column=y_col, sources={str(path): sha256_of(path)}, notes=tuple(notes),
+    )
+
+
+def _csv_points(table, path, x, y, crs, notes):
+    cols = list(table.columns)
+    x_col = _find_column(cols, x, X_NAMES, "--x", path)
+    y_col = _find_column(cols, y, Y_NAMES, "--y", path)
+    if x_col is None or y_col is None:
+        raise InputError(
+            f"{path}: no coordinate columns found (looked for longitude/lon/x and latitude/lat/y); "
+            f"columns are: {', '.join(cols)}; name them with --x COLUMN --y COLUMN."
+        )
+    xs = pd.to_numeric(table[x_col].str.strip(), errors="coerce").to_numpy(float)
+    ys = pd.to_numeric(table[y_col].str.strip(), errors="coerce").to_numpy(float)
+    if crs is None:
+        crs_obj = WGS84
+    else:
+        try:
+            crs_obj = pyproj.CRS.from_user_input(crs)
+        except pyproj.exceptions.CRSError:
+            raise InputError(f"--crs {crs}: not a CRS pyproj knows; give e.g. EPSG:4326 or EPSG:3035.") from None
+    return Points(xs, ys, crs_obj), x_col, y_col
+
+
+def _read_vector(path, crs, notes):
+    import geopandas as gpd
+
+    try:
+        if path.suffix.lower() in {".parquet", ".geoparquet"}:
+            gdf = gpd.read_parquet(path)
+        else:
+            gdf = gpd.read_file(path)
+    except Exception as e:  # pyogrio/arrow raise many types
+        raise InputError(f"{path}: cannot be read as a vector file ({str(e).splitlines()[0]}).") from None
+    if len(gdf) == 0:
+        raise InputError(f"{path}: the layer has no features; give one point per record.")
+    geom = gdf.geometry
+    if not geom.is_empty.all() and not (geom.geom_type.dropna() == "Point").all():
+        raise InputError(f"{path}: geometries must be points (found {', '.join(sorted(set(geom.geom_type.dropna())))}).")
+    empty = geom.isna() | geom.is_empty
+    xs = np.where(empty, np.nan, geom.x.where(~empty).to_numpy(float))
+    ys = np.where(empty, np.nan, geom.y.where(~empty).to_numpy(float))
+    file_crs = gdf.crs
+    if crs is not None:
+        crs_obj = pyproj.CRS.from_user_input(crs)
+        if file_crs is not None and pyproj.CRS.from_user_input(file_crs) != crs_obj:
+            notes.append(f"{path.name}: --crs {crs} overrides the file's CRS.")
+    elif file_crs is not None:
+        crs_obj = pyproj.CRS.from_user_input(file_crs)
+    else:
+        ok = np.isfinite(xs) & np.isfinite(ys)
+        if ok.any() and np.all(np.abs(xs[ok]) <= 180) and np.all(np.abs(ys[ok]) <= 90):
+            crs_obj = WGS84
+            notes.append(f"{path.name}: the file has no CRS; coordinates look like lon/lat, so EPSG:4326 is assumed.")
+        else:
+            raise InputError(f"{path}: the file has no CRS and its coordinates are projected; give the CRS with --crs (e.g. --crs EPSG:3035).")
+    table = pd.DataFrame(gdf)
+    return table, Points(xs, ys, crs_obj), None, None
+
+
+def _record_ids(table, path, id_column) -> np.ndarray:
+    col = id_column
+    if col is None and "record_id" in table.columns:
+        col = "record_id"
+    if col is None:
+        return np.array([str(i) for i in range(1, len(table) + 1)], dtype=object)
+    if col not in table.columns:
+        raise InputError(f"{path}: no id column '{col}' (given with --id-column); columns are: {', '.join(map(str, table.columns))}.")
+    ids = table[col].astype(str).str.strip().to_numpy(object)
+    empty = np.flatnonzero(ids == "")
+    if empty.size:
+        raise InputError(f"{path}: row {empty[0] + 2} has an empty id in column '{col}'; every record needs an id.")
+    s = pd.Series(ids)
+    dup = s.duplicated(keep=False)
+    if dup.any():
+        first = s[dup].iloc[0]
+        rows = (np.flatnonzero(dup.to_numpy() & (ids == first)) + 2)[:3]
+        raise InputError(
+            f"{path}: duplicate id '{first}' in column '{col}' (rows {', '.join(map(str, rows))}); ids must be unique."
+        )
+    return ids
+
+
+def _kinds(table, path, kind_column, default_kind, dropped) -> np.ndarray:
+    col = kind_column
+    if col is None and "kind" in table.columns:
+        col = "kind"
+    n = len(table)
+    if col is None:
+        return np.full(n, default_kind, dtype=object)
+    if col not in table.columns:
+        raise InputError(f"{path}: no kind column '{col}' (given with --kind-column); columns are: {', '.join(map(str, table.columns))}.")
+    raw = table[col].astype(str).str.strip().str.lower()
+    raw = raw.str.replace(r"\.0$", "", regex=True)
+    kind = raw.map(KIND_VALUES).to_numpy(object)
+    unknown = pd.isna(kind)
+    if unknown.all():
+        vals = ", ".join(sorted(set(raw))[:5])
+        raise InputError(
+            f"{path}: column '{col}' holds no known kind (found {vals}); use presence, absence or background (or 1/0)."
+        )
+    kind[unknown] = "unknown"
+    sel = unknown & (dropped == "")
+    dropped[sel] = "unknown-kind"
+    return kind
+
+
+def combine(records: Records, other: Records, kind: str | None = None) -> Records:
+    """Append ``other``'s rows after ``records``' (e.g. a separate background file).
+
+    Columns are the union (records' columns first); ids of ``other`` are
+    prefixed with ``bg-`` when they would clash with the first table's ids.
+    """
+    if records.points.crs != other.points.crs:
+        other_pts = other.points.to_crs(records.points.crs)
+    else:
+        other_pts = other.points
+    other_table = other.table.copy()
+    # Give the second file the same coordinate column names so one table results.
+    if records.x_column and other.x_column and other.x_column != records.x_column:
+        other_table = other_table.rename(columns={other.x_column: records.x_column, other.y_column: records.y_column})
+    table = pd.concat([records.table, other_table], ignore_index=True, sort=False)
+    for c in table.columns:
+        if table[c].dtype == object or pd.api.types.is_string_dtype(table[c]):
+            table[c] = table[c].fillna("")
+    ids = other.record_id.copy()
+    if np.isin(ids, records.record_id).any():
+        ids = np.array([f"bg-{i}" for i in ids], dtype=object)
+        if np.isin(ids, records.record_id).any():
+            raise InputError("The background file's ids clash with the records' ids; give unique ids.")
+    okind = other.kind.copy() if kind is None else np.where(other.kind == "unknown", "unknown", kind).astype(object)
+    pts = Points(np.r_[records.points.x, other_pts.x], np.r_[records.points.y, other_pts.y], records.points.crs)
+    return Records(
+        table=table, points=pts,
+        record_id=np.r_[records.record_id, ids].astype(object),
+        kind=np.r_[records.kind, okind].astype(object),
+        dropped=np.r_[records.dropped, other.dropped].astype(object),
+        x_column=records.x_column, y_column=records.y_column,
+        sources={**records.sources, **other.sources}, notes=records.notes + other.notes,
+    )
+
+
+def append_points(records: Records, points: Points, kind: str, id_prefix: str = "bg-") -> Records:
+    """Append generated points (e.g. sampled background) as new rows."""
+    pts = points.to_crs(records.points.crs)
+    n = len(pts)
+    cols = {}
+    if records.x_column:
+        cols[records.x_column] = [f"{v:.6f}" for v in pts.x]
+        cols[records.y_column] = [f"{v:.6f}" for v in pts.y]
+    extra = pd.DataFrame(cols)
+    table = pd.concat([records.table, extra], ignore_index=True, sort=False)
+    for c in table.columns:
+        if table[c].dtype == object or pd.api.types.is_string_dtype(table[c]):
+            table[c] = table[c].fillna("")
+    ids = np.array([f"{id_prefix}{i}" for i in range(1, n + 1)], dtype=object)
+    if np.isin(ids, records.record_id).any():
+        raise InputError(f"Generated ids '{id_prefix}N' clash with the records' ids; rename those records.")
+    return Records(
+        table=table,
+        points=Points(np.r_[records.points.x, pts.x], np.r_[records.points.y, pts.y], records.points.crs),
+        record_id=np.r_[records.record_id, ids].astype(object),
+        kind=np.r_[records.kind, np.full(n, kind, dtype=object)].astype(object),
+        dropped=np.r_[records.dropped, np.full(n, "", dtype=object)].astype(object),
+        x_column=records.x_column, y_column=records.y_column,
+        sources=records.sources, notes=records.notes,
+    )
