@@ -160,6 +160,32 @@ def _embedding_eigenvalues(
     return np.fft.fftn(base).real
 
 
+def _circulant_eigenvalues(
+    dims: tuple[int, ...], cell: tuple[float, ...], range_km: float, model: str
+) -> np.ndarray:
+    """Non-negative eigenvalues of a periodic embedding of the grid ``dims``.
+
+    The inverse FFT of the result is the covariance that the simulated field has; on lags
+    inside the real grid it equals the model's correlation (up to rounding).
+    """
+    # Smallest periodic grid that holds every lag of the real grid once: 2(n - 1) per axis.
+    embed = tuple(1 if n == 1 else next_fast_len(2 * (n - 1)) for n in dims)
+    while True:
+        eig = _embedding_eigenvalues(embed, cell, range_km, model)
+        top = eig.max()
+        if eig.min() >= -_EIGEN_TOLERANCE * top:
+            break
+        # Negative eigenvalues: correlation has not decayed enough across the torus.
+        # Enlarge it (the exact covariance on the real grid is kept at any size).
+        embed = tuple(1 if n == 1 else next_fast_len(int(m * 1.5) + 1) for n, m in zip(dims, embed))
+        if int(np.prod(embed)) > _MAX_EMBEDDING_NODES:
+            raise InputError(
+                f"A range of {range_km:g} km is too large for a grid of shape {dims} with cells "
+                f"of {cell} km to be simulated exactly; use a smaller range_km or a larger grid."
+            )
+    return np.clip(eig, 0.0, None)
+
+
 def gaussian_field(
     shape,
     cell_size_km,
@@ -219,22 +245,8 @@ def gaussian_field(
     if not (np.isfinite(mean) and np.isfinite(sd)) or sd < 0:
         raise InputError(f"mean must be finite and sd a non-negative number, got mean={mean}, sd={sd}.")
 
-    # Smallest periodic grid that holds every lag of the real grid once: 2(n - 1) per axis.
-    embed = tuple(1 if n == 1 else next_fast_len(2 * (n - 1)) for n in dims)
-    while True:
-        eig = _embedding_eigenvalues(embed, cell, range_km, model)
-        top = eig.max()
-        if eig.min() >= -_EIGEN_TOLERANCE * top:
-            break
-        # Negative eigenvalues: correlation has not decayed enough across the torus.
-        # Enlarge it (the exact covariance on the real grid is kept at any size).
-        embed = tuple(1 if n == 1 else next_fast_len(int(m * 1.5) + 1) for n, m in zip(dims, embed))
-        if int(np.prod(embed)) > _MAX_EMBEDDING_NODES:
-            raise InputError(
-                f"A range of {range_km:g} km is too large for a grid of shape {dims} with cells "
-                f"of {cell} km to be simulated exactly; use a smaller range_km or a larger grid."
-            )
-    eig = np.clip(eig, 0.0, None)
+    eig = _circulant_eigenvalues(dims, cell, range_km, model)
+    embed = eig.shape
 
     rng = np.random.default_rng(seed)
     noise = rng.standard_normal((2,) + embed)

@@ -1,0 +1,49 @@
+"""Residual dependence between calibration and evaluation data.
+
+Autocorrelation range (``variogram``), geographic nearest-neighbour distances
+(``distance``), environmental overlap and extrapolation (``environment``), the
+per-fold audit with verdicts (``audit``) and figures (``figures``). Arrays in,
+frozen result dataclasses out; nothing here reads files.
+"""
+
+from splitter.dependence.audit import RULES, AuditResult, audit_split
+from splitter.dependence.distance import DistanceDiagnostics, distance_diagnostics, nearest_other_km
+from splitter.dependence.environment import (
+    CovariateRanges,
+    OverlapResult,
+    covariate_ranges,
+    mess,
+    schoener_d,
+)
+from splitter.dependence.figures import OKABE_ITO, plot_distance_ecdf, plot_variogram
+from splitter.dependence.variogram import (
+    RangeEstimate,
+    Semivariogram,
+    VariogramFit,
+    empirical_semivariogram,
+    estimate_range,
+    fit_variogram,
+)
+
+__all__ = [
+    "AuditResult",
+    "CovariateRanges",
+    "DistanceDiagnostics",
+    "OKABE_ITO",
+    "OverlapResult",
+    "RULES",
+    "RangeEstimate",
+    "Semivariogram",
+    "VariogramFit",
+    "audit_split",
+    "covariate_ranges",
+    "distance_diagnostics",
+    "empirical_semivariogram",
+    "estimate_range",
+    "fit_variogram",
+    "mess",
+    "nearest_other_km",
+    "plot_distance_ecdf",
+    "plot_variogram",
+    "schoener_d",
+]

@@ -252,8 +252,7 @@ def _prepare(v: np.ndarray, s: np.ndarray, w: np.ndarray | None) -> _Prepared:
     cum = np.cumsum(mass)
     # Prefix sums of non-negative masses are exactly 0 below the lowest cell, which
     # the degenerate-case handling relies on.
-    below = np.concatenate(([0.0], cum[1 : 2 * d : 2]))[:d]  # cum[2j - 1] = mass of bins < 2j
-    below = np.where(np.arange(d) == 0, mass[0], cum[np.maximum(2 * np.arange(d), 0)])
+    below = cum[0 : 2 * d : 2]  # cum[2j] = mass of bins 0..2j, i.e. of cells < u[j]
     tied = mass[1 : 2 * d : 2]
     # Flip to descending order of value: the curve is traced from the top threshold down.
     order = np.arange(d)[::-1]

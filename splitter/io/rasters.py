@@ -10,8 +10,9 @@ Rasters may be larger than memory, so nothing here reads a whole band at once:
   window, then the cells drawn in each window), so its memory is one window plus the
   sample.
 
-Cell areas are true areas in km²: for a geographic CRS the ellipsoidal area between
-two parallels and two meridians; for a projected CRS the cell's planar area.
+Cell areas (km²) come from :func:`splitter.evaluate.area.cell_areas`: for a
+geographic CRS the ellipsoidal area between two parallels and two meridians; for a
+projected CRS the cell's planar area.
 Only band 1 of each raster is used.
 
 Examples
@@ -45,6 +46,7 @@ from rasterio.windows import Window
 from shapely.geometry.base import BaseGeometry
 
 from splitter.errors import InputError
+from splitter.evaluate.area import cell_areas
 from splitter.geo import Points
 from splitter.io.atomic import atomic_path
 
@@ -188,50 +190,6 @@ def _same_grid(a: RasterInfo, b: RasterInfo) -> bool:
         and a.height == b.height
         and a.transform.almost_equals(b.transform)
     )
-
-
-def _require_north_up(info: RasterInfo) -> None:
-    t = info.transform
-    if t.b != 0 or t.d != 0:
-        raise InputError(
-            f"Raster {info.path} has a rotated grid; warp it to a north-up grid "
-            "(e.g. with gdalwarp) before using it for cell areas."
-        )
-
-
-# ---------------------------------------------------------------------- cell areas
-
-
-def _authalic_q(lat_rad: np.ndarray, e: float) -> np.ndarray:
-    """q(φ) of the ellipsoid: area from the equator to φ is a²·Δλ·q(φ)/2.
-
-    Map Projections — A Working Manual (USGS Professional Paper 1395, 1987), eq. 3-12.
-    For a sphere (e = 0) q = 2 sin φ.
-    """
-    s = np.sin(lat_rad)
-    if e == 0:
-        return 2.0 * s
-    return (1 - e * e) * (s / (1 - (e * s) ** 2) + np.arctanh(e * s) / e)
-
-
-def _row_areas_km2(info: RasterInfo) -> np.ndarray:
-    """Area (km²) of one cell in each row of a north-up raster.
-
-    Geographic: the exact ellipsoidal area of a cell bounded by two parallels and two
-    meridians (closed form, vectorised over rows). Projected: |a·e| in CRS units².
-    """
-    _require_north_up(info)
-    t, crs = info.transform, info.crs
-    if crs.is_geographic:
-        ell = crs.ellipsoid or pyproj.CRS.from_epsg(4326).ellipsoid
-        a, b = ell.semi_major_metre, ell.semi_minor_metre
-        e = float(np.sqrt(max(0.0, 1 - (b / a) ** 2)))
-        unit = crs.axis_info[0].unit_conversion_factor if crs.axis_info else np.pi / 180
-        edges = np.clip((t.f + t.e * np.arange(info.height + 1)) * unit, -np.pi / 2, np.pi / 2)
-        dlon = abs(t.a) * unit
-        return 0.5 * a * a * dlon * np.abs(np.diff(_authalic_q(edges, e))) / 1e6
-    metres = crs.axis_info[0].unit_conversion_factor if crs.axis_info else 1.0
-    return np.full(info.height, abs(t.a * t.e) * metres * metres / 1e6)
 
 
 # -------------------------------------------------------------------------- region
@@ -525,7 +483,8 @@ class _CellReader:
         self.infos = [raster_info(p) for p in self.paths]
         self.first = self.infos[0]
         self.geom = _region_in(region, self.first.crs)
-        self.row_areas = _row_areas_km2(self.first)
+        f = self.first
+        self.row_areas = cell_areas(f.transform, f.height, f.width, f.crs)
         self.windows = _row_windows(self.first, self.geom, window_rows)
         self._stack = contextlib.ExitStack()
 
@@ -701,15 +660,16 @@ def sample_valid_locations(paths, n: int, seed, region=None, *, window_rows: int
     rows, cols = rows[order], cols[order]
     u, v = rng.random(rows.size), rng.random(rows.size)
     t = info.transform
-    x = t.a * (cols + u) + t.c
     if info.crs.is_geographic:
-        # Uniform by area inside the cell: sin(lat) uniform between the cell's edges.
-        top = np.deg2rad(t.f + t.e * rows)
-        bottom = np.deg2rad(t.f + t.e * (rows + 1))
+        # cell_areas has checked the grid is north-up. Uniform by area inside the
+        # cell: sin(lat) uniform between the cell's edges, not lat itself.
+        x = t.a * (cols + u) + t.c
+        top = np.deg2rad(np.clip(t.f + t.e * rows, -90, 90))
+        bottom = np.deg2rad(np.clip(t.f + t.e * (rows + 1), -90, 90))
         s = np.sin(top) + v * (np.sin(bottom) - np.sin(top))
         y = np.rad2deg(np.arcsin(np.clip(s, -1.0, 1.0)))
     else:
-        y = t.e * (rows + v) + t.f
+        x, y = _apply(t, cols + u, rows + v)
     return Points(x, y, info.crs)
 
 

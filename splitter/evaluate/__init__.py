@@ -1,0 +1,45 @@
+"""Per-fold evaluation: thresholds, significance tests and performance measures.
+
+Pure numpy/scipy/scikit-learn; no file I/O. Significance comes first: a fold whose
+binomial test or partial ROC is not significant should not be interpreted.
+"""
+
+from splitter.evaluate.area import cell_areas
+from splitter.evaluate.baseline import fit_baseline, predict_suitability
+from splitter.evaluate.binomial import BinomialResult, area_predicted, binomial_test
+from splitter.evaluate.boyce import BoyceResult, boyce_index
+from splitter.evaluate.combine import CombinedPValue, FoldSummary, combine_pvalues_fisher, summarise_folds
+from splitter.evaluate.measures import Measures, confusion_measures
+from splitter.evaluate.partial_roc import (
+    PartialROCResult,
+    ROCCurve,
+    partial_roc,
+    partial_roc_reference,
+    roc_curve_area,
+)
+from splitter.evaluate.thresholds import Threshold, ThresholdRule, choose_threshold
+
+__all__ = [
+    "BinomialResult",
+    "BoyceResult",
+    "CombinedPValue",
+    "FoldSummary",
+    "Measures",
+    "PartialROCResult",
+    "ROCCurve",
+    "Threshold",
+    "ThresholdRule",
+    "area_predicted",
+    "binomial_test",
+    "boyce_index",
+    "cell_areas",
+    "choose_threshold",
+    "combine_pvalues_fisher",
+    "confusion_measures",
+    "fit_baseline",
+    "partial_roc",
+    "partial_roc_reference",
+    "predict_suitability",
+    "roc_curve_area",
+    "summarise_folds",
+]

@@ -1,0 +1,184 @@
+"""Continuous Boyce index (presence-only performance).
+
+Method: "Evaluating the ability of habitat suitability models to predict species
+presences", Ecological Modelling (2006). A window of fixed width moves over the
+suitability range; in each window the predicted frequency P (share of evaluation
+presences in it) is divided by the expected frequency E (area-weighted share of the
+testing region's cells, or share of background points, in it). A good model has
+P/E rising with suitability; the index is the Spearman rank correlation between the
+windows' midpoints and their P/E ratios (from -1 to 1; near 0 = random).
+
+Windows (defaults): width = 1/10 of the suitability range; starts evenly spaced from
+the bottom of the range to (top - width) with a step of 1/100 of the range, so 91
+windows, the first starting at the bottom and the last ending at the top. Windows
+are closed intervals [start, start + width]. Windows without expected mass are left
+out (P/E is undefined there).
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import stats
+
+from splitter.errors import InputError
+
+__all__ = ["BoyceResult", "boyce_index"]
+
+
+@dataclass(frozen=True, eq=False)
+class BoyceResult:
+    """Result of :func:`boyce_index`.
+
+    Attributes
+    ----------
+    statistic : float
+        Continuous Boyce index (Spearman correlation of window midpoints with P/E);
+        NaN when fewer than 3 windows have expected mass or P/E is constant.
+    window_width : float
+        Window width in suitability units.
+    n_windows : int
+        Windows laid over the range.
+    n_used : int
+        Windows with expected mass (used in the correlation).
+    midpoints : numpy.ndarray
+        Midpoints of the used windows.
+    ratios : numpy.ndarray
+        P/E of the used windows.
+
+    Notes
+    -----
+    No p-value is given: overlapping windows share presences, so the windows are
+    not independent and Spearman's p-value would be far too small.
+    """
+
+    statistic: float
+    window_width: float
+    n_windows: int
+    n_used: int
+    midpoints: np.ndarray = field(repr=False)
+    ratios: np.ndarray = field(repr=False)
+
+    def to_dict(self) -> dict:
+        """Scalars only."""
+        return {
+            "statistic": self.statistic,
+            "window_width": self.window_width,
+            "n_windows": self.n_windows,
+            "n_used": self.n_used,
+        }
+
+    def to_frame(self):
+        """Per-window table: midpoint and P/E ratio."""
+        import pandas as pd
+
+        return pd.DataFrame({"midpoint": self.midpoints, "ratio": self.ratios})
+
+
+def _window_mass(sorted_values: np.ndarray, cum_mass: np.ndarray, starts: np.ndarray, ends: np.ndarray):
+    # Mass in closed windows [start, end] from a cumulative sum over sorted values:
+    # two binary searches per window, no pass over the data per window.
+    upper = np.searchsorted(sorted_values, ends, side="right")
+    lower = np.searchsorted(sorted_values, starts, side="left")
+    cum = np.concatenate(([0.0], cum_mass))
+    return cum[upper] - cum[lower]
+
+
+def boyce_index(
+    presence_scores,
+    reference_values,
+    reference_weights=None,
+    width_share: float = 0.1,
+    step_share: float = 0.01,
+    value_range=None,
+) -> BoyceResult:
+    """Continuous Boyce index of evaluation presences against the testing region.
+
+    Parameters
+    ----------
+    presence_scores : array_like of float
+        Predictions at evaluation presences.
+    reference_values : array_like of float
+        Predictions over the testing region (cells) or at background points: the
+        expected distribution.
+    reference_weights : array_like of float, optional
+        Cell areas for raster cells; None weights them equally.
+    width_share : float, default 0.1
+        Window width as a share of the suitability range, in (0, 1].
+    step_share : float, default 0.01
+        Step between window starts as a share of the range (the last window is
+        aligned to end at the top of the range, so the step may shrink slightly).
+    value_range : (float, float), optional
+        Suitability range; default the min and max of ``reference_values``.
+
+    Returns
+    -------
+    BoyceResult
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> cells = rng.random(20_000)
+    >>> presences = np.sqrt(rng.random(500))  # more presences where suitability is high
+    >>> round(boyce_index(presences, cells).statistic, 1)
+    1.0
+    """
+    pres = np.asarray(presence_scores, dtype=float).ravel()
+    ref = np.asarray(reference_values, dtype=float).ravel()
+    if pres.size == 0:
+        raise InputError("There are no evaluation presences; the Boyce index needs at least one.")
+    if ref.size == 0:
+        raise InputError("There are no reference values (cells or background) for the Boyce index.")
+    if not (np.all(np.isfinite(pres)) and np.all(np.isfinite(ref))):
+        raise InputError("Some scores are missing or infinite; drop nodata cells and those records first.")
+    if reference_weights is None:
+        w = np.ones_like(ref)
+    else:
+        w = np.asarray(reference_weights, dtype=float).ravel()
+        if w.shape != ref.shape:
+            raise InputError(f"Got {w.size} weights for {ref.size} reference values; give one per value.")
+        if not np.all(np.isfinite(w)) or np.any(w < 0) or not np.any(w > 0):
+            raise InputError("Reference weights must be finite, not negative, and not all zero.")
+    width_share = float(width_share)
+    step_share = float(step_share)
+    if not (0.0 < width_share <= 1.0):
+        raise InputError(f"Window width share {width_share} must lie in (0, 1], e.g. 0.1.")
+    if not (0.0 < step_share <= 1.0):
+        raise InputError(f"Window step share {step_share} must lie in (0, 1], e.g. 0.01.")
+    lo, hi = (float(ref.min()), float(ref.max())) if value_range is None else map(float, value_range)
+    if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
+        raise InputError(
+            f"The suitability range [{lo}, {hi}] is empty; the reference values must not all be equal."
+        )
+    span = hi - lo
+    # Number of windows so that starts run from lo to hi - width with steps of at
+    # most step_share * span; the 1e-9 absorbs binary rounding of the quotient.
+    n_windows = int(np.ceil((1.0 - width_share) / step_share - 1e-9)) + 1
+    starts = lo + np.linspace(0.0, 1.0 - width_share, n_windows) * span
+    width = width_share * span
+    ends = starts + width
+
+    order = np.argsort(ref, kind="stable")
+    ref_sorted = ref[order]
+    expected = _window_mass(ref_sorted, np.cumsum(w[order]) / w.sum(), starts, ends)
+    pres_sorted = np.sort(pres)
+    predicted = _window_mass(pres_sorted, np.arange(1, pres.size + 1) / pres.size, starts, ends)
+    used = expected > 0
+    ratios = predicted[used] / expected[used]
+    mids = (starts + ends)[used] / 2.0
+    if ratios.size < 3 or np.all(ratios == ratios[0]):
+        statistic = float("nan")
+    else:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            statistic = float(stats.spearmanr(mids, ratios).statistic)
+    return BoyceResult(
+        statistic=statistic,
+        window_width=float(width),
+        n_windows=n_windows,
+        n_used=int(used.sum()),
+        midpoints=mids,
+        ratios=ratios,
+    )

@@ -1,0 +1,151 @@
+"""The design command as a user runs it: outputs, and one clear line + exit 2 on bad input."""
+
+import json
+
+import numpy as np
+import pytest
+import rasterio
+from rasterio.transform import from_origin
+from typer.testing import CliRunner
+
+from splitter.cli import app
+from tests.conftest import write_records_csv
+
+runner = CliRunner()
+
+
+def run(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def assert_one_line_error(res, *words):
+    assert res.exit_code == 2, res.output
+    text = res.stderr if hasattr(res, "stderr") else res.output
+    lines = [l for l in text.strip().splitlines() if l.strip()]
+    assert len(lines) == 1, text
+    assert "Traceback" not in text
+    for w in words:
+        assert w.lower() in lines[0].lower(), lines[0]
+
+
+def test_design_writes_every_row_and_the_sidecar(tmp_path):
+    src = write_records_csv(tmp_path / "records.csv", extra_rows=["bad1,,45.1,presence,trap,", "bad2,12.1,145.0,presence,trap,"])
+    before = src.read_bytes()
+    res = run("design", src, "--method", "blocks", "--folds", 5, "--block-size", 40, "--buffer", 10, "--seed", 3, "--out", tmp_path / "out" / "folds.csv")
+    assert res.exit_code == 0, res.output
+    assert src.read_bytes() == before  # inputs are never modified
+    import pandas as pd
+
+    inp = pd.read_csv(src, dtype=str, keep_default_na=False)
+    out = pd.read_csv(tmp_path / "out" / "folds.csv", dtype=str, keep_default_na=False)
+    assert len(out) == len(inp)
+    assert list(out.columns[: len(inp.columns)]) == list(inp.columns)
+    assert out[inp.columns].equals(inp)  # original columns and order unchanged
+    assert list(out.columns[len(inp.columns):]) == ["fold", "dropped"]  # record_id, kind were already there
+    assert out.loc[out.record_id == "bad1", "dropped"].item() == "missing-coordinates"
+    assert out.loc[out.record_id == "bad2", "dropped"].item() == "coordinates-out-of-range"
+    assert out.loc[out.record_id == "bad1", "fold"].item() == ""
+    side = json.loads((tmp_path / "out" / "folds.design.json").read_text())
+    assert side["method"] == "blocks" and side["block_size_km"] == 40 and side["seed"] == 3
+    assert side["records"]["dropped"] == {"coordinates-out-of-range": 1, "missing-coordinates": 1}
+    assert len(side["inputs_sha256"]) == 1 and len(next(iter(side["inputs_sha256"].values()))) == 64
+    gaps = pd.read_csv(tmp_path / "out" / "folds.gaps.csv")
+    assert list(gaps.columns) == ["record_id", "fold"] and len(gaps) > 0
+    assert "dropped rows: 2" in res.output
+
+
+@pytest.mark.parametrize("suffix", [".gpkg", ".parquet"])
+def test_design_reads_and_writes_vector_formats(tmp_path, suffix):
+    import geopandas as gpd
+    import pandas as pd
+
+    src = write_records_csv(tmp_path / "records.csv")
+    df = pd.read_csv(src)
+    gdf = gpd.GeoDataFrame(df.drop(columns=["longitude", "latitude"]), geometry=gpd.points_from_xy(df.longitude, df.latitude), crs=4326)
+    vec = tmp_path / f"records{suffix}"
+    gdf.to_parquet(vec) if suffix == ".parquet" else gdf.to_file(vec)
+    outs = []
+    for i in range(2):
+        res = run("design", vec, "--method", "hexagons", "--folds", 4, "--block-size", 60, "--seed", 1, "--out", tmp_path / f"o{i}{suffix}")
+        assert res.exit_code == 0, res.output
+        outs.append((tmp_path / f"o{i}{suffix}").read_bytes())
+    assert outs[0] == outs[1]  # byte-identical for the same seed
+    back = gpd.read_parquet(tmp_path / f"o0{suffix}") if suffix == ".parquet" else gpd.read_file(tmp_path / f"o0{suffix}")
+    assert len(back) == len(df) and back["fold"].notna().all()
+
+
+@pytest.mark.parametrize("method,extra", [
+    ("checkerboard", ["--folds", 4, "--block-size", 30]),
+    ("random", ["--folds", 5]),
+    ("groups", ["--group-column", "method"]),
+    ("holdout-group", ["--group-column", "method", "--calibrate-on", "transect", "--evaluate-on", "trap"]),
+    ("leave-one-out", ["--buffer", 15]),
+    ("clusters", ["--folds", 3, "--covariate-column", "longitude", "--covariate-column", "latitude"]),
+])
+def test_every_method_runs_from_the_command_line(tmp_path, method, extra):
+    src = write_records_csv(tmp_path / "records.csv", n_presence=80, n_background=40)
+    res = run("design", src, "--method", method, *extra, "--out", tmp_path / "f.csv")
+    assert res.exit_code == 0, res.output
+    import pandas as pd
+
+    out = pd.read_csv(tmp_path / "f.csv", dtype=str, keep_default_na=False)
+    assert len(out) == 120
+
+
+def _raster(path, west, north, crs="EPSG:4326"):
+    data = np.arange(100, dtype="float32").reshape(10, 10)
+    with rasterio.open(path, "w", driver="GTiff", width=10, height=10, count=1, dtype="float32",
+                       crs=crs, transform=from_origin(west, north, 0.5, 0.5), nodata=-9999) as ds:
+        ds.write(data, 1)
+    return path
+
+
+def test_bad_inputs_get_one_line_and_exit_2(tmp_path):
+    good = write_records_csv(tmp_path / "records.csv")
+    out = tmp_path / "f.csv"
+    p = tmp_path / "nocoords.csv"
+    p.write_text("a,b\n1,2\n")
+    assert_one_line_error(run("design", p, "--block-size", 50, "--out", out), "nocoords.csv", "--x")
+    p = tmp_path / "text.csv"
+    p.write_text("lon,lat\nnorth,east\nfoo,bar\n")
+    assert_one_line_error(run("design", p, "--block-size", 50, "--out", out), "text.csv", "numeric")
+    p = tmp_path / "swapped.csv"
+    rows = "\n".join(f"{45 + i * 0.01},{120 + i * 0.01}" for i in range(20))
+    p.write_text("lon,lat\n" + rows + "\n")
+    assert_one_line_error(run("design", p, "--block-size", 50, "--out", out), "swapped.csv", "swapped")
+    p = tmp_path / "empty.csv"
+    p.write_text("")
+    assert_one_line_error(run("design", p, "--block-size", 50, "--out", out), "empty.csv", "empty")
+    p = tmp_path / "latin1.csv"
+    p.write_bytes("lon,lat,site\n10,45,Mo\xeflle\n".encode("latin-1"))
+    assert_one_line_error(run("design", p, "--block-size", 50, "--out", out), "latin1.csv", "UTF-8")
+    p = tmp_path / "dup.csv"
+    p.write_text("record_id,lon,lat\na,10,45\na,11,45\n")
+    assert_one_line_error(run("design", p, "--block-size", 50, "--out", out), "dup.csv", "duplicate id 'a'")
+    assert_one_line_error(run("design", good, "--method", "stripes", "--out", out), "--method stripes")
+    assert_one_line_error(run("design", good, "--method", "random", "--folds", 1, "--out", out), "--folds 1")
+    assert_one_line_error(run("design", good, "--folds", 50, "--block-size", 400, "--out", out), "--folds 50", "occupied")
+    assert_one_line_error(run("design", good, "--folds", 2, "--block-size", 300, "--buffer", 2000, "--out", out), "--buffer")
+    assert_one_line_error(run("design", good, "--method", "groups", "--group-column", "survey", "--out", out), "--group-column survey")
+    far = _raster(tmp_path / "far.tif", west=-120, north=-30)
+    assert_one_line_error(run("design", good, "--block-size", 50, "--env", far, "--out", out), "far.tif", "valid cell")
+    import geopandas as gpd
+
+    g = gpd.GeoDataFrame({"a": [1, 2]}, geometry=gpd.points_from_xy([4_300_000, 4_310_000], [2_500_000, 2_510_000]), crs=None)
+    g.to_file(tmp_path / "nocrs.gpkg")
+    assert_one_line_error(run("design", tmp_path / "nocrs.gpkg", "--block-size", 50, "--out", out), "nocrs.gpkg", "--crs")
+    assert not out.exists()  # nothing half-written
+
+
+def test_rows_without_covariate_values_are_kept_and_dropped(tmp_path):
+    src = write_records_csv(tmp_path / "records.csv", n_presence=60, n_background=0)
+    r = _raster(tmp_path / "half.tif", west=6.0, north=50.0)  # covers 6-11 E, 45-50 N
+    res = run("design", src, "--method", "random", "--folds", 3, "--env", r, "--out", tmp_path / "f.csv")
+    assert res.exit_code == 0, res.output
+    import pandas as pd
+
+    out = pd.read_csv(tmp_path / "f.csv", dtype=str, keep_default_na=False)
+    lon, lat = out.longitude.astype(float), out.latitude.astype(float)
+    outside = ~((lon >= 6) & (lon < 11) & (lat > 45) & (lat <= 50))
+    assert (out.loc[outside, "dropped"] == "no-covariate-value").all()
+    assert (out.loc[~outside, "dropped"] == "").all() and outside.any()

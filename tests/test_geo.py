@@ -1,0 +1,57 @@
+import numpy as np
+import pyproj
+from hypothesis import given, settings, strategies as st
+
+from splitter.geo import NeighbourIndex, Points, distance_km, equal_area_crs, planar_km
+
+GEOD = pyproj.Geod(ellps="WGS84")
+
+
+def brute_nearest_km(q: Points, r: Points) -> np.ndarray:
+    # reference: pyproj.Geod.inv brute force over every pair
+    out = np.empty(len(q))
+    for j in range(len(q)):
+        _, _, d = GEOD.inv(np.full(len(r), q.x[j]), np.full(len(r), q.y[j]), r.x, r.y)
+        out[j] = d.min() / 1000
+    return out
+
+
+def test_nearest_equals_geod_brute_force_worldwide():
+    rng = np.random.default_rng(3)
+    q = Points.lonlat(rng.uniform(-180, 180, 300), rng.uniform(-89, 89, 300))
+    r = Points.lonlat(rng.uniform(-180, 180, 500), rng.uniform(-89, 89, 500))
+    d, i = NeighbourIndex(r).nearest(q)
+    ref = brute_nearest_km(q, r)
+    # reference: pyproj.Geod brute force; relative error < 1e-3 asked, exact expected
+    np.testing.assert_allclose(d, ref, rtol=1e-9)
+    np.testing.assert_allclose(distance_km(q, r.take(i)), ref, rtol=1e-9)
+
+
+@settings(max_examples=25, deadline=None)
+@given(st.integers(0, 10_000), st.floats(-80, 80))
+def test_nearest_dense_cluster_matches_brute_force(seed, lat0):
+    rng = np.random.default_rng(seed)
+    q = Points.lonlat(rng.normal(10, 0.05, 40), np.clip(rng.normal(lat0, 0.05, 40), -89, 89))
+    r = Points.lonlat(rng.normal(10, 0.05, 60), np.clip(rng.normal(lat0, 0.05, 60), -89, 89))
+    d, _ = NeighbourIndex(r).nearest(q)
+    # reference: pyproj.Geod brute force
+    np.testing.assert_allclose(d, brute_nearest_km(q, r), rtol=1e-9, atol=1e-9)
+
+
+def test_projected_distances_are_euclidean_km():
+    crs = pyproj.CRS.from_epsg(3035)
+    a = Points(np.array([4_000_000.0]), np.array([3_000_000.0]), crs)
+    b = Points(np.array([4_003_000.0]), np.array([3_004_000.0]), crs)
+    # reference: analytic (3-4-5 triangle in metres -> 5 km)
+    assert distance_km(a, b)[0] == 5.0
+    assert NeighbourIndex(b).nearest(a)[0][0] == 5.0
+
+
+def test_equal_area_crs_preserves_area_far_from_centre():
+    pts = Points.lonlat([0.0, 40.0], [35.0, 70.0])
+    crs = equal_area_crs(pts)
+    x, y = planar_km(Points.lonlat([39.0, 39.1, 39.1, 39.0], [69.0, 69.0, 69.1, 69.1]), crs)
+    planar_area = 0.5 * abs(np.dot(x, np.roll(y, 1)) - np.dot(y, np.roll(x, 1)))
+    # reference: pyproj.Geod.polygon_area_perimeter of the same (small) cell
+    geod_area, _ = GEOD.polygon_area_perimeter([39.0, 39.1, 39.1, 39.0], [69.0, 69.0, 69.1, 69.1])
+    assert abs(planar_area - abs(geod_area) / 1e6) / (abs(geod_area) / 1e6) < 1e-3
