@@ -27,6 +27,8 @@ app = typer.Typer(
     pretty_exceptions_enable=False,
 )
 out = Console(highlight=False)
+if not out.is_terminal:  # piped or captured: do not squeeze tables into 80 columns
+    out.width = 140
 err = Console(stderr=True, highlight=False)
 
 
@@ -168,6 +170,87 @@ def _print_design(assignment, paths):
         out.print(f"note: {note}")
     for role, path in paths.items():
         out.print(f"{role}: {path}")
+
+
+def _fmt_p(p, replicates=None) -> str:
+    import math
+
+    if p is None or (isinstance(p, float) and math.isnan(p)):
+        return "-"
+    if replicates and p == 0:
+        return f"<{1 / replicates:.0e}"
+    return f"{p:.2g}" if p >= 1e-3 else f"{p:.0e}"
+
+
+def evaluation_table(result, title: str) -> Table:
+    t = Table(title=title, title_justify="left")
+    for c in ("fold", "verdict", "binom p", "pROC p", "ratio", "95% CI", "AUC", "omis.", "TSS", "Boyce"):
+        t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
+    rows = [f.row for f in result.folds] + [result.summary]
+    for r in rows:
+        sig = "significant" if r["significant"] else "DO NOT INTERPRET"
+        perf = r["significant"] or r["fold"] == "all"
+        num = (lambda v: f"{v:.3f}") if perf else (lambda v: "-")
+        ci = f"{r['auc_ratio_low']:.2f}-{r['auc_ratio_high']:.2f}" if r["fold"] != "all" and perf else "-"
+        t.add_row(str(r["fold"]), sig, _fmt_p(r["binomial_p"]), _fmt_p(r["partial_roc_p"], r.get("replicates") if r["fold"] != "all" else None),
+                  num(r["auc_ratio_mean"]), ci, num(r["auc"]), num(r["omission_rate"]), num(r["tss"]), num(r["boyce"]))
+    t.caption = "performance shown only for significant folds; 'all' = fold means, Fisher-combined p"
+    return t
+
+
+@app.command()
+@guarded
+def evaluate(
+    folds_table: Path = typer.Argument(..., metavar="FOLDS", help="Fold table (ours, or your own with a fold column)."),
+    predictions: Optional[str] = typer.Option(None, "--predictions", help="Prediction raster pattern with {fold}, e.g. 'preds/fold_{fold}.tif'."),
+    prediction_table: Optional[Path] = typer.Option(None, "--prediction-table", help="CSV with record_id, fold, prediction."),
+    model: Optional[str] = typer.Option(None, "--model", help="'baseline': fit the built-in model per fold over --env rasters."),
+    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF for --model (repeatable)."),
+    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file cutting the testing region."),
+    fold_column: str = typer.Option("fold", "--fold-column", help="Column holding the folds."),
+    threshold: str = typer.Option("quantile:0.1", "--threshold", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
+    omission: float = typer.Option(0.05, "--omission", help="Partial ROC omission tolerance E."),
+    replicates: int = typer.Option(1000, "--replicates", help="Bootstrap replicates for the partial ROC."),
+    alpha: float = typer.Option(0.05, "--alpha", help="Significance level."),
+    x: Optional[str] = typer.Option(None, "--x", help="Longitude / easting column."),
+    y: Optional[str] = typer.Option(None, "--y", help="Latitude / northing column."),
+    crs: Optional[str] = typer.Option(None, "--crs", help="CRS of the coordinates."),
+    id_column: Optional[str] = typer.Option(None, "--id-column", help="Record id column."),
+    kind_column: Optional[str] = typer.Option(None, "--kind-column", help="presence/absence/background column."),
+    seed: int = typer.Option(0, "--seed", help="Seed for the bootstrap."),
+    fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'not-significant': exit 1 when any fold is not significant."),
+    out_dir: Path = typer.Option(..., "--out", help="Output folder."),
+):
+    """Test each fold's predictions: significance first, then performance."""
+    from splitter.evaluation import evaluate as run_evaluate
+    from splitter.io.foldtable import read_fold_table
+    from splitter.io.results import write_evaluation
+
+    if fail_on not in (None, "not-significant"):
+        raise InputError(f"--fail-on {fail_on}: the only choice is 'not-significant'.")
+    if model is not None and model != "baseline":
+        raise InputError(f"--model {model}: the built-in model is 'baseline' (pass other estimators from Python).")
+    _, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
+                                           id_column=id_column, kind_column=kind_column)
+    with progress() as bar:
+        steps = assignment.n_folds * (2 if model else 1)
+        task = bar.add_task("evaluating folds", total=steps)
+        result = run_evaluate(
+            assignment, predictions=predictions, prediction_table=prediction_table, model=model, env=env,
+            region=region, threshold=threshold, omission=omission, replicates=replicates, alpha=alpha,
+            seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
+            progress=lambda: bar.advance(task),
+        )
+        paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table)})
+    out.print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
+    for w in result.warnings:
+        out.print(f"warning: {w}")
+    for n in result.parameters.get("notes", []):
+        out.print(f"note: {n}")
+    for role, p in paths.items():
+        out.print(f"{role}: {p}")
+    if fail_on == "not-significant" and not all(f.row["significant"] for f in result.folds):
+        raise typer.Exit(1)
 
 
 def run():  # pragma: no cover - console entry for python -m

@@ -62,7 +62,7 @@ def plot_variogram(range_estimate: RangeEstimate, chosen_block_km: float | None 
     names = range_estimate.covariates
     ncol = min(3, len(names))
     nrow = math.ceil(len(names) / ncol)
-    fig = _figure(3.2 * ncol, 2.6 * nrow)
+    fig = _figure(3.3 * ncol, 3.4 * nrow)
     axes = fig.subplots(nrow, ncol, squeeze=False)
     fits = {(f.covariate, f.model): f for f in range_estimate.fits}
     for j, name in enumerate(names):
@@ -70,13 +70,14 @@ def plot_variogram(range_estimate: RangeEstimate, chosen_block_km: float | None 
         sv = range_estimate.semivariograms[name]
         ok = sv.pair_counts > 0
         ax.plot(sv.lags_km[ok], sv.gamma[ok], "o", color=OKABE_ITO[0], ms=3.5, label="empirical")
-        h = np.linspace(0.0, sv.max_lag_km, 200)
+        # Start just right of 0: with a nugget the model jumps from 0 at h = 0 exactly.
+        h = np.linspace(sv.max_lag_km / 400, sv.max_lag_km, 200)
         chosen = range_estimate.best[name]
         for model, colour, style in (("spherical", _HUES[0], "-"), ("exponential", _HUES[1], "--")):
             f = fits[(name, model)]
             mark = " (chosen)" if f is chosen else ""
-            ax.plot(h, f.predict(h), style, color=colour, lw=1.4,
-                    label=f"{model}, range {f.range_km:.3g} km{mark}")
+            what = "range not reached" if f.range_at_bound else f"range {f.range_km:.3g} km"
+            ax.plot(h, f.predict(h), style, color=colour, lw=1.4, label=f"{model}, {what}{mark}")
         ax.axvline(block, color=_HUES[5], lw=1.0, ls=":", label=f"block {block:.3g} km")
         ax.set_title(name, fontsize=_FONT + 1)
         ax.set_xlabel("distance (km)", fontsize=_FONT)
@@ -84,7 +85,8 @@ def plot_variogram(range_estimate: RangeEstimate, chosen_block_km: float | None 
         ax.set_xlim(0, sv.max_lag_km * 1.02)
         ax.set_ylim(bottom=0)
         ax.tick_params(labelsize=_FONT - 1)
-        ax.legend(fontsize=_FONT - 2, frameon=False, loc="lower right")
+        # Legend under the panel so it never hides the semivariances.
+        ax.legend(fontsize=_FONT - 2, frameon=False, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=1)
     for j in range(len(names), nrow * ncol):
         axes[j // ncol][j % ncol].set_visible(False)
     return fig

@@ -157,12 +157,15 @@ def _max_tss_threshold(presence: np.ndarray, other: np.ndarray) -> float:
     other_sorted = np.sort(other)
     # searchsorted(..., "left") counts scores strictly below t: omitted presences
     # and correctly rejected background/absences.
-    sensitivity = 1.0 - np.searchsorted(pres_sorted, candidates, side="left") / pres_sorted.size
-    specificity = np.searchsorted(other_sorted, candidates, side="left") / other_sorted.size
-    tss = sensitivity + specificity - 1.0
+    n_p, n_o = pres_sorted.size, other_sorted.size
+    kept = n_p - np.searchsorted(pres_sorted, candidates, side="left")
+    rejected = np.searchsorted(other_sorted, candidates, side="left")
+    # TSS * n_p * n_o in whole numbers, so that equal TSS values compare equal
+    # (in floating point, ties could be broken by rounding noise).
+    scaled_tss = kept * n_o + rejected * n_p - n_p * n_o
     # argmax takes the first maximum, i.e. the lowest threshold among ties, which
     # omits the fewest calibration presences.
-    return float(candidates[int(np.argmax(tss))])
+    return float(candidates[int(np.argmax(scaled_tss))])
 
 
 def choose_threshold(rule, calibration_presence, calibration_background=None) -> Threshold:

@@ -1,0 +1,1 @@
+"""Figures and the methods appendix built from a run's files."""

@@ -1,0 +1,40 @@
+"""One plain look for every figure: Okabe–Ito colours, print-size text."""
+
+from __future__ import annotations
+
+from matplotlib.figure import Figure
+
+# Okabe & Ito colour-blind-safe palette.
+PALETTE = ["#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442", "#000000"]
+GREY = "#7f7f7f"
+RC = {"font.size": 9, "axes.titlesize": 10, "axes.labelsize": 9, "legend.fontsize": 8,
+      "xtick.labelsize": 8, "ytick.labelsize": 8, "svg.hashsalt": "splitter", "svg.fonttype": "none"}
+
+
+def colour(i: int) -> str:
+    return PALETTE[i % len(PALETTE)]
+
+
+def new_figure(width=5.0, height=3.6) -> Figure:
+    import matplotlib
+
+    matplotlib.rcParams.update(RC)
+    fig = Figure(figsize=(width, height), dpi=150, layout="constrained")
+    return fig
+
+
+def save(fig: Figure, path_stem, formats=("png", "svg")) -> list:
+    """Save a figure atomically in each format; PNG/SVG metadata fixed for reproducibility."""
+    from pathlib import Path
+
+    from splitter.io.atomic import atomic_path
+
+    out = []
+    for fmt in formats:
+        path = Path(f"{path_stem}.{fmt}")
+        path.parent.mkdir(parents=True, exist_ok=True)
+        meta = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
+        with atomic_path(path) as tmp:
+            fig.savefig(tmp, format=fmt, metadata=meta)
+        out.append(path)
+    return out
