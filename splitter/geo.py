@@ -174,13 +174,20 @@ class NeighbourIndex:
             return d * self._factor, i.astype(np.int64)
 
         xyz = _unit_xyz(query)
-        _, idx = self._tree.query(xyz, k=1, workers=-1)
-        idx = idx.astype(np.int64)
+        nref = len(self.reference)
+        k = min(2, nref)
+        dd, ii = self._tree.query(xyz, k=k, workers=-1)
+        dd, ii = dd.reshape(n, k), ii.reshape(n, k)
+        idx = ii[:, 0].astype(np.int64)
         best = distance_km(query, self.reference.take(idx))
         # Any point nearer on the ellipsoid is within the slack on the sphere.
         bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
-        k = 2
-        todo = np.arange(n)
+        todo = np.flatnonzero(dd[:, -1] <= bound) if k > 1 else np.zeros(0, np.int64)
+        best, idx = self._refine(query, xyz, todo, best, idx, bound, 8)
+        return best, idx
+
+    def _refine(self, query, xyz, todo, best, idx, bound, k):
+        """Check every candidate within ``bound`` (chord) for the rows in ``todo``."""
         nref = len(self.reference)
         while todo.size:
             kk = min(k, nref)
@@ -201,18 +208,46 @@ class NeighbourIndex:
                 best[q1[better]] = d1[better]
                 idx[q1[better]] = c1[better]
             # Rows whose k-th candidate was still inside the bound may hide more.
-            full = found[:, -1]
-            todo = todo[full]
+            todo = todo[found[:, -1]]
             if kk >= nref:
                 break
             k *= 4
         return best, idx
 
     def within(self, query: Points, radius_km: float) -> np.ndarray:
-        """Boolean mask: query points with a reference point closer than ``radius_km``."""
-        d, _ = self.nearest(query)
-        return d < radius_km
+        """Boolean mask: query points with a reference point closer than ``radius_km``.
 
+        Faster than :meth:`nearest` for a small radius: the tree search stops at
+        the radius, so far-away points cost almost nothing.
+        """
+        if query.crs != self.reference.crs:
+            query = query.to_crs(self.reference.crs)
+        n = len(query)
+        if n == 0 or radius_km <= 0:
+            return np.zeros(n, bool)
+        if not self.reference.geographic:
+            d, _ = self._tree.query(np.column_stack([query.x, query.y]), k=1,
+                                    distance_upper_bound=radius_km / self._factor, workers=-1)
+            return d * self._factor < radius_km
+        xyz = _unit_xyz(query)
+        bound = float(_chord(radius_km * _SPHERE_SLACK)) * 1.000001 + 1e-12
+        d, i = self._tree.query(xyz, k=1, distance_upper_bound=bound, workers=-1)
+        cand = np.flatnonzero(np.isfinite(d))
+        hit = np.zeros(n, bool)
+        if not cand.size:
+            return hit
+        dist = distance_km(query.take(cand), self.reference.take(i[cand].astype(np.int64)))
+        hit[cand[dist < radius_km]] = True
+        # A first candidate beyond the radius may hide a nearer one on the ellipsoid.
+        unsure = cand[dist >= radius_km]
+        if unsure.size:
+            best = np.full(n, np.inf)
+            idx = np.zeros(n, np.int64)
+            best[unsure] = dist[dist >= radius_km]
+            bounds = np.full(n, bound)
+            best, _ = self._refine(query, xyz, unsure, best, idx, bounds, 8)
+            hit[unsure[best[unsure] < radius_km]] = True
+        return hit
 
 def nearest_km(query: Points, reference: Points) -> np.ndarray:
     """Distance (km) from each query point to its nearest reference point."""

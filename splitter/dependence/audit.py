@@ -42,7 +42,7 @@ import numpy as np
 import pandas as pd
 
 from splitter.dependence.distance import DistanceDiagnostics, check_folds, distance_diagnostics
-from splitter.dependence.environment import CovariateRanges, covariate_ranges, mess, schoener_d
+from splitter.dependence.environment import covariate_ranges, mess, schoener_d
 from splitter.errors import InputError
 from splitter.geo import Points
 

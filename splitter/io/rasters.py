@@ -32,7 +32,7 @@ from __future__ import annotations
 import contextlib
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Iterator, NamedTuple, Sequence
+from typing import Iterator, NamedTuple
 
 import numpy as np
 import pyproj
@@ -331,8 +331,9 @@ def _sample_open(src, info: RasterInfo, x: np.ndarray, y: np.ndarray, max_cells:
     out = np.full(x.shape, np.nan)
     with np.errstate(invalid="ignore"):
         colf, rowf = _apply(~info.transform, x, y)
-    inside = np.isfinite(colf) & np.isfinite(rowf)
-    inside[inside] = (colf[inside] >= 0) & (colf[inside] < info.width) & (rowf[inside] >= 0) & (rowf[inside] < info.height)
+    # NaN/inf coordinates (failed reprojection) compare False, so they count as outside.
+    with np.errstate(invalid="ignore"):
+        inside = (colf >= 0) & (colf < info.width) & (rowf >= 0) & (rowf < info.height)
     idx = np.flatnonzero(inside)
     if idx.size == 0:
         return out

@@ -29,8 +29,7 @@ def buffer_gaps(points: Points, fold: np.ndarray, radius_km: float) -> tuple[np.
         cand = np.flatnonzero((fold >= 0) & (fold != i))
         if not ev.size or not cand.size:
             continue
-        d, _ = NeighbourIndex(points.take(ev)).nearest(points.take(cand))
-        hit = cand[d < radius_km]
+        hit = cand[NeighbourIndex(points.take(ev)).within(points.take(cand), radius_km)]
         rows_out.append(hit)
         folds_out.append(np.full(hit.size, i, np.int64))
     if not rows_out:

@@ -2,7 +2,6 @@
 
 import io
 
-import matplotlib
 import matplotlib.pyplot as plt
 import numpy as np
 import pytest

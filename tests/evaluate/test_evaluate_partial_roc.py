@@ -124,7 +124,7 @@ def test_random_model_has_auc_half_and_ratio_one():
     r = partial_roc(cells, presences, omission=0.05, replicates=300, seed=5)
     # AUC standard error for n = 300 is about sqrt(1/(12*300)) = 0.017
     assert abs(r.auc - 0.5) < 0.05
-    assert abs(r.statistic - 1.0) < 0.1
+    assert abs(r.statistic - 1.0) < 0.03  # the bootstrap 95 % interval here is about 0.03 wide
     assert r.pvalue > 0.05
 
 
