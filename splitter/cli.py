@@ -253,6 +253,101 @@ def evaluate(
         raise typer.Exit(1)
 
 
+@app.command("range")
+@guarded
+def range_command(
+    env: List[Path] = typer.Option(..., "--env", help="Covariate GeoTIFF (repeatable)."),
+    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file limiting the sample."),
+    sample: int = typer.Option(2000, "--sample", help="Cells sampled (by area) for the variograms."),
+    seed: int = typer.Option(0, "--seed", help="Seed for the cell sample."),
+    out_dir: Path = typer.Option(..., "--out", help="Output folder."),
+):
+    """Estimate the covariates' autocorrelation range and suggest a block size."""
+    from splitter.io.results import write_range
+    from splitter.rangefinder import estimate_range_from_rasters
+
+    with progress() as bar:
+        bar.add_task("sampling cells and fitting variograms", total=None)
+        est = estimate_range_from_rasters(env, sample=sample, seed=seed, region=region)
+        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, "env": [str(p) for p in env]})
+    t = Table(title="autocorrelation range per covariate", title_justify="left")
+    for c in ("covariate", "model", "range km", "sill", "nugget", "r2", "chosen"):
+        t.add_column(c, justify="left" if c in ("covariate", "model") else "right")
+    for r in est.to_frame().itertuples():
+        t.add_row(r.covariate, r.model, f"{r.range_km:.1f}", f"{r.sill:.3g}", f"{r.nugget:.3g}", f"{r.r2:.3f}", "yes" if r.chosen else "")
+    out.print(t)
+    out.print(f"suggested block size: {est.suggested_block_km:.1f} km ({est.summary_rule})")
+    for role, p in paths.items():
+        out.print(f"{role}: {p}")
+
+
+def _rule_names(reasons) -> str:
+    """'distance: 99% ...; collection method: ...' -> 'distance, collection method'."""
+    if not reasons or reasons != reasons:
+        return ""
+    return ", ".join(part.split(":")[0].strip() for part in str(reasons).split(";") if part.strip())
+
+
+def audit_table(result) -> Table:
+    t = Table(title=f"residual dependence per fold: {result.verdict}", title_justify="left")
+    for c in ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D", "outside env.", "shared method", "verdict", "why"):
+        t.add_column(c, justify="left" if c in ("fold", "verdict", "why") else "right")
+    f = result.to_frame()
+    num = lambda v, d=2: "-" if v is None or v != v else f"{v:.{d}f}"
+    for r in f.itertuples():
+        t.add_row(str(r.fold), str(r.n_evaluation), num(r.nn_median_km, 1), num(r.share_within_range), num(r.wasserstein_km, 1),
+                  num(r.schoener_d), num(r.share_outside_envelope), num(r.shared_method_share), r.verdict, _rule_names(r.reasons))
+    return t
+
+
+@app.command()
+@guarded
+def audit(
+    table: Path = typer.Argument(..., help="Fold table: ours, or your own with a fold or role column."),
+    fold_column: str = typer.Option("fold", "--fold-column", help="Column with fold numbers or names."),
+    role_column: Optional[str] = typer.Option(None, "--role-column", help="Column saying calibration/evaluation (instead of folds)."),
+    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
+    range_km: Optional[float] = typer.Option(None, "--range-km", help="Autocorrelation range in km."),
+    range_from: Optional[Path] = typer.Option(None, "--range-from", help="Folder written by 'splitter range'."),
+    group_column: Optional[str] = typer.Option(None, "--group-column", help="Survey method / source column."),
+    region: Optional[Path] = typer.Option(None, "--region", help="Polygon of the prediction region."),
+    x: Optional[str] = typer.Option(None, "--x", help="Longitude / easting column."),
+    y: Optional[str] = typer.Option(None, "--y", help="Latitude / northing column."),
+    crs: Optional[str] = typer.Option(None, "--crs", help="CRS of the coordinates."),
+    id_column: Optional[str] = typer.Option(None, "--id-column", help="Record id column."),
+    kind_column: Optional[str] = typer.Option(None, "--kind-column", help="presence/absence/background column."),
+    seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample."),
+    fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'dependent': exit 1 when any fold is flagged."),
+    out_dir: Path = typer.Option(..., "--out", help="Output folder."),
+):
+    """Audit a split for residual dependence between calibration and evaluation data."""
+    from splitter.auditor import audit as run_audit
+    from splitter.io.foldtable import read_fold_table
+    from splitter.io.results import write_audit
+
+    if fail_on not in (None, "dependent"):
+        raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
+    _, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
+                                           x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    with progress() as bar:
+        bar.add_task("measuring distances and environmental overlap", total=None)
+        result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,
+                                    group_column=group_column, region=region, seed=seed, fold_names=names)
+        paths = write_audit(result, context, out_dir)
+    out.print(audit_table(result))
+    out.print("rules (conventions; a fold is dependent when any applicable rule fires):")
+    for r in result.rules:
+        out.print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']})")
+    rk = context.get("range_km")
+    out.print(f"autocorrelation range: {'not given' if rk is None else f'{rk:.1f} km'} ({context.get('range_source') or 'no range: distance rule not applied'})")
+    for n in context.get("notes", []):
+        out.print(f"note: {n}")
+    for role, p in paths.items():
+        out.print(f"{role}: {p}")
+    if fail_on == "dependent" and any(v == "dependent" for v in result.verdicts):
+        raise typer.Exit(1)
+
+
 def run():  # pragma: no cover - console entry for python -m
     app()
 

@@ -162,30 +162,45 @@ class PartialROCResult:
 # ----------------------------------------------------------------------------- checks
 
 
+def _as_values(values) -> np.ndarray:
+    # Keep float32 rasters as they are (no 10^7-element copy); everything else is
+    # read as float64. Comparisons are later made in float64, where float32 is exact.
+    arr = np.asarray(values)
+    if arr.dtype.kind != "f":
+        arr = arr.astype(np.float64)
+    return arr.ravel()
+
+
 def _check_inputs(cell_values, presence_scores, cell_weights):
-    v = np.asarray(cell_values, dtype=float).ravel()
-    s = np.asarray(presence_scores, dtype=float).ravel()
+    v = _as_values(cell_values)
+    s = np.asarray(presence_scores, dtype=np.float64).ravel()
     if v.size == 0:
         raise InputError("No cell values were given; the testing region has no valid cells.")
     if s.size == 0:
         raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
-    if not np.all(np.isfinite(v)):
+    # min and max propagate NaN and show infinities: two fast reductions instead of
+    # an isfinite mask over every cell.
+    vmin, vmax = v.min(), v.max()
+    if not (np.isfinite(vmin) and np.isfinite(vmax)):
         raise InputError("Some cell values are missing or infinite; drop nodata cells before the partial ROC.")
     if not np.all(np.isfinite(s)):
         raise InputError("Some evaluation presence scores are missing or infinite; drop those records first.")
     w = None
     if cell_weights is not None:
-        w = np.asarray(cell_weights, dtype=float).ravel()
+        w = np.asarray(cell_weights, dtype=np.float64).ravel()
         if w.shape != v.shape:
             raise InputError(f"Got {w.size} cell weights for {v.size} cell values; give one weight per cell.")
-        if not np.all(np.isfinite(w)) or np.any(w < 0):
+        wmin, total = w.min(), w.sum()
+        if not (np.isfinite(total) and wmin >= 0):
             raise InputError("Cell weights must be finite and not negative.")
-        if not np.any(w > 0):
+        if total <= 0:
             raise InputError("Cell weights sum to zero; give cell areas.")
+        if wmin == 0:
+            live = v[w > 0]
+            vmin, vmax = live.min(), live.max()
     # All-equal cells leave nothing to rank: every threshold selects all or none of
     # the region, so the curve says nothing about the model.
-    live = v if w is None else v[w > 0]
-    if live.min() == live.max():
+    if vmin == vmax:
         raise InputError(
             "All cell values of the testing region are equal, so the prediction does not rank "
             "the region; check the prediction raster for this fold."
@@ -230,29 +245,77 @@ class _Prepared:
     n_cells: int
 
 
+def _bucket(x: np.ndarray, low: float, scale: float, buckets: int) -> np.ndarray:
+    """Monotone bucket number in -1..buckets (shifted to 0..buckets+1) of float values.
+
+    Every step (subtract, multiply, clip, floor) is monotone in floating point, so
+    x1 <= x2 implies bucket(x1) <= bucket(x2); that is all the exactness needs.
+    """
+    y = np.subtract(x, low, dtype=np.float64)
+    y *= scale
+    np.clip(y, -1.0, float(buckets), out=y)  # before the cast: huge values stay finite
+    np.floor(y, out=y)
+    return y.astype(np.intp) + 1
+
+
 def _prepare(v: np.ndarray, s: np.ndarray, w: np.ndarray | None) -> _Prepared:
-    """The single pass over the cells."""
+    """The single pass over the cells.
+
+    Each cell gets key = number of edges <= its value, where the edges interleave
+    the distinct presence values u_j with their next float up, u_j+:
+    [u_0, u_0+, u_1, u_1+, ...]. So key = 2j for a cell strictly between u_{j-1}
+    and u_j, 2j + 1 for a cell equal to u_j, and 2d above all presences; one
+    weighted bincount of the keys then gives the area below and tied with every
+    presence value.
+
+    A plain binary search per cell costs ~10 mispredicted branches, so the key is
+    found through a lookup table on a fine monotone bucketing of the value range:
+    a cell whose bucket holds no edge takes the table's key exactly (edges in
+    lower buckets are below it, edges in higher buckets above); only cells sharing
+    a bucket with an edge (about d / buckets of them for continuous predictions)
+    are binary-searched. The cells are processed in blocks to stay in cache.
+    """
     u, inverse = np.unique(s, return_inverse=True)  # ascending distinct presence values
     d = u.size
-    # pos = number of distinct presence values strictly below the cell value.
-    pos = np.searchsorted(u, v, side="left")
-    # A cell equals u[pos] when pos < d and the values match; pos == d means the
-    # cell is above every presence (u[d - 1] < v, so the comparison is False).
-    tie = u[np.minimum(pos, d - 1)] == v
-    # Bins in ascending order of value: 2j = strictly between u[j-1] and u[j],
-    # 2j + 1 = equal to u[j], 2d = above all presences.
-    key = 2 * pos + tie
-    if w is None:
-        mass = np.bincount(key, minlength=2 * d + 1).astype(float)
-        n_cells = v.size
-    else:
-        mass = np.bincount(key, weights=w, minlength=2 * d + 1)
-        n_cells = int(np.count_nonzero(w > 0))
+    edges = np.column_stack([u, np.nextafter(u, np.inf)]).ravel()
+    n_keys = 2 * d + 1
+    low = float(edges[0])
+    span = float(edges[-1]) - low  # > 0: u_0+ > u_0
+    buckets = int(min(1 << 20, max(1 << 16, 64 * n_keys)))
+    with np.errstate(over="ignore", divide="ignore"):
+        scale = buckets / span
+    use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
+    if use_table:
+        edge_bucket = _bucket(edges, low, scale, buckets)
+        table = np.searchsorted(edge_bucket, np.arange(buckets + 2), side="left")  # edges in lower buckets
+        shared = np.zeros(buckets + 2, dtype=bool)
+        shared[edge_bucket] = True
+
+    mass = np.zeros(n_keys)
+    block = 1 << 18
+    for start in range(0, v.size, block):
+        vb = v[start : start + block]
+        if use_table:
+            with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
+                b = _bucket(vb, low, scale, buckets)
+            key = table[b]
+            near = np.flatnonzero(shared[b])
+            if near.size:
+                key[near] = np.searchsorted(edges, vb[near].astype(np.float64), side="right")
+        else:
+            # Presence values span less than ~1e-300, or more than the float range:
+            # a plain binary search for every cell.
+            key = np.searchsorted(edges, vb.astype(np.float64), side="right")
+        if w is None:
+            mass += np.bincount(key, minlength=n_keys)
+        else:
+            mass += np.bincount(key, weights=w[start : start + block], minlength=n_keys)
+    n_cells = v.size if w is None else int(np.count_nonzero(w))
     mass /= mass.sum()
     cum = np.cumsum(mass)
     # Prefix sums of non-negative masses are exactly 0 below the lowest cell, which
     # the degenerate-case handling relies on.
-    below = cum[0 : 2 * d : 2]  # cum[2j] = mass of bins 0..2j, i.e. of cells < u[j]
+    below = cum[0 : 2 * d : 2]  # cum[2j] = mass of keys 0..2j, i.e. of cells < u[j]
     tied = mass[1 : 2 * d : 2]
     # Flip to descending order of value: the curve is traced from the top threshold down.
     order = np.arange(d)[::-1]

@@ -43,3 +43,37 @@ def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
         figs += save(fig, out_dir / "figures" / f"roc_fold_{f.row['fold']}")
     paths["figures"] = out_dir / "figures"
     return paths
+
+
+def write_range(estimate, out_dir, extra: dict | None = None, chosen_block_km=None) -> dict:
+    """range.csv, range.json (with suggested_block_km) and the variogram figure."""
+    from splitter.dependence.figures import plot_variogram
+    from splitter.report.style import save
+
+    out_dir = Path(out_dir)
+    paths = {"table": write_csv(estimate.to_frame(), out_dir / "range.csv")}
+    doc = estimate.to_dict()
+    doc["suggested_block_km"] = float(estimate.suggested_block_km)
+    if extra:
+        doc.update(extra)
+    paths["json"] = write_json(doc, out_dir / "range.json")
+    fig = plot_variogram(estimate, chosen_block_km=chosen_block_km or estimate.suggested_block_km)
+    paths["figure"] = save(fig, out_dir / "variogram")[0]
+    return paths
+
+
+def write_audit(result, context: dict, out_dir) -> dict:
+    """audit.csv, audit.json and the nearest-neighbour distance ECDF figure."""
+    from splitter.dependence.figures import plot_distance_ecdf
+    from splitter.report.style import save
+
+    out_dir = Path(out_dir)
+    paths = {"table": write_csv(result.to_frame(), out_dir / "audit.csv")}
+    doc = result.to_dict()
+    doc["context"] = {k: v for k, v in context.items() if k != "range_estimate"}
+    paths["json"] = write_json(doc, out_dir / "audit.json")
+    fig = plot_distance_ecdf(result.distance, range_km=context.get("range_km"))
+    paths["figure"] = save(fig, out_dir / "distance_ecdf")[0]
+    if context.get("range_estimate") is not None:
+        paths["range"] = write_range(context["range_estimate"], out_dir / "range")["json"]
+    return paths

@@ -1,0 +1,111 @@
+"""Audit a split: residual dependence between calibration and evaluation presences."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import numpy as np
+
+from splitter.dependence.audit import AuditResult, audit_split
+from splitter.errors import InputError
+from splitter.partition.assignment import FoldAssignment
+
+
+def audit(
+    assignment: FoldAssignment,
+    *,
+    env=(),
+    range_km: float | None = None,
+    range_from=None,
+    group_column: str | None = None,
+    region=None,
+    prediction_sample: int = 2000,
+    seed: int = 0,
+    fold_names: dict | None = None,
+    min_evaluation: int = 5,
+) -> tuple[AuditResult, dict]:
+    """Measure how independent each fold's evaluation presences are.
+
+    Distances run from each evaluation presence to the nearest calibration
+    presence of the same fold (buffer gaps respected). The autocorrelation
+    range comes from ``range_km``, from ``range_from`` (a ``splitter range``
+    output folder), or is estimated from the ``env`` rasters. Prediction
+    locations, for the Wasserstein-1 comparison, are a seeded sample over the
+    rasters' valid cells (or the ``region`` polygon).
+
+    Returns
+    -------
+    AuditResult, and a dict of context (range source, notes, range estimate or None)
+    """
+    if assignment.records is None:
+        raise InputError("the fold assignment carries no records; build it with splitter.design or splitter.read_fold_table.")
+    recs = assignment.records
+    env = [str(p) for p in (env or ())]
+    notes: list[str] = []
+    context: dict = {"range_source": None, "notes": notes, "range_estimate": None}
+    if range_km is not None and range_from is not None:
+        raise InputError("give --range-km or --range-from, not both.")
+    if range_km is not None:
+        if not range_km > 0:
+            raise InputError(f"--range-km {range_km}: give a positive distance in km.")
+        context["range_source"] = "given"
+    elif range_from is not None:
+        p = Path(range_from)
+        p = p / "range.json" if p.is_dir() else p
+        if not p.exists():
+            raise InputError(f"--range-from {range_from}: no range.json there; run 'splitter range' first.")
+        range_km = float(json.loads(p.read_text())["suggested_block_km"])
+        context["range_source"] = f"{p}"
+    elif env:
+        from splitter.rangefinder import estimate_range_from_rasters
+
+        est = estimate_range_from_rasters(env, seed=seed, region=region)
+        range_km = float(est.suggested_block_km)
+        context["range_source"] = "estimated from --env rasters"
+        context["range_estimate"] = est
+    context["range_km"] = range_km
+
+    kind = assignment.kind
+    pres = kind == "presence"
+    cal = [assignment.calibration(i)[pres[assignment.calibration(i)]] for i in assignment.folds]
+    ev = [assignment.evaluation(i)[pres[assignment.evaluation(i)]] for i in assignment.folds]
+    names = fold_names or {i: str(i) for i in assignment.folds}
+    labels = [names.get(i, str(i)) for i in assignment.folds]
+
+    env_matrix = env_reference = None
+    env_names = None
+    prediction_points = None
+    reg = None
+    if region is not None:
+        from splitter.io.rasters import read_region
+
+        reg = read_region(region) if isinstance(region, (str, Path)) else region
+    if env:
+        from splitter.io.rasters import sample_rasters, sample_valid_locations
+
+        env_matrix, n2 = sample_rasters(env, recs.points)
+        notes.extend(n2)
+        env_names = [Path(p).stem for p in env]
+        bg = (assignment.fold >= 0) & (kind == "background")
+        if bg.sum() >= 20:
+            env_reference = env_matrix[bg]
+        prediction_points = sample_valid_locations(env, prediction_sample, seed, region=reg)
+        context["prediction_locations"] = f"{prediction_sample} locations sampled by area over the rasters' valid cells (seed {seed})"
+    elif reg is not None:
+        from splitter.design import sample_in_polygon
+
+        prediction_points = sample_in_polygon(region, prediction_sample, seed)
+        context["prediction_locations"] = f"{prediction_sample} locations sampled by area inside the region (seed {seed})"
+    groups = None
+    if group_column:
+        if group_column not in recs.table.columns:
+            raise InputError(f"--group-column {group_column}: no such column; columns are: {', '.join(map(str, recs.table.columns))}.")
+        groups = recs.table[group_column].astype(str).str.strip().to_numpy(object)
+        context["group_column"] = group_column
+    result = audit_split(
+        recs.points, cal, ev, fold_labels=labels, env=env_matrix, env_names=env_names,
+        env_reference=env_reference, groups=groups, range_km=range_km,
+        prediction_points=prediction_points, min_evaluation=min_evaluation,
+    )
+    return result, context
