@@ -55,6 +55,13 @@ def guarded(fn):
     return wrapper
 
 
+def command_line() -> str:
+    """The command as typed, for the reproducibility record."""
+    import shlex
+
+    return "splitter " + shlex.join(sys.argv[1:])
+
+
 def progress() -> Progress:
     return Progress(SpinnerColumn(), TextColumn("{task.description}"), TimeElapsedColumn(),
                     console=err, transient=True, disable=not err.is_terminal)
@@ -144,7 +151,7 @@ def design(
             evaluate_on=evaluate_on, seed=seed,
         )
         bar.add_task("writing outputs", total=None)
-        paths = write_design(assignment, out_path)
+        paths = write_design(assignment, out_path, command=command_line())
     _print_design(assignment, paths)
 
 
@@ -241,7 +248,7 @@ def evaluate(
             seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
             progress=lambda: bar.advance(task),
         )
-        paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table)})
+        paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table), "command": command_line()})
     out.print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
     for w in result.warnings:
         out.print(f"warning: {w}")
@@ -269,7 +276,7 @@ def range_command(
     with progress() as bar:
         bar.add_task("sampling cells and fitting variograms", total=None)
         est = estimate_range_from_rasters(env, sample=sample, seed=seed, region=region)
-        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, "env": [str(p) for p in env]})
+        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, "env": [str(p) for p in env], "command": command_line()})
     t = Table(title="autocorrelation range per covariate", title_justify="left")
     for c in ("covariate", "model", "range km", "sill", "nugget", "r2", "chosen"):
         t.add_column(c, justify="left" if c in ("covariate", "model") else "right")
@@ -333,6 +340,7 @@ def audit(
         bar.add_task("measuring distances and environmental overlap", total=None)
         result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,
                                     group_column=group_column, region=region, seed=seed, fold_names=names)
+        context["command"] = command_line()
         paths = write_audit(result, context, out_dir)
     out.print(audit_table(result))
     out.print("rules (conventions; a fold is dependent when any applicable rule fires):")
@@ -346,6 +354,70 @@ def audit(
         out.print(f"{role}: {p}")
     if fail_on == "dependent" and any(v == "dependent" for v in result.verdicts):
         raise typer.Exit(1)
+
+
+@app.command()
+@guarded
+def appendix(
+    run_dir: Path = typer.Argument(..., help="A run folder (a split with its audit/ and evaluation/), or a folder of several."),
+    out_dir: Path = typer.Option(..., "--out", help="Output folder for the appendix."),
+    generalise: Optional[float] = typer.Option(None, "--generalise", help="Snap every coordinate in the appendix to a grid of KM km (sensitive species)."),
+):
+    """Write a methods appendix (Markdown, self-contained HTML, CSV tables, PNG/SVG figures)."""
+    from splitter.report.appendix import build_appendix
+
+    if not run_dir.is_dir():
+        raise InputError(f"{run_dir}: not a folder; give the folder that holds the run's fold table, audit/ and evaluation/.")
+    if generalise is not None and not generalise > 0:
+        raise InputError(f"--generalise {generalise}: give a grid size in km greater than 0.")
+    with progress() as bar:
+        bar.add_task("writing the appendix", total=None)
+        result = build_appendix(run_dir, out_dir, generalise_km=generalise)
+    out.print(f"appendix: {result.html}")
+    out.print(f"markdown: {result.markdown}")
+    out.print(f"tables: {len(result.tables)} CSV, figures: {len(result.figures)} files in {out_dir}")
+
+
+@app.command()
+@guarded
+def demo(
+    out_dir: Path = typer.Argument(Path("splitter-demo"), help="Where to write the demo run."),
+    seed: int = typer.Option(1, "--seed", help="Seed for every random step."),
+    replicates: int = typer.Option(1000, "--replicates", help="Partial ROC bootstrap replicates."),
+):
+    """Run the whole job on the bundled invented scenario: range, folds, audit, evaluation, appendix."""
+    from splitter.demo import run_demo
+
+    with progress() as bar:
+        task = bar.add_task("starting", total=None)
+        run = run_demo(out_dir, seed=seed, replicates=replicates, step=lambda s: bar.update(task, description=s))
+    out.print(demo_summary(run))
+    out.print(f"autocorrelation range (blocks and buffer): {run.range_km:.1f} km")
+    out.print(f"outputs: {run.out_dir}")
+    out.print(f"appendix: {run.appendix.html}")
+
+
+def demo_summary(run) -> Table:
+    names = list(run.splits)
+    t = Table(title="demo: spatial blocks against a random split", title_justify="left")
+    t.add_column("fold", justify="right")
+    for n in names:
+        t.add_column(f"{n}: audit", justify="left")
+        t.add_column(f"{n}: NN km", justify="right")
+        t.add_column(f"{n}: significance", justify="left")
+        t.add_column(f"{n}: AUC ratio", justify="right")
+    k = max(len(s["audit"].verdicts) for s in run.splits.values())
+    for i in range(k):
+        cells = [str(i + 1)]
+        for n in names:
+            a, e = run.splits[n]["audit"], run.splits[n]["evaluation"]
+            row = e.folds[i].row
+            nn = a.to_frame()["nn_median_km"].iloc[i]
+            cells += [a.verdicts[i], f"{nn:.1f}", "significant" if row["significant"] else "do not interpret",
+                      f"{row['auc_ratio_mean']:.3f}" if row["significant"] else "-"]
+        t.add_row(*cells)
+    t.caption = "NN km: median distance from evaluation presences to the nearest calibration presence"
+    return t
 
 
 def run():  # pragma: no cover - console entry for python -m

@@ -106,7 +106,7 @@ def design_summary(assignment: FoldAssignment) -> dict:
     }
 
 
-def write_design(assignment: FoldAssignment, out) -> dict:
+def write_design(assignment: FoldAssignment, out, command: str | None = None) -> dict:
     """Write the fold table, its gaps file (with a buffer) and the design sidecar.
 
     Returns the paths written, by role.
@@ -123,6 +123,8 @@ def write_design(assignment: FoldAssignment, out) -> dict:
     side = companion(out, ".design.json")
     summary = design_summary(assignment)
     summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
+    if command:
+        summary["command"] = command
     with atomic_write(side, "w") as f:
         f.write(to_json(summary))
     paths["design"] = side

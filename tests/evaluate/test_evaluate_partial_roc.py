@@ -74,6 +74,56 @@ def test_vectorised_bootstrap_equals_plain_reference(omission, weighted):
     assert r.auc_ratio == pytest.approx(observed[0], abs=1e-12)
 
 
+def _float_traps(seed):
+    # Invented values that are hard on the one-pass cell lookup: float32 cells, presences
+    # equal to cells, presences one float64 step away from cells, clusters of presences
+    # far closer than the lookup's bucket width, and cells far outside the presences' range.
+    rng = np.random.default_rng(seed)
+    cells = rng.random(5000).astype(np.float32)
+    cells[:50] = np.float32(0.5)
+    cells[50:60] = np.float32(3e38)
+    cells[60:70] = np.float32(-3e38)
+    exact = cells[rng.integers(0, 5000, 30)].astype(np.float64)
+    near = np.nextafter(exact[:10], np.inf)
+    cluster = 0.5 + np.arange(12) * 1e-15
+    presences = np.r_[exact, near, np.nextafter(exact[10:20], -np.inf), cluster]
+    weights = rng.uniform(0.5, 2.0, cells.size)
+    return cells, weights, presences
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_cell_lookup_is_exact_on_float_traps(seed):
+    cells, weights, presences = _float_traps(seed)
+    r = partial_roc(cells, presences, weights, omission=0.1, replicates=40, seed=seed)
+    # reference: sklearn roc_auc_score with cell weights (float64 comparisons of all values)
+    assert r.auc == pytest.approx(_sklearn_auc(cells.astype(np.float64), presences, weights), abs=1e-12)
+    n = presences.size
+    idx = np.random.default_rng(seed).integers(0, n, size=(40, int(np.floor(0.5 * n + 0.5))))
+    ref = partial_roc_reference(cells, presences, idx, weights, omission=0.1)  # reference: plain polyline
+    np.testing.assert_allclose(r.ratios, ref, rtol=0, atol=1e-12)
+
+
+@pytest.mark.parametrize(
+    "presences",
+    [
+        np.array([0.0, 5e-324, 5e-324]),  # presence values spanning one subnormal step
+        np.array([-1e308, 0.3, 1e308]),  # a span beyond the float range
+    ],
+)
+def test_cell_lookup_extreme_spans(presences):
+    cells = np.r_[np.linspace(-1.0, 1.0, 101), 0.0, 5e-324, -1e308, 1e308]
+    curve = roc_curve_area(cells, presences)
+    assert curve.auc == pytest.approx(_sklearn_auc(cells, presences), abs=1e-12)  # reference: sklearn roc_auc_score
+
+
+def test_integer_predictions():
+    rng = np.random.default_rng(4)
+    cells = rng.integers(0, 1000, 4000)  # e.g. suitability stored as 0-1000 integers
+    presences = rng.integers(300, 1000, 80)
+    r = partial_roc(cells, presences, replicates=20)
+    assert r.auc == pytest.approx(_sklearn_auc(cells, presences), abs=1e-12)  # reference: sklearn roc_auc_score
+
+
 def test_hand_integrated_partial_ratio():
     # Five cells of equal area 0.2 at 0.9, 0.7, 0.5, 0.3, 0.1; 20 presences:
     # 10 at 0.9 (tied with a cell), 9 at 0.6 (no cell), 1 at 0.3 (tied with a cell).
