@@ -81,6 +81,7 @@ def audit(
         from splitter.io.rasters import read_region
 
         reg = read_region(region) if isinstance(region, (str, Path)) else region
+        _check_region_holds_records(reg, recs, region)
     if env:
         from splitter.io.rasters import sample_rasters, sample_valid_locations
 
@@ -109,3 +110,13 @@ def audit(
         prediction_points=prediction_points, min_evaluation=min_evaluation,
     )
     return result, context
+
+
+def _check_region_holds_records(reg, recs, label):
+    """A prediction region that misses every record is almost surely a CRS or file mix-up."""
+    import shapely
+
+    kept = recs.kept
+    pts = recs.points.take(np.flatnonzero(kept)).to_crs(reg.crs)
+    if not shapely.contains_xy(reg.geometry, pts.x, pts.y).any():
+        raise InputError(f"{label}: the region polygon contains none of the records; check its extent and CRS.")

@@ -270,6 +270,11 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
     if s_ev_p.size < MIN_PRESENCES:
         fold_warn.append(f"fold {label} has only {s_ev_p.size} evaluation presences; the tests have little power")
     thr = choose_threshold(rule, s_cal_p, s_cal_o if s_cal_o.size else None)
+    lo = min(s_ev_p.min(), s_cal_p.min(), cells.min() if cells is not None else np.inf)
+    hi = max(s_ev_p.max(), s_cal_p.max(), cells.max() if cells is not None else -np.inf)
+    if lo < 0 or hi > 1:
+        fold_warn.append(f"fold {label}: predictions run from {lo:.3g} to {hi:.3g}, outside [0, 1]; "
+                         "only their order is used (ranks), which every test here allows")
 
     if cells is not None:
         area_share = area_predicted(cells, areas, thr.value)
@@ -284,7 +289,8 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
     try:
         proc = partial_roc(ref_values, s_ev_p, ref_weights, omission=omission, replicates=replicates, seed=seed)
     except InputError as e:
-        raise InputError(f"fold {label}: {e}") from None
+        where = f"{path}: " if cells is not None else "prediction table: "
+        raise InputError(f"{where}fold {label}: {str(e)[0].lower()}{str(e)[1:]}") from None
     if s_ev_o.size:
         meas = confusion_measures(s_ev_p, s_ev_o, thr.value, other_kind=other_kind).to_dict()
     else:

@@ -18,7 +18,8 @@ __all__ = ["cell_areas"]
 
 def _authalic_q(phi: np.ndarray, e: float) -> np.ndarray:
     """Snyder's q(phi): the ellipsoidal zone area from the equator to latitude phi,
-    per radian of longitude, is a**2 * q / 2 (Map Projections: A Working Manual, eq. 3-12)."""
+    per radian of longitude, is a**2 * q / 2 ("Map Projections: A Working Manual",
+    U.S. Geological Survey Professional Paper 1395, 1987)."""
     s = np.sin(phi)
     if e == 0.0:
         # Sphere: the zone area per radian is a**2 * sin(phi), i.e. q = 2 sin(phi).

@@ -14,7 +14,7 @@ def write_csv(frame: pd.DataFrame, path) -> Path:
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     with atomic_write(path, "w") as f:
-        frame.to_csv(f, index=False, lineterminator="\n", float_format="%.10g")
+        frame.to_csv(f, index=False, lineterminator="\n")
     return path
 
 

@@ -25,13 +25,13 @@ def _densified_cell(geod_lon0, lon1, lat_top, lat_bottom, steps=200):
 
 def test_rows_match_pyproj_geod_polygon_area():
     areas = cell_areas(TRANSFORM, HEIGHT, WIDTH, "EPSG:4326")
-    assert areas.shape == (HEIGHT,)
+    assert areas.shape == (HEIGHT,)  # contract: one area per row (brief)
     geod = Geod(ellps="WGS84")
     for row in range(0, HEIGHT, 7):
         top = 75.0 - row
         xs, ys = _densified_cell(-5.0, -4.0, top, top - 1.0)
         ref, _ = geod.polygon_area_perimeter(xs, ys)  # reference: pyproj.Geod.polygon_area_perimeter
-        assert areas[row] == pytest.approx(abs(ref) / 1e6, rel=1e-6)
+        assert areas[row] == pytest.approx(abs(ref) / 1e6, rel=1e-6)  # reference: pyproj.Geod
 
 
 def _band_share(crs):
@@ -56,11 +56,11 @@ def test_band_share_on_wgs84_is_close_to_the_zone_formula_and_far_from_cell_coun
     # latitudes enclose about 0.7 % more of the area in this 60-75 N band than on a sphere
     # (0.10416 vs 0.10342), so the tolerance is 1 %, not exact; the exact ellipsoidal check
     # is test_rows_match_pyproj_geod_polygon_area.
-    assert share == pytest.approx(SPHERE_SHARE, rel=1e-2)
+    assert share == pytest.approx(SPHERE_SHARE, rel=1e-2)  # analytic: spherical zone formula
     # Counting cells instead gives 15/75 = 0.2, about twice the true share.
     cell_count_share = band.sum() / HEIGHT
     assert cell_count_share == pytest.approx(0.2)  # analytic: 15 of 75 rows
-    assert abs(cell_count_share - share) > 0.09
+    assert abs(cell_count_share - share) > 0.09  # analytic: 0.2 vs about 0.10
 
 
 def test_whole_hemisphere_matches_ellipsoid_area():
@@ -69,7 +69,7 @@ def test_whole_hemisphere_matches_ellipsoid_area():
     # analytic: half the surface of WGS84 is 2 pi R^2 with its authalic radius
     # R = 6371007.1809 m (recalled from memory), about 255.03 million km^2.
     r_auth = 6371007.1809
-    assert areas[0] == pytest.approx(2 * np.pi * r_auth**2 / 1e6, rel=1e-9)
+    assert areas[0] == pytest.approx(2 * np.pi * r_auth**2 / 1e6, rel=1e-9)  # analytic (radius recalled from memory)
 
 
 def test_bottom_up_raster_gives_same_areas():

@@ -23,11 +23,11 @@ def test_pipeline_is_the_documented_model():
     presence, background = _invented_data()
     model = fit_baseline(presence, background, seed=0)
     steps = [type(step) for _, step in model.steps]
-    assert steps == [StandardScaler, PolynomialFeatures, LogisticRegression]
+    assert steps == [StandardScaler, PolynomialFeatures, LogisticRegression]  # contract: the documented model
     poly = model.named_steps["terms"]
-    assert poly.degree == 2 and poly.include_bias is False
+    assert poly.degree == 2 and poly.include_bias is False  # contract: the documented model
     logistic = model.named_steps["logistic"]
-    assert logistic.class_weight == "balanced" and logistic.C == 1.0
+    assert logistic.class_weight == "balanced" and logistic.C == 1.0  # contract: the documented model
 
 
 def test_presences_score_higher_than_background():
@@ -35,18 +35,18 @@ def test_presences_score_higher_than_background():
     model = fit_baseline(presence, background, seed=0)
     p_pres = predict_suitability(model, presence)
     p_back = predict_suitability(model, background)
-    assert np.all((p_pres >= 0) & (p_pres <= 1)) and np.all((p_back >= 0) & (p_back <= 1))
-    assert p_pres.mean() > p_back.mean()
+    assert np.all((p_pres >= 0) & (p_pres <= 1)) and np.all((p_back >= 0) & (p_back <= 1))  # analytic: probabilities
+    assert p_pres.mean() > p_back.mean()  # common practice: presences score higher on average
     y = np.r_[np.ones(p_pres.size), np.zeros(p_back.size)]
     # reference: sklearn.metrics.roc_auc_score; common practice: AUC > 0.8 is a good model
-    assert roc_auc_score(y, np.r_[p_pres, p_back]) > 0.8
+    assert roc_auc_score(y, np.r_[p_pres, p_back]) > 0.8  # reference: sklearn roc_auc_score
 
 
 def test_same_seed_same_predictions():
     presence, background = _invented_data(3)
     a = predict_suitability(fit_baseline(presence, background, seed=1), background)
     b = predict_suitability(fit_baseline(presence, background, seed=1), background)
-    np.testing.assert_array_equal(a, b)
+    np.testing.assert_array_equal(a, b)  # contract: deterministic for a seed
 
 
 def test_decision_function_only_estimator_gives_ranks():

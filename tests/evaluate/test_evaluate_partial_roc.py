@@ -34,8 +34,8 @@ def _sklearn_auc(cells, presences, weights=None):
 def test_full_auc_equals_weighted_sklearn_auc(seed):
     cells, weights, presences = _landscape(seed)
     r = partial_roc(cells, presences, weights, omission=0.05, replicates=5, seed=seed)
-    assert r.auc == pytest.approx(_sklearn_auc(cells, presences, weights), abs=1e-12)
-    assert roc_curve_area(cells, presences, weights).auc == pytest.approx(r.auc, abs=1e-15)
+    assert r.auc == pytest.approx(_sklearn_auc(cells, presences, weights), abs=1e-12)  # reference: sklearn roc_auc_score
+    assert roc_curve_area(cells, presences, weights).auc == pytest.approx(r.auc, abs=1e-15)  # reference: as above
 
 
 def test_full_auc_equals_mann_whitney_for_equal_weights():
@@ -44,7 +44,7 @@ def test_full_auc_equals_mann_whitney_for_equal_weights():
     # reference: scipy.stats.mannwhitneyu, AUC = U / (n1 n2) ("The meaning and use of the
     # area under a receiver operating characteristic (ROC) curve", Radiology 1982)
     u = stats.mannwhitneyu(presences, cells).statistic
-    assert auc == pytest.approx(u / (presences.size * cells.size), abs=1e-12)
+    assert auc == pytest.approx(u / (presences.size * cells.size), abs=1e-12)  # reference: scipy mannwhitneyu
     assert auc == pytest.approx(_sklearn_auc(cells, presences), abs=1e-12)  # reference: sklearn roc_auc_score
 
 
@@ -69,9 +69,9 @@ def test_vectorised_bootstrap_equals_plain_reference(omission, weighted):
     indices = np.random.default_rng(seed).integers(0, n, size=(replicates, m))
     ref = partial_roc_reference(cells, presences, indices, w, omission=omission)
     # reference: plain per-replicate polyline integration over all cells (vertical strips)
-    np.testing.assert_allclose(r.ratios, ref, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(r.ratios, ref, rtol=0, atol=1e-12)  # reference: plain polyline implementation
     observed = partial_roc_reference(cells, presences, np.arange(n)[None, :], w, omission=omission)
-    assert r.auc_ratio == pytest.approx(observed[0], abs=1e-12)
+    assert r.auc_ratio == pytest.approx(observed[0], abs=1e-12)  # reference: plain polyline implementation
 
 
 def _float_traps(seed):
@@ -100,7 +100,7 @@ def test_cell_lookup_is_exact_on_float_traps(seed):
     n = presences.size
     idx = np.random.default_rng(seed).integers(0, n, size=(40, int(np.floor(0.5 * n + 0.5))))
     ref = partial_roc_reference(cells, presences, idx, weights, omission=0.1)  # reference: plain polyline
-    np.testing.assert_allclose(r.ratios, ref, rtol=0, atol=1e-12)
+    np.testing.assert_allclose(r.ratios, ref, rtol=0, atol=1e-12)  # reference: plain polyline implementation
 
 
 @pytest.mark.parametrize(
@@ -155,15 +155,16 @@ def test_limit_when_too_many_presences_score_below_every_cell():
     cells = np.array([0.9, 0.7, 0.5, 0.3, 0.1])
     presences = np.r_[np.full(8, 0.6), 0.0, 0.0]
     r = partial_roc(cells, presences, omission=0.05, replicates=50, seed=1)
-    assert r.auc_ratio == pytest.approx(0.8, abs=1e-12)
+    assert r.auc_ratio == pytest.approx(0.8, abs=1e-12)  # analytic: limit above
     n, m = 10, 5
     idx = np.random.default_rng(1).integers(0, n, size=(50, m))
+    # reference: plain polyline implementation
     np.testing.assert_allclose(r.ratios, partial_roc_reference(cells, presences, idx, omission=0.05), atol=1e-12)
     # analytic: a replicate that drew k >= 1 of the low presences (k/5 > E) has the limit
     # (5 - k)/5; one that drew none has x0 = 0.4 and ratio 0.6 / 0.42 (all at 0.6).
     k = (presences[idx] == 0.0).sum(axis=1)
     expected = np.where(k > 0, (m - k) / m, 0.6 / 0.42)
-    np.testing.assert_allclose(r.ratios, expected, atol=1e-12)
+    np.testing.assert_allclose(r.ratios, expected, atol=1e-12)  # analytic: see above
 
 
 def test_random_model_has_auc_half_and_ratio_one():
@@ -173,9 +174,9 @@ def test_random_model_has_auc_half_and_ratio_one():
     presences = rng.choice(cells, 300, replace=False)  # presences placed at random in the region
     r = partial_roc(cells, presences, omission=0.05, replicates=300, seed=5)
     # AUC standard error for n = 300 is about sqrt(1/(12*300)) = 0.017
-    assert abs(r.auc - 0.5) < 0.05
+    assert abs(r.auc - 0.5) < 0.05  # common practice: AUC 0.5 for no skill
     assert abs(r.statistic - 1.0) < 0.03  # the bootstrap 95 % interval here is about 0.03 wide
-    assert r.pvalue > 0.05
+    assert r.pvalue > 0.05  # common practice: no skill is not significant
 
 
 def test_perfect_model_reaches_the_maximum_two():
@@ -184,9 +185,9 @@ def test_perfect_model_reaches_the_maximum_two():
     for omission in (0.0, 0.05, 1.0):
         r = partial_roc(cells, presences, omission=omission, replicates=100)
         # analytic: x0 = 0 and y = 1 on (0, 1], so model area 1 over null 1/2
-        assert r.auc_ratio == pytest.approx(2.0, abs=1e-12)
-        assert r.statistic == pytest.approx(2.0, abs=1e-12)
-        assert r.pvalue == 0.0
+        assert r.auc_ratio == pytest.approx(2.0, abs=1e-12)  # analytic: see above
+        assert r.statistic == pytest.approx(2.0, abs=1e-12)  # analytic: every replicate is perfect too
+        assert r.pvalue == 0.0  # analytic: no replicate has ratio <= 1
     assert r.auc == pytest.approx(1.0)  # analytic
 
 
@@ -200,8 +201,8 @@ def test_ratio_never_exceeds_two():
         for omission in (1.0, 0.05, 0.0):
             r = partial_roc(cells, presences, omission=omission, replicates=50, seed=int(rng.integers(1000)))
             # analytic: y <= 1 so model area <= 1 - x0 and ratio <= 2 / (1 + x0) <= 2
-            assert np.all(r.ratios <= 2.0 + 1e-12)
-            assert r.auc_ratio <= 2.0 + 1e-12
+            assert np.all(r.ratios <= 2.0 + 1e-12)  # analytic: see above
+            assert r.auc_ratio <= 2.0 + 1e-12  # analytic: see above
 
 
 def test_only_ranks_matter():
@@ -212,33 +213,33 @@ def test_only_ranks_matter():
     a = partial_roc(cells, presences, weights, replicates=40, seed=8)
     b = partial_roc(ranks[: cells.size], ranks[cells.size :], weights, replicates=40, seed=8)
     # analytic: the curve depends only on the order of values, which dense ranks keep
-    np.testing.assert_allclose(a.ratios, b.ratios, rtol=0, atol=1e-12)
-    assert a.auc == pytest.approx(b.auc, abs=1e-12)
+    np.testing.assert_allclose(a.ratios, b.ratios, rtol=0, atol=1e-12)  # analytic: see above
+    assert a.auc == pytest.approx(b.auc, abs=1e-12)  # analytic: see above
 
 
 def test_curve_is_exact_and_monotone():
     cells, weights, presences = _landscape(1)
     c = roc_curve_area(cells, presences, weights)
-    assert c.x[0] == 0.0 and c.y[0] == 0.0 and c.x[-1] == 1.0 and c.y[-1] == 1.0
-    assert np.all(np.diff(c.x) >= -1e-15) and np.all(np.diff(c.y) >= 0)
+    assert c.x[0] == 0.0 and c.y[0] == 0.0 and c.x[-1] == 1.0 and c.y[-1] == 1.0  # analytic: ROC ends
+    assert np.all(np.diff(c.x) >= -1e-15) and np.all(np.diff(c.y) >= 0)  # analytic: shares grow as t falls
     # reference: numpy trapezoid over the vertices = the weighted AUC (sklearn roc_auc_score)
-    assert np.trapezoid(c.y, c.x) == pytest.approx(_sklearn_auc(cells, presences, weights), abs=1e-12)
+    assert np.trapezoid(c.y, c.x) == pytest.approx(_sklearn_auc(cells, presences, weights), abs=1e-12)  # reference: see above
 
 
 def test_result_fields_and_determinism():
     cells, weights, presences = _landscape(2, n_pres=5)
     r = partial_roc(cells, presences, weights, replicates=200, seed=4)
     assert r.sample_size == 3  # analytic: 0.5 * 5 = 2.5 rounds half up to 3
-    assert r.ratios.shape == (200,)
+    assert r.ratios.shape == (200,)  # contract: one ratio per replicate
     assert r.statistic == pytest.approx(r.ratios.mean())  # analytic: definition
     assert r.pvalue == pytest.approx(np.mean(r.ratios <= 1))  # analytic: definition
     assert (r.ratio_low, r.ratio_high) == tuple(np.percentile(r.ratios, [2.5, 97.5]))  # reference: numpy percentile
     d = r.to_dict()
-    assert all(np.isscalar(v) for v in d.values())
+    assert all(np.isscalar(v) for v in d.values())  # contract: arrays kept out of to_dict
     again = partial_roc(cells, presences, weights, replicates=200, seed=4)
-    np.testing.assert_array_equal(r.ratios, again.ratios)
+    np.testing.assert_array_equal(r.ratios, again.ratios)  # contract: same seed, same result
     other = partial_roc(cells, presences, weights, replicates=200, seed=5)
-    assert not np.array_equal(r.ratios, other.ratios)
+    assert not np.array_equal(r.ratios, other.ratios)  # contract: the seed is used
 
 
 def test_zero_weight_cells_are_ignored():
@@ -247,7 +248,7 @@ def test_zero_weight_cells_are_ignored():
     a = partial_roc(cells, presences, weights, replicates=30, seed=2)
     b = partial_roc(cells[500:], presences, weights[500:], replicates=30, seed=2)
     np.testing.assert_allclose(a.ratios, b.ratios, atol=1e-12)  # analytic: zero area adds nothing
-    assert a.n_cells == cells.size - 500
+    assert a.n_cells == cells.size - 500  # analytic: 500 cells have zero area
 
 
 @pytest.mark.parametrize(

@@ -11,6 +11,7 @@ from splitter.evaluate import Threshold, ThresholdRule, choose_threshold
 
 
 def test_parse_accepts_the_four_rules():
+    # contract: the four text forms of DESIGN §4 "Thresholds"
     assert ThresholdRule.parse("lowest") == ThresholdRule("lowest")
     assert ThresholdRule.parse(" Quantile:0.1 ") == ThresholdRule("quantile", 0.1)
     assert ThresholdRule.parse("value:0.3") == ThresholdRule("value", 0.3)
@@ -37,7 +38,7 @@ def test_rule_is_frozen():
 def test_signature_takes_no_evaluation_predictions():
     # The threshold cannot depend on evaluation data because it cannot receive them.
     params = list(inspect.signature(choose_threshold).parameters)
-    assert params == ["rule", "calibration_presence", "calibration_background"]
+    assert params == ["rule", "calibration_presence", "calibration_background"]  # contract: DESIGN §4
 
 
 def test_threshold_ignores_evaluation_data_and_order():
@@ -50,7 +51,7 @@ def test_threshold_ignores_evaluation_data_and_order():
     for _ in range(3):
         _evaluation = rng.random(50)  # a new evaluation set each time, never passed in
         again = choose_threshold("max-tss", rng.permutation(calib), rng.permutation(background))
-        assert again == first
+        assert again == first  # analytic: depends on the calibration sets only
 
 
 def test_lowest_and_value():
@@ -65,7 +66,7 @@ def test_quantile_uses_numpy_lower_method():
     for q in (0.0, 0.05, 0.1, 0.5, 0.9):
         got = choose_threshold(f"quantile:{q}", calib).value
         # reference: numpy.quantile(method="lower")
-        assert got == np.quantile(calib, q, method="lower")
+        assert got == np.quantile(calib, q, method="lower")  # reference: numpy.quantile
 
 
 def test_quantile_omits_at_most_share_q():
@@ -76,14 +77,14 @@ def test_quantile_omits_at_most_share_q():
             t = choose_threshold(f"quantile:{q}", calib).value
             omitted = np.mean(calib < t)
             # analytic: "lower" takes sorted[floor(q (n - 1))], so at most floor(q (n-1)) < q n lie below
-            assert omitted <= q + 1e-12
+            assert omitted <= q + 1e-12  # analytic: see above
 
 
 def test_quantile_hand_example():
     calib = np.arange(1, 11) / 10.0  # 0.1 .. 1.0
     # analytic: floor(0.1 * 9) = 0 -> sorted[0] = 0.1; floor(0.5 * 9) = 4 -> sorted[4] = 0.5
-    assert choose_threshold("quantile:0.1", calib).value == 0.1
-    assert choose_threshold("quantile:0.5", calib).value == 0.5
+    assert choose_threshold("quantile:0.1", calib).value == 0.1  # analytic: see above
+    assert choose_threshold("quantile:0.5", calib).value == 0.5  # analytic: see above
 
 
 def _brute_force_max_tss(presence, other):
@@ -96,7 +97,7 @@ def _brute_force_max_tss(presence, other):
         sens = recall_score(y_true, y_pred)
         tss = sens + tn / (tn + fp) - 1
         # reference: sklearn.metrics.balanced_accuracy_score (TSS = 2 BA - 1)
-        assert tss == pytest.approx(2 * balanced_accuracy_score(y_true, y_pred) - 1, abs=1e-12)
+        assert tss == pytest.approx(2 * balanced_accuracy_score(y_true, y_pred) - 1, abs=1e-12)  # reference: above
         if tss > best + 1e-9:  # strict: keeps the lowest threshold among ties (TSS steps are >= 1/(40*120))
             best_t, best = t, tss
     return best_t, best
@@ -109,10 +110,10 @@ def test_max_tss_matches_brute_force(seed):
     other = np.round(rng.normal(0.4, 0.2, 120), 2)
     expected_t, expected_tss = _brute_force_max_tss(presence, other)  # reference: sklearn.metrics brute force
     got = choose_threshold("max-tss", presence, other).value
-    assert got == expected_t
+    assert got == expected_t  # reference: sklearn.metrics brute force
     sens = np.mean(presence >= got)
     spec = np.mean(other < got)
-    assert sens + spec - 1 == pytest.approx(expected_tss, abs=1e-12)
+    assert sens + spec - 1 == pytest.approx(expected_tss, abs=1e-12)  # reference: sklearn.metrics brute force
 
 
 def test_max_tss_needs_background():

@@ -1,0 +1,115 @@
+"""audit and range as a user runs them, on the demo data and on a user's own table."""
+
+import json
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from splitter.cli import app
+from tests.conftest import write_records_csv
+from tests.test_cli_design import assert_one_line_error
+
+DEMO = Path(__file__).resolve().parent.parent / "demo_data"
+ENV = [DEMO / "temperature.tif", DEMO / "moisture.tif", DEMO / "canopy.tif"]
+runner = CliRunner()
+
+
+def run(*args):
+    return runner.invoke(app, [str(a) for a in args])
+
+
+def env_args():
+    return [a for p in ENV for a in ("--env", p)]
+
+
+@pytest.fixture(scope="module")
+def demo_range(tmp_path_factory):
+    out = tmp_path_factory.mktemp("range")
+    res = run("range", *env_args(), "--seed", 2, "--out", out)
+    assert res.exit_code == 0, res.output
+    return out
+
+
+def test_range_writes_table_json_and_figure(demo_range):
+    table = pd.read_csv(demo_range / "range.csv")
+    assert {"covariate", "model", "range_km", "sill", "nugget"} <= set(table.columns)
+    assert set(table.covariate) == {"temperature", "moisture", "canopy"}
+    doc = json.loads((demo_range / "range.json").read_text())
+    truth = json.loads((DEMO / "truth.json").read_text())
+    true_ranges = [c["effective_range_km"] for c in truth["covariates"].values()]
+    # reference: the demo's known simulation ranges (40-150 km); the suggestion must sit in that scale
+    assert min(true_ranges) * 0.75 <= doc["suggested_block_km"] <= max(true_ranges) * 1.5
+    assert (demo_range / "variogram.png").stat().st_size > 10_000
+
+
+def test_random_split_is_dependent_and_blocks_beyond_the_range_are_not(tmp_path, demo_range):
+    rng_km = json.loads((demo_range / "range.json").read_text())["suggested_block_km"]
+    recs = DEMO / "records_with_background.csv"
+    assert run("design", recs, "--method", "random", "--folds", 5, "--seed", 1, "--out", tmp_path / "r.csv").exit_code == 0
+    res = run("design", recs, "--method", "blocks", "--folds", 5, "--block-size", rng_km, "--buffer", rng_km, "--seed", 1, "--out", tmp_path / "b.csv")
+    assert res.exit_code == 0, res.output
+    res_r = run("audit", tmp_path / "r.csv", *env_args(), "--range-from", demo_range, "--out", tmp_path / "ar")
+    res_b = run("audit", tmp_path / "b.csv", *env_args(), "--range-from", demo_range, "--out", tmp_path / "ab")
+    assert res_r.exit_code == 0 and res_b.exit_code == 0, res_r.output + res_b.output
+    ar = pd.read_csv(tmp_path / "ar" / "audit.csv")
+    ab = pd.read_csv(tmp_path / "ab" / "audit.csv")
+    # common practice: evaluation records should mostly lie farther than the range from calibration records
+    assert (ar.verdict == "dependent").all()
+    assert (ab.verdict == "independent").all()
+    assert ar.nn_median_km.max() * 5 < ab.nn_median_km.min()
+    for col in ("fold", "n_evaluation", "n_calibration", "nn_median_km", "nn_p10_km", "share_within_range", "range_km",
+                "wasserstein_km", "schoener_d", "share_outside_envelope", "shared_method_share", "verdict"):
+        assert col in ar.columns
+    assert "distance" in res_r.output and "threshold 0.5" in res_r.output  # the rule is printed
+    assert run("audit", tmp_path / "r.csv", "--range-from", demo_range, "--fail-on", "dependent", "--out", tmp_path / "ar2").exit_code == 1
+    assert (tmp_path / "ab" / "distance_ecdf.png").exists()
+
+
+def test_holdout_by_survey_method_shares_no_method(tmp_path):
+    recs = DEMO / "records_with_background.csv"
+    res = run("design", recs, "--method", "holdout-group", "--group-column", "method", "--calibrate-on", "transect",
+              "--evaluate-on", "light-trap", "--out", tmp_path / "h.csv")
+    assert res.exit_code == 0, res.output
+    res = run("audit", tmp_path / "h.csv", "--group-column", "method", "--range-km", 50, "--out", tmp_path / "a")
+    assert res.exit_code == 0, res.output
+    a = pd.read_csv(tmp_path / "a" / "audit.csv")
+    assert a.shared_method_share.tolist() == [0.0]
+
+
+def test_users_own_table_with_named_folds_and_role_column(tmp_path):
+    src = write_records_csv(tmp_path / "mine.csv", n_presence=150, n_background=0)
+    df = pd.read_csv(src, dtype=str)
+    df["split"] = np.where(df.longitude.astype(float) < 12, "west", "east")
+    df["role"] = np.where(df.latitude.astype(float) < 45, "train", "test")
+    df.to_csv(tmp_path / "mine.csv", index=False)
+    res = run("audit", tmp_path / "mine.csv", "--fold-column", "split", "--range-km", 30, "--out", tmp_path / "a1")
+    assert res.exit_code == 0, res.output
+    assert pd.read_csv(tmp_path / "a1" / "audit.csv").fold.tolist() == ["east", "west"]
+    res = run("audit", tmp_path / "mine.csv", "--role-column", "role", "--range-km", 30, "--out", tmp_path / "a2")
+    assert res.exit_code == 0, res.output
+    assert len(pd.read_csv(tmp_path / "a2" / "audit.csv")) == 1
+
+
+def test_audit_bad_input(tmp_path):
+    src = write_records_csv(tmp_path / "mine.csv", n_presence=60, n_background=0)
+    df = pd.read_csv(src, dtype=str)
+    assert_one_line_error(run("audit", src, "--fold-column", "block", "--out", tmp_path / "a"), "mine.csv", "fold column 'block'")
+    df["one"] = "3"
+    df["role"] = ["train", "test", "holdout"] * 20
+    df["tiny"] = ["1"] * 57 + ["2"] * 3
+    df.to_csv(src, index=False)
+    assert_one_line_error(run("audit", src, "--fold-column", "one", "--out", tmp_path / "a"), "one value")
+    assert_one_line_error(run("audit", src, "--role-column", "role", "--out", tmp_path / "a"), "row 4", "holdout")
+    res = run("audit", src, "--fold-column", "tiny", "--range-km", 20, "--out", tmp_path / "t")
+    assert res.exit_code == 0, res.output
+    tiny = pd.read_csv(tmp_path / "t" / "audit.csv")
+    assert tiny.set_index("fold").loc[2, "verdict"] == "insufficient"  # fewer than 5 evaluation records
+    region = tmp_path / "far.gpkg"
+    import geopandas as gpd
+    from shapely.geometry import box
+
+    gpd.GeoDataFrame(geometry=[box(100, -10, 101, -9)], crs=4326).to_file(region)
+    assert_one_line_error(run("audit", src, "--fold-column", "tiny", "--region", region, "--out", tmp_path / "r"), "region")
