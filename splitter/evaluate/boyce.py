@@ -141,13 +141,27 @@ def boyce_index(
             raise InputError(f"Got {w.size} weights for {ref.size} reference values; give one per value.")
         if not np.all(np.isfinite(w)) or np.any(w < 0) or not np.any(w > 0):
             raise InputError("Reference weights must be finite, not negative, and not all zero.")
+    lo, hi = (float(ref.min()), float(ref.max())) if value_range is None else map(float, value_range)
+    starts, ends, width = _windows(lo, hi, width_share, step_share)
+    order = np.argsort(ref, kind="stable")
+    ref_sorted = ref[order]
+    expected = _window_mass(ref_sorted, np.cumsum(w[order]) / w.sum(), starts, ends)
+    return _from_expected(pres, starts, ends, width, expected)
+
+
+def _windows(lo: float, hi: float, width_share, step_share) -> tuple[np.ndarray, np.ndarray, float]:
+    """Starts, ends and width of the closed moving windows over [lo, hi] (see the module notes).
+
+    Shared with :mod:`splitter.evaluate.surface`, which needs the window edges
+    before it streams the cells.
+    """
     width_share = float(width_share)
     step_share = float(step_share)
     if not (0.0 < width_share <= 1.0):
         raise InputError(f"Window width share {width_share} must lie in (0, 1], e.g. 0.1.")
     if not (0.0 < step_share <= 1.0):
         raise InputError(f"Window step share {step_share} must lie in (0, 1], e.g. 0.01.")
-    lo, hi = (float(ref.min()), float(ref.max())) if value_range is None else map(float, value_range)
+    lo, hi = float(lo), float(hi)
     if not (np.isfinite(lo) and np.isfinite(hi) and hi > lo):
         raise InputError(
             f"The suitability range [{lo}, {hi}] is empty; the reference values must not all be equal."
@@ -158,11 +172,18 @@ def boyce_index(
     n_windows = int(np.ceil((1.0 - width_share) / step_share - 1e-9)) + 1
     starts = lo + np.linspace(0.0, 1.0 - width_share, n_windows) * span
     width = width_share * span
-    ends = starts + width
+    return starts, starts + width, width
 
-    order = np.argsort(ref, kind="stable")
-    ref_sorted = ref[order]
-    expected = _window_mass(ref_sorted, np.cumsum(w[order]) / w.sum(), starts, ends)
+
+def _from_expected(
+    pres: np.ndarray, starts: np.ndarray, ends: np.ndarray, width: float, expected: np.ndarray
+) -> BoyceResult:
+    """P/E per window and their Spearman correlation, given each window's expected share.
+
+    ``expected`` is the weighted share of the reference (cells or background) in
+    each window; the presences' shares are counted here.
+    """
+    n_windows = starts.size
     pres_sorted = np.sort(pres)
     predicted = _window_mass(pres_sorted, np.arange(1, pres.size + 1) / pres.size, starts, ends)
     used = expected > 0

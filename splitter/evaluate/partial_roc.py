@@ -262,60 +262,83 @@ def _bucket(x: np.ndarray, low: float, scale: float, buckets: int) -> np.ndarray
     return y.astype(np.intp) + 1
 
 
-def _prepare(v: np.ndarray, s: np.ndarray, w: np.ndarray | None) -> _Prepared:
-    """The single pass over the cells.
+class _CellKeys:
+    """Places cell values among sorted distinct query values (one lookup per cell).
 
     Each cell gets key = number of edges <= its value, where the edges interleave
-    the distinct presence values u_j with their next float up, u_j+:
+    the distinct query values u_j with their next float up, u_j+:
     [u_0, u_0+, u_1, u_1+, ...]. So key = 2j for a cell strictly between u_{j-1}
-    and u_j, 2j + 1 for a cell equal to u_j, and 2d above all presences; one
+    and u_j, 2j + 1 for a cell equal to u_j, and 2d above all of them; one
     weighted bincount of the keys then gives the area below and tied with every
-    presence value.
+    query value.
 
     A plain binary search per cell costs ~10 mispredicted branches, so the key is
     found through a lookup table on a fine monotone bucketing of the value range:
     a cell whose bucket holds no edge takes the table's key exactly (edges in
     lower buckets are below it, edges in higher buckets above); only cells sharing
     a bucket with an edge (about d / buckets of them for continuous predictions)
-    are binary-searched. The cells are processed in blocks to stay in cache.
-    """
-    u, inverse = np.unique(s, return_inverse=True)  # ascending distinct presence values
-    d = u.size
-    edges = np.column_stack([u, np.nextafter(u, np.inf)]).ravel()
-    n_keys = 2 * d + 1
-    low = float(edges[0])
-    span = float(edges[-1]) - low  # > 0: u_0+ > u_0
-    buckets = int(min(1 << 20, max(1 << 16, 64 * n_keys)))
-    with np.errstate(over="ignore", divide="ignore"):
-        scale = buckets / span
-    use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
-    if use_table:
-        edge_bucket = _bucket(edges, low, scale, buckets)
-        table = np.searchsorted(edge_bucket, np.arange(buckets + 2), side="left")  # edges in lower buckets
-        shared = np.zeros(buckets + 2, dtype=bool)
-        shared[edge_bucket] = True
+    are binary-searched. Callers feed the cells in blocks that stay in cache.
 
-    mass = np.zeros(n_keys)
+    Used by :func:`partial_roc` on cells in memory and by
+    :mod:`splitter.evaluate.surface` on cells streamed from a raster.
+    """
+
+    def __init__(self, u: np.ndarray):
+        # u: ascending distinct finite float64 query values.
+        self.edges = np.column_stack([u, np.nextafter(u, np.inf)]).ravel()
+        self.n_keys = 2 * u.size + 1
+        low = float(self.edges[0])
+        span = float(self.edges[-1]) - low  # > 0: u_0+ > u_0
+        buckets = int(min(1 << 20, max(1 << 16, 64 * self.n_keys)))
+        with np.errstate(over="ignore", divide="ignore"):
+            scale = buckets / span
+        self.use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
+        self.low, self.scale, self.buckets = low, scale, buckets
+        if self.use_table:
+            edge_bucket = _bucket(self.edges, low, scale, buckets)
+            self.table = np.searchsorted(edge_bucket, np.arange(buckets + 2), side="left")  # edges in lower buckets
+            self.shared = np.zeros(buckets + 2, dtype=bool)
+            self.shared[edge_bucket] = True
+
+    def __call__(self, vb: np.ndarray) -> np.ndarray:
+        """Key (0 .. n_keys - 1) of every value of the block ``vb``."""
+        if self.use_table:
+            with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
+                b = _bucket(vb, self.low, self.scale, self.buckets)
+            key = self.table[b]
+            near = np.flatnonzero(self.shared[b])
+            if near.size:
+                key[near] = np.searchsorted(self.edges, vb[near].astype(np.float64), side="right")
+            return key
+        # Query values span less than ~1e-300, or more than the float range:
+        # a plain binary search for every cell.
+        return np.searchsorted(self.edges, vb.astype(np.float64), side="right")
+
+
+def _prepare(v: np.ndarray, s: np.ndarray, w: np.ndarray | None) -> _Prepared:
+    """The single pass over the cells (see :class:`_CellKeys`), in blocks that stay in cache."""
+    u, inverse = np.unique(s, return_inverse=True)  # ascending distinct presence values
+    keys = _CellKeys(u)
+    mass = np.zeros(keys.n_keys)
     block = 1 << 18
     for start in range(0, v.size, block):
-        vb = v[start : start + block]
-        if use_table:
-            with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
-                b = _bucket(vb, low, scale, buckets)
-            key = table[b]
-            near = np.flatnonzero(shared[b])
-            if near.size:
-                key[near] = np.searchsorted(edges, vb[near].astype(np.float64), side="right")
-        else:
-            # Presence values span less than ~1e-300, or more than the float range:
-            # a plain binary search for every cell.
-            key = np.searchsorted(edges, vb.astype(np.float64), side="right")
+        key = keys(v[start : start + block])
         if w is None:
-            mass += np.bincount(key, minlength=n_keys)
+            mass += np.bincount(key, minlength=keys.n_keys)
         else:
-            mass += np.bincount(key, weights=w[start : start + block], minlength=n_keys)
+            mass += np.bincount(key, weights=w[start : start + block], minlength=keys.n_keys)
     n_cells = v.size if w is None else int(np.count_nonzero(w))
-    mass /= mass.sum()
+    return _prepared_from_mass(u, inverse, mass, n_cells)
+
+
+def _prepared_from_mass(u: np.ndarray, inverse: np.ndarray, mass: np.ndarray, n_cells: int) -> _Prepared:
+    """Area below and tied with each distinct presence value from the key masses.
+
+    ``mass`` (length 2d + 1, keys as in :class:`_CellKeys` for the ascending
+    distinct presence values ``u``) holds the raw cell weight of every key.
+    """
+    d = u.size
+    mass = mass / mass.sum()
     cum = np.cumsum(mass)
     # Prefix sums of non-negative masses are exactly 0 below the lowest cell, which
     # the degenerate-case handling relies on.
@@ -323,7 +346,7 @@ def _prepare(v: np.ndarray, s: np.ndarray, w: np.ndarray | None) -> _Prepared:
     tied = mass[1 : 2 * d : 2]
     # Flip to descending order of value: the curve is traced from the top threshold down.
     order = np.arange(d)[::-1]
-    group = (d - 1) - inverse.ravel()
+    group = (d - 1) - np.asarray(inverse).ravel()
     return _Prepared(values=u[order], below=below[order], tied=tied[order], group=group, n_cells=n_cells)
 
 
@@ -484,8 +507,15 @@ def partial_roc(
     """
     omission, replicates, sample_share = _check_options(omission, replicates, sample_share)
     v, s, w = _check_inputs(cell_values, presence_scores, cell_weights)
-    prep = _prepare(v, s, w)
-    n = s.size
+    return _result(_prepare(v, s, w), s.size, omission, replicates, sample_share, seed)
+
+
+def _result(prep: _Prepared, n: int, omission: float, replicates: int, sample_share: float, seed) -> PartialROCResult:
+    """Observed curve and ratio, then the bootstrap, from the prepared cell summary alone.
+
+    Shared by :func:`partial_roc` and :func:`splitter.evaluate.surface.partial_roc_from_surface`,
+    so the in-memory and streamed paths draw the same replicates for the same seed.
+    """
     d = prep.values.size
 
     all_counts = np.bincount(prep.group, minlength=d)

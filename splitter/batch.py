@@ -1,0 +1,848 @@
+"""Many runs (species, record sets, option sets) from one manifest, on Dask.
+
+A manifest is a CSV with one run per row: ``run`` (an id that becomes a folder
+name), ``records`` (a path) and any design / audit / evaluate option as a
+column. Each run does what ``splitter design``, ``splitter audit`` and
+``splitter evaluate`` would do with the same options, through the same API
+calls, so its outputs are byte-for-byte those of the single commands:
+
+    OUT/<run>/folds.csv (+ folds.design.json, folds.gaps.csv with a buffer)
+    OUT/<run>/audit/                  (unless audit = no)
+    OUT/<run>/evaluation/             (when predictions, prediction_table or model is given)
+    OUT/<run>/run.json                options, input hashes and fingerprint
+    OUT/batch.csv                     one row per run, sorted by run id
+
+Runs are Dask tasks (a local cluster of worker processes by default, or an
+existing cluster by scheduler address). A failing run is recorded with a
+one-line reason and the others go on. Each run is written into a hidden
+``OUT/.<run>.partial-XXXX`` folder and renamed to ``OUT/<run>`` only when it
+is complete, so a folder named after a run is always a whole run. A rerun
+skips runs whose ``run.json`` fingerprint (SHA-256 over the options, the input
+files' bytes and the software version) still matches, and redoes the others.
+
+Examples
+--------
+>>> from splitter.batch import run_batch
+>>> res = run_batch("species.csv", "out", workers=2)  # doctest: +SKIP
+>>> res.n_ok, res.n_failed  # doctest: +SKIP
+(19, 1)
+>>> res.to_frame()[["run", "status", "error"]]  # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+import glob
+import hashlib
+import io as _io
+import json
+import os
+import re
+import secrets
+import shlex
+import shutil
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Optional
+
+import typer
+
+from splitter import __version__
+from splitter.errors import InputError
+
+# Manifest columns: name -> (kind, default). Kinds say how a cell is read and checked
+# before any work starts; defaults are those of the single commands.
+OPTIONS = {
+    "method": ("method", "blocks"),
+    "folds": ("int", 5),
+    "block_size": ("block_size", None),
+    "buffer": ("float", 0.0),
+    "env": ("paths", ()),
+    "covariate_column": ("names", ()),
+    "group_column": ("text", None),
+    "calibrate_on": ("text", None),
+    "evaluate_on": ("text", None),
+    "seed": ("int", 0),
+    "background": ("path", None),
+    "background_count": ("int", None),
+    "region": ("path", None),
+    "x": ("text", None),
+    "y": ("text", None),
+    "crs": ("text", None),
+    "id_column": ("text", None),
+    "kind_column": ("text", None),
+    "predictions": ("pattern", None),
+    "prediction_table": ("path", None),
+    "model": ("model", None),
+    "threshold": ("threshold", "quantile:0.1"),
+    "omission": ("float", 0.05),
+    "replicates": ("int", 1000),
+    "alpha": ("float", 0.05),
+    "range_km": ("float", None),
+    "audit": ("yesno", True),
+}
+REQUIRED = ("run", "records")
+KNOWN = REQUIRED + tuple(OPTIONS)
+# Options whose value is a file (or files) whose bytes go into the fingerprint.
+FILE_OPTIONS = ("records", "background", "region", "env", "prediction_table")
+BATCH_COLUMNS = ("run", "status", "error", "method", "folds", "n_presence", "audit_verdict",
+                 "folds_significant", "folds_evaluated", "seconds")
+# A run id becomes a folder name: letters, digits, '.', '_', '-', not starting with '.'
+# (hidden folders are the batch's own temporary ones).
+RUN_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,127}$")
+SENTINEL = ".in-progress"
+YES = {"yes": True, "y": True, "true": True, "1": True, "no": False, "n": False, "false": False, "0": False}
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    """One manifest row, checked and resolved.
+
+    Attributes
+    ----------
+    run : str
+        Run id (the output folder's name).
+    line : int
+        Line of the manifest file the row is on (header = line 1).
+    records : str
+        Absolute path of the records file.
+    options : dict
+        Every option of :data:`OPTIONS`, parsed, with defaults filled in and
+        paths made absolute against the manifest's folder.
+    cells : dict
+        The non-empty cells as written in the manifest (for run.json and the fingerprint).
+    """
+
+    run: str
+    line: int
+    records: str
+    options: dict
+    cells: dict = field(default_factory=dict)
+
+    @property
+    def evaluates(self) -> bool:
+        o = self.options
+        return any(o[k] is not None for k in ("predictions", "prediction_table", "model"))
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """What a batch did: one row per run (the content of ``batch.csv``).
+
+    Attributes
+    ----------
+    out_dir : Path
+        The batch's output folder.
+    table : Path
+        ``out_dir / "batch.csv"``.
+    rows : tuple of dict
+        One dict per run, sorted by run id, with the keys of :data:`BATCH_COLUMNS`.
+    """
+
+    out_dir: Path
+    table: Path
+    rows: tuple
+
+    def _count(self, status) -> int:
+        return sum(r["status"] == status for r in self.rows)
+
+    @property
+    def n_ok(self) -> int:
+        return self._count("ok")
+
+    @property
+    def n_failed(self) -> int:
+        return self._count("failed")
+
+    @property
+    def n_skipped(self) -> int:
+        return self._count("skipped")
+
+    @property
+    def failures(self) -> dict:
+        """Run id -> one-line reason, for the runs that failed."""
+        return {r["run"]: r["error"] for r in self.rows if r["status"] == "failed"}
+
+    def to_frame(self):
+        import pandas as pd
+
+        return pd.DataFrame(list(self.rows), columns=list(BATCH_COLUMNS))
+
+    def to_dict(self) -> dict:
+        return {"out_dir": str(self.out_dir), "table": str(self.table), "rows": [dict(r) for r in self.rows],
+                "ok": self.n_ok, "failed": self.n_failed, "skipped": self.n_skipped}
+
+
+# ---------------------------------------------------------------------------
+# Manifest
+
+
+def _column_name(raw: str) -> str:
+    # "Block-Size" and "block size" mean block_size: spreadsheets invite all three.
+    return re.sub(r"[\s-]+", "_", raw.strip().lower())
+
+
+def _bad(path, line, column, value, what) -> InputError:
+    return InputError(f"{path}: line {line}, column '{column}': '{value}' {what}")
+
+
+def _parse_cell(path, line, column, value, base: Path):
+    kind, _ = OPTIONS[column]
+    if kind == "int":
+        try:
+            f = float(value)
+        except ValueError:
+            raise _bad(path, line, column, value, "is not a number; give a whole number.") from None
+        if not f.is_integer():
+            raise _bad(path, line, column, value, "is not a whole number; give a whole number.")
+        return int(f)
+    if kind == "float":
+        try:
+            f = float(value)
+        except ValueError:
+            raise _bad(path, line, column, value, "is not a number; give a number (use '.' for decimals).") from None
+        if f != f or f in (float("inf"), float("-inf")):
+            raise _bad(path, line, column, value, "is not a finite number; give a number.")
+        return f
+    if kind == "block_size":
+        if value.lower() in ("auto", "match"):
+            return value.lower()
+        try:
+            f = float(value)
+        except ValueError:
+            raise _bad(path, line, column, value, "is not a size; give a size in km, 'auto' or 'match'.") from None
+        if not f > 0:
+            raise _bad(path, line, column, value, "is not a positive size; give a size in km, 'auto' or 'match'.")
+        return value
+    if kind == "method":
+        from splitter.partition import METHODS
+
+        if value not in METHODS:
+            raise _bad(path, line, column, value, f"is not a method; choose one of {', '.join(METHODS)}.")
+        return value
+    if kind == "model":
+        if value != "baseline":
+            raise _bad(path, line, column, value, "is not a model; the built-in model is 'baseline' (leave empty for none).")
+        return value
+    if kind == "threshold":
+        from splitter.evaluate import ThresholdRule
+
+        try:
+            ThresholdRule.parse(value)
+        except InputError as e:
+            raise _bad(path, line, column, value, f"is not a threshold rule ({e})") from None
+        return value
+    if kind == "yesno":
+        if value.lower() not in YES:
+            raise _bad(path, line, column, value, "is not yes or no.")
+        return YES[value.lower()]
+    if kind == "path":
+        return str((base / value).resolve())
+    if kind == "paths":
+        parts = [p.strip() for p in value.split(";") if p.strip()]
+        return tuple(str((base / p).resolve()) for p in parts)
+    if kind == "names":
+        return tuple(p.strip() for p in value.split(";") if p.strip())
+    if kind == "pattern":
+        if "{fold}" not in value:
+            raise _bad(path, line, column, value, "has no {fold}; give a raster pattern such as preds/fold_{fold}.tif.")
+        return str((base / value).resolve())
+    return value  # text
+
+
+def read_manifest(path) -> tuple:
+    """Read and check a batch manifest.
+
+    Parameters
+    ----------
+    path : path-like
+        CSV, UTF-8, one run per row: ``run`` and ``records`` are required; any
+        column of :data:`OPTIONS` may follow (empty cells take the defaults of
+        the single commands). ``env`` and ``covariate_column`` take several
+        values separated by ';'. Relative paths are taken from the manifest's folder.
+
+    Returns
+    -------
+    tuple of RunSpec, in manifest order
+
+    Raises
+    ------
+    InputError
+        On a missing or unknown column, a bad or duplicate run id, or a cell that
+        cannot be read, naming the line and column. Missing input files are not
+        checked here: such a run fails on its own and the others go on.
+
+    Examples
+    --------
+    >>> specs = read_manifest("species.csv")  # doctest: +SKIP
+    >>> specs[0].run, specs[0].options["method"]  # doctest: +SKIP
+    ('sp01', 'blocks')
+    """
+    import pandas as pd
+
+    path = Path(path)
+    if not path.is_file():
+        raise InputError(f"{path}: no such file; give the manifest CSV (one run per row).")
+    raw = path.read_bytes()
+    if not raw.strip():
+        raise InputError(f"{path}: the manifest is empty; give a header row (run,records,...) and one row per run.")
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as e:
+        line = raw[: e.start].count(b"\n") + 1
+        raise InputError(f"{path}: line {line} is not UTF-8 text; re-save the manifest as UTF-8.") from None
+    try:
+        table = pd.read_csv(_io.StringIO(text), dtype=str, keep_default_na=False, na_filter=False, skip_blank_lines=True)
+    except pd.errors.ParserError as e:
+        raise InputError(f"{path}: cannot be read as CSV ({str(e).splitlines()[0]}); check the commas and quoting.") from None
+    columns = [_column_name(c) for c in table.columns]
+    unknown = [orig for orig, c in zip(table.columns, columns) if c not in KNOWN]
+    if unknown:
+        raise InputError(f"{path}: unknown column '{unknown[0].strip()}'; known columns are: {', '.join(KNOWN)}.")
+    dup = sorted({c for c in columns if columns.count(c) > 1})
+    if dup:
+        raise InputError(f"{path}: column '{dup[0]}' appears twice; keep one.")
+    missing = [c for c in REQUIRED if c not in columns]
+    if missing:
+        raise InputError(f"{path}: no '{missing[0]}' column; a manifest needs columns run and records (one run per row).")
+    table.columns = columns
+    if len(table) == 0:
+        raise InputError(f"{path}: the manifest has a header but no rows; add one row per run.")
+    base = path.resolve().parent
+    specs, seen = [], {}
+    # Line numbers count the header as line 1 and assume no blank lines in between,
+    # as a spreadsheet writes them.
+    for n, row in enumerate(table.to_dict(orient="records")):
+        line = n + 2
+        cells = {k: str(v).strip() for k, v in row.items() if str(v).strip() != ""}
+        run = cells.get("run", "")
+        if not run:
+            raise InputError(f"{path}: line {line}, column 'run': empty; give every run an id.")
+        if not RUN_ID.match(run):
+            raise _bad(path, line, "run", run, "cannot be a folder name; use letters, digits, '.', '_' and '-' "
+                                                 "(not first), at most 128 characters.")
+        # Case-insensitive: on macOS and Windows 'Sp1' and 'sp1' are one folder.
+        key = run.lower()
+        if key in seen:
+            raise _bad(path, line, "run", run, f"is used again (first on line {seen[key]}); give each run its own id.")
+        seen[key] = line
+        if "records" not in cells:
+            raise InputError(f"{path}: line {line}, column 'records': empty; give the records file of run '{run}'.")
+        options = {k: default for k, (_, default) in OPTIONS.items()}
+        for k, v in cells.items():
+            if k in OPTIONS:
+                options[k] = _parse_cell(path, line, k, v, base)
+        specs.append(RunSpec(run=run, line=line, records=str((base / cells["records"]).resolve()),
+                             options=options, cells=cells))
+    return tuple(specs)
+
+
+# ---------------------------------------------------------------------------
+# Fingerprint
+
+
+def _input_files(spec: RunSpec) -> list:
+    """(role, path) of every input file the run reads."""
+    o = spec.options
+    files = [("records", spec.records)]
+    for k in ("background", "region", "prediction_table"):
+        if o[k] is not None:
+            files.append((k, o[k]))
+    files += [(f"env[{i}]", p) for i, p in enumerate(o["env"])]
+    if o["predictions"] is not None:
+        # Every raster the pattern can name (the fold labels are known only after the design).
+        for p in sorted(glob.glob(glob.escape(o["predictions"]).replace("{fold}", "*"))):
+            files.append((f"predictions[{Path(p).name}]", p))
+    return files
+
+
+def fingerprint(spec: RunSpec, hashes: Optional[dict] = None) -> tuple:
+    """SHA-256 over a run's options, its input files' bytes and the software version.
+
+    Parameters
+    ----------
+    spec : RunSpec
+    hashes : dict, optional
+        Path -> SHA-256 cache shared between runs (covariate rasters are often
+        the same for every run).
+
+    Returns
+    -------
+    fingerprint : str
+        Hex digest; equal fingerprints mean the run would write the same outputs.
+    inputs : dict
+        Role -> {"path", "sha256"}; a missing file has sha256 None.
+    """
+    from splitter.io.records import sha256_of
+
+    hashes = {} if hashes is None else hashes
+    inputs = {}
+    for role, p in _input_files(spec):
+        if p not in hashes:
+            hashes[p] = sha256_of(p) if Path(p).is_file() else None
+        inputs[role] = {"path": p, "sha256": hashes[p]}
+    # The cells as written, not the resolved paths: moving the whole project keeps
+    # the fingerprints, while changing a file's bytes changes them.
+    doc = {"software": __version__, "cells": {k: v for k, v in sorted(spec.cells.items())},
+           "inputs": {k: v["sha256"] for k, v in sorted(inputs.items())}}
+    digest = hashlib.sha256(json.dumps(doc, sort_keys=True).encode("utf-8")).hexdigest()
+    return digest, inputs
+
+
+# ---------------------------------------------------------------------------
+# One run (executed on a Dask worker)
+
+
+class _Withdrawn(Exception):
+    """The batch took the run's temporary folder away (Ctrl-C on the client)."""
+
+
+def one_line(exc: BaseException) -> str:
+    """A failure reason on one line: the InputError message, else 'Type: message'."""
+    if isinstance(exc, InputError):
+        text = str(exc)
+    elif isinstance(exc, FileNotFoundError) and exc.filename:
+        text = f"{exc.filename}: no such file; check the path."
+    else:
+        text = f"{type(exc).__name__}: {exc}" if str(exc) else type(exc).__name__
+    return " ".join(text.split())
+
+
+def _cmd(*parts) -> str:
+    return "splitter " + shlex.join([str(p) for p in parts if p is not None])
+
+
+def _opt(name, value):
+    """['--name', value] for a given option, [] for an unset one."""
+    if value is None or value == () or value is False:
+        return []
+    if isinstance(value, (tuple, list)):
+        return [a for v in value for a in (name, v)]
+    return [name, value]
+
+
+def _commands(spec: RunSpec, final: Path) -> dict:
+    """The single commands that would write this run's outputs (for the sidecars)."""
+    o = spec.options
+    reading = [*_opt("--x", o["x"]), *_opt("--y", o["y"]), *_opt("--crs", o["crs"])]
+    env = _opt("--env", o["env"])
+    folds_csv = final / "folds.csv"
+    out = {"design": _cmd(
+        "design", spec.records, "--method", o["method"], "--folds", o["folds"], *_opt("--block-size", o["block_size"]),
+        "--buffer", o["buffer"], *env, *_opt("--covariate-column", o["covariate_column"]),
+        *_opt("--group-column", o["group_column"]), *_opt("--calibrate-on", o["calibrate_on"]),
+        *_opt("--evaluate-on", o["evaluate_on"]), *_opt("--background", o["background"]),
+        *_opt("--background-count", o["background_count"]), *_opt("--region", o["region"]), *reading,
+        *_opt("--id-column", o["id_column"]), *_opt("--kind-column", o["kind_column"]),
+        "--seed", o["seed"], "--out", folds_csv)}
+    if o["audit"]:
+        out["audit"] = _cmd("audit", folds_csv, *env, *_opt("--range-km", o["range_km"]),
+                            *_opt("--group-column", o["group_column"]), *_opt("--region", o["region"]), *reading,
+                            "--seed", o["seed"], "--out", final / "audit")
+    if spec.evaluates:
+        out["evaluate"] = _cmd("evaluate", folds_csv, *_opt("--predictions", o["predictions"]),
+                               *_opt("--prediction-table", o["prediction_table"]), *_opt("--model", o["model"]),
+                               *env, *_opt("--region", o["region"]), "--threshold", o["threshold"],
+                               "--omission", o["omission"], "--replicates", o["replicates"], "--alpha", o["alpha"],
+                               *reading, "--seed", o["seed"], "--out", final / "evaluation")
+    return out
+
+
+def _steps(spec: RunSpec, work: Path, final: Path, check) -> dict:
+    """design -> write -> read back -> audit -> evaluate, as the single commands do."""
+    import numpy as np
+
+    from splitter.auditor import audit
+    from splitter.design import add_background, design
+    from splitter.evaluation import evaluate
+    from splitter.io.foldtable import read_fold_table, write_design
+    from splitter.io.records import combine, read_records
+    from splitter.io.results import write_audit, write_evaluation
+
+    o = spec.options
+    commands = _commands(spec, final)
+    env = list(o["env"])
+    # Same reading as 'splitter design' (cli.load_records).
+    recs = read_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
+                        kind_column=o["kind_column"])
+    if o["background"] is not None:
+        bg = read_records(o["background"], x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
+                          default_kind="background")
+        recs = combine(recs, bg, kind="background")
+    if o["background_count"]:
+        recs = add_background(recs, int(o["background_count"]), env=env, region=o["region"], seed=o["seed"])
+    assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
+                        env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
+                        calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"])
+    write_design(assignment, work / "folds.csv", command=commands["design"])
+    check()
+    summary = {"method": assignment.method, "folds": int(assignment.n_folds),
+               "n_presence": int(np.sum((assignment.fold >= 0) & (assignment.kind == "presence"))),
+               "audit_verdict": None, "folds_significant": None, "folds_evaluated": None}
+
+    # Audit and evaluation read the written fold table back, as the commands do.
+    _, table_assignment, names = read_fold_table(work / "folds.csv", x=o["x"], y=o["y"], crs=o["crs"])
+    if o["audit"]:
+        result, context = audit(table_assignment, env=env, range_km=o["range_km"], group_column=o["group_column"],
+                                region=o["region"], seed=o["seed"], fold_names=names)
+        context["command"] = commands["audit"]
+        write_audit(result, context, work / "audit")
+        summary["audit_verdict"] = result.verdict
+        check()
+    if spec.evaluates:
+        ev = evaluate(table_assignment, predictions=o["predictions"], prediction_table=o["prediction_table"],
+                      model=o["model"], env=env, region=o["region"], threshold=o["threshold"], omission=o["omission"],
+                      replicates=o["replicates"], alpha=o["alpha"], seed=o["seed"],
+                      prediction_dir=work / "evaluation" / "predictions" if o["model"] else None, fold_names=names)
+        write_evaluation(ev, work / "evaluation", extra={"fold_table": str(final / "folds.csv"),
+                                                         "command": commands["evaluate"]})
+        summary["folds_significant"] = int(sum(bool(f.row["significant"]) for f in ev.folds))
+        summary["folds_evaluated"] = len(ev.folds)
+        check()
+    return summary, commands
+
+
+def _point_json_at(work: Path, final: Path) -> None:
+    """Paths written while the run sat in its temporary folder now name the final one."""
+    old, new = json.dumps(str(work))[1:-1], json.dumps(str(final))[1:-1]
+    for p in work.rglob("*.json"):
+        text = p.read_text(encoding="utf-8")
+        if old in text:
+            from splitter.io.atomic import atomic_write
+
+            with atomic_write(p, "w") as f:
+                f.write(text.replace(old, new))
+
+
+def _new_partial(out: Path, run: str) -> Path:
+    """A fresh hidden folder beside the run's final folder (same file system: rename is atomic)."""
+    while True:
+        work = out / f".{run}.partial-{secrets.token_hex(4)}"
+        try:
+            work.mkdir()  # permissions from the umask, as the single commands' folders
+            return work
+        except FileExistsError:
+            continue
+
+
+def _install(work: Path, final: Path) -> None:
+    """Give the finished folder the run's name, replacing an older complete run."""
+    if final.exists() or final.is_symlink():
+        old = final.with_name(f".{final.name}.old-{secrets.token_hex(4)}")
+        os.replace(final, old)
+        os.replace(work, final)
+        shutil.rmtree(old, ignore_errors=True)
+    else:
+        os.replace(work, final)
+
+
+def execute_run(spec: RunSpec, out_dir: str, fingerprint_hex: str, inputs: dict) -> dict:
+    """Do one run into ``out_dir/<run>`` and return its batch.csv row.
+
+    Runs on a Dask worker (or anywhere). Never raises for a failing run: the
+    row says ``failed`` with a one-line reason, and nothing is left behind.
+
+    Parameters
+    ----------
+    spec : RunSpec
+    out_dir : str
+        The batch's output folder (must be reachable from the worker).
+    fingerprint_hex, inputs
+        From :func:`fingerprint`, stored in ``run.json``.
+
+    Returns
+    -------
+    dict
+        The keys of :data:`BATCH_COLUMNS`.
+    """
+    from splitter.io.atomic import atomic_write
+    from splitter.io.foldtable import to_json
+
+    t0 = time.perf_counter()
+    out = Path(out_dir)
+    final = out / spec.run
+    row = {"run": spec.run, "status": "ok", "error": "", "method": spec.options["method"],
+           "folds": spec.options["folds"], "n_presence": None, "audit_verdict": None,
+           "folds_significant": None, "folds_evaluated": None, "seconds": None}
+    work = None
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        work = _new_partial(out, spec.run)
+        sentinel = work / SENTINEL
+        sentinel.touch()
+
+        def check():
+            # The client removes temporary folders on Ctrl-C; a task still running on
+            # a worker it cannot stop notices here and stops writing.
+            if not sentinel.exists():
+                raise _Withdrawn(spec.run)
+
+        summary, commands = _steps(spec, work, final, check)
+        seconds = time.perf_counter() - t0
+        doc = {"run": spec.run, "fingerprint": fingerprint_hex, "software": f"splitter {__version__}",
+               "manifest_line": spec.line, "cells": spec.cells, "options": spec.options, "inputs": inputs,
+               "commands": commands, "summary": summary, "seconds": round(seconds, 3)}
+        with atomic_write(work / "run.json", "w") as f:
+            f.write(to_json(doc))
+        _point_json_at(work, final)
+        check()
+        sentinel.unlink()  # FileNotFoundError here also means the folder was taken away
+        _install(work, final)
+        work = None
+        row.update(summary)
+        row["seconds"] = seconds
+        return row
+    except _Withdrawn:
+        row.update(status="failed", error="interrupted")
+    except Exception as e:  # one failing run must not stop the batch
+        row.update(status="failed", error=one_line(e))
+    finally:
+        if work is not None:
+            shutil.rmtree(work, ignore_errors=True)
+    row["seconds"] = time.perf_counter() - t0
+    return row
+
+
+# ---------------------------------------------------------------------------
+# The batch (client side)
+
+
+def _skipped_row(spec: RunSpec, final: Path, fp: str) -> Optional[dict]:
+    """The row of a run already done with the same fingerprint, else None."""
+    p = final / "run.json"
+    try:
+        doc = json.loads(p.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    if doc.get("fingerprint") != fp or not isinstance(doc.get("summary"), dict):
+        return None
+    row = {k: None for k in BATCH_COLUMNS}
+    row.update({k: v for k, v in doc["summary"].items() if k in BATCH_COLUMNS})
+    row.update(run=spec.run, status="skipped", error="", seconds=0.0)
+    return row
+
+
+def _partials(out: Path, runs) -> list:
+    names = {f".{r}.partial-" for r in runs}
+    if not out.is_dir():
+        return []
+    return [p for p in out.iterdir() if p.name.startswith(".") and any(p.name.startswith(n) for n in names)]
+
+
+def _remove_partials(out: Path, runs) -> None:
+    # Twice: a worker may be creating files while the first sweep runs.
+    for _ in range(2):
+        for p in _partials(out, runs):
+            shutil.rmtree(p, ignore_errors=True)
+
+
+def _fmt(v, key) -> str:
+    if v is None:
+        return ""
+    if key == "seconds":
+        return f"{float(v):.2f}"
+    return str(v)
+
+
+def write_batch_table(rows, path) -> Path:
+    """batch.csv, written atomically, one row per run in the order given."""
+    import csv
+
+    from splitter.io.atomic import atomic_write
+
+    with atomic_write(path, "w", newline="") as f:
+        w = csv.writer(f, lineterminator="\n")
+        w.writerow(BATCH_COLUMNS)
+        for r in rows:
+            w.writerow([_fmt(r.get(k), k) for k in BATCH_COLUMNS])
+    return Path(path)
+
+
+def _connect(workers, scheduler):
+    import distributed
+
+    if scheduler:
+        if workers is not None:
+            raise InputError("give --workers (a local cluster) or --scheduler (an existing one), not both.")
+        try:
+            return distributed.Client(scheduler, timeout="15s", set_as_default=False), None
+        except (OSError, TimeoutError, ValueError) as e:
+            raise InputError(f"--scheduler {scheduler}: cannot connect ({one_line(e)}); "
+                             "start one with 'dask scheduler' or leave out --scheduler.") from None
+    cluster = distributed.LocalCluster(n_workers=workers or 2, threads_per_worker=1, processes=True,
+                                       dashboard_address=None)
+    try:
+        return distributed.Client(cluster, set_as_default=False), cluster
+    except BaseException:
+        cluster.close()
+        raise
+
+
+def _close(client, cluster) -> None:
+    try:
+        client.close()
+    finally:
+        if cluster is not None:
+            cluster.close()
+
+
+def run_batch(manifest, out_dir, *, workers: Optional[int] = None, scheduler: Optional[str] = None,
+              progress=None) -> BatchResult:
+    """Run every row of a manifest as a Dask task and write ``out_dir/batch.csv``.
+
+    Parameters
+    ----------
+    manifest : path-like
+        CSV, one run per row (see :func:`read_manifest`).
+    out_dir : path-like
+        Output folder: ``out_dir/<run>/`` per run and ``out_dir/batch.csv``. Must be
+        reachable, at the same path, from every worker.
+    workers : int, optional
+        Worker processes of the local cluster started for the batch (default 2,
+        one thread each). Not with ``scheduler``.
+    scheduler : str, optional
+        Address of a running Dask scheduler (``tcp://HOST:PORT``); its workers
+        need ``splitter`` installed.
+    progress : callable(done, total), optional
+        Called after each run (skipped runs included).
+
+    Returns
+    -------
+    BatchResult
+        One row per run: ``ok`` (done now), ``skipped`` (done before with the same
+        fingerprint: no work, ``seconds`` 0) or ``failed`` (with its reason).
+
+    Notes
+    -----
+    The manifest is checked whole before any run starts (InputError). A failing
+    run does not stop the others; it leaves no folder, and an older complete
+    folder of the same run stays as it was. On Ctrl-C (KeyboardInterrupt) the
+    pending runs are cancelled, the local cluster is closed, temporary folders
+    are removed and ``batch.csv`` is left as it was; finished runs stay and a
+    rerun skips them. On an existing cluster a run already executing when
+    Ctrl-C comes cannot be stopped by Dask; it notices that its temporary folder
+    was removed at its next step and stops writing.
+
+    Examples
+    --------
+    >>> res = run_batch("species.csv", "out", workers=2,
+    ...                 progress=lambda done, total: print(done, total))  # doctest: +SKIP
+    >>> res.failures  # doctest: +SKIP
+    {'sp07': 'sp07.csv: no such file; check the path.'}
+    """
+    specs = read_manifest(manifest)
+    if workers is not None and int(workers) < 1:
+        raise InputError(f"--workers {workers}: give 1 or more worker processes.")
+    out = Path(out_dir).resolve()
+    if out.exists() and not out.is_dir():
+        raise InputError(f"--out {out_dir}: exists and is not a folder; give a folder for the batch outputs.")
+    out.mkdir(parents=True, exist_ok=True)
+    runs = [s.run for s in specs]
+    # Left by a batch that was killed outright (power cut, SIGKILL): never complete runs.
+    _remove_partials(out, runs)
+
+    total, done = len(specs), 0
+    rows: dict = {}
+    todo = []
+    hashes: dict = {}
+    for spec in specs:
+        fp, inputs = fingerprint(spec, hashes)
+        row = _skipped_row(spec, out / spec.run, fp)
+        if row is None:
+            todo.append((spec, fp, inputs))
+            continue
+        rows[spec.run] = row
+        done += 1
+        if progress is not None:
+            progress(done, total)
+
+    if todo:
+        from distributed import as_completed
+
+        client, cluster = _connect(workers, scheduler)
+        futures = {}
+        try:
+            for spec, fp, inputs in todo:
+                fut = client.submit(execute_run, spec, str(out), fp, inputs, pure=False)
+                futures[fut] = spec
+            for fut in as_completed(list(futures), loop=client.loop):
+                spec = futures[fut]
+                try:
+                    row = fut.result()
+                except Exception as e:  # the task itself died (worker lost, unpicklable...)
+                    row = {k: None for k in BATCH_COLUMNS}
+                    row.update(run=spec.run, status="failed", error=one_line(e), method=spec.options["method"],
+                               folds=spec.options["folds"])
+                rows[spec.run] = row
+                done += 1
+                if progress is not None:
+                    progress(done, total)
+        except BaseException:
+            # Ctrl-C (or anything else here): stop what is queued, close our cluster
+            # (its workers die with it), then sweep the temporary folders.
+            try:
+                client.cancel(list(futures), force=True)
+            finally:
+                _close(client, cluster)
+                _remove_partials(out, runs)
+            raise
+        _close(client, cluster)
+
+    ordered = tuple(rows[r] for r in sorted(rows))
+    table = write_batch_table(ordered, out / "batch.csv")
+    return BatchResult(out, table, ordered)
+
+
+# ---------------------------------------------------------------------------
+# Command
+
+
+def batch_command(
+    manifest: Path = typer.Argument(..., help="Manifest CSV: one run per row; columns run, records and any "
+                                              "design/audit/evaluate option (method, folds, block_size, buffer, "
+                                              "env, seed, model, replicates, ...)."),
+    out_dir: Path = typer.Option(..., "--out", help="Output folder: one folder per run, plus batch.csv."),
+    workers: Optional[int] = typer.Option(None, "--workers", help="Worker processes of the local Dask cluster (default 2)."),
+    scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, "
+                                                                      "e.g. tcp://127.0.0.1:8786, instead of a local cluster."),
+):
+    """Run many designs, audits and evaluations (e.g. one per species) from a manifest, on Dask.
+
+    Each run writes OUT/RUN/folds.csv, OUT/RUN/audit/ and OUT/RUN/evaluation/ as the
+    single commands would; OUT/batch.csv has one row per run. A rerun skips runs
+    whose options and input files are unchanged. Exit codes: 0 every run ok or
+    skipped, 1 at least one run failed (the others are done), 2 bad manifest or options.
+    """
+    from rich.table import Table
+
+    from splitter.cli import out as console
+    from splitter.cli import progress as progress_bar
+
+    with progress_bar() as bar:
+        task = bar.add_task("checking the manifest", total=None)
+
+        def step(done, total):
+            bar.update(task, completed=done, total=total, description=f"runs done: {done} of {total}")
+
+        result = run_batch(manifest, out_dir, workers=workers, scheduler=scheduler, progress=step)
+
+    t = Table(title=f"batch: {len(result.rows)} runs", title_justify="left")
+    for c in ("run", "status", "method", "folds", "presences", "audit", "significant", "seconds", "reason"):
+        t.add_column(c, justify="right" if c in ("folds", "presences", "significant", "seconds") else "left",
+                     overflow="fold")
+    shown = result.rows if len(result.rows) <= 40 else [r for r in result.rows if r["status"] == "failed"]
+    for r in shown:
+        sig = "" if r["folds_evaluated"] is None else f"{r['folds_significant']}/{r['folds_evaluated']}"
+        t.add_row(r["run"], r["status"], _fmt(r["method"], "method"), _fmt(r["folds"], "folds"),
+                  _fmt(r["n_presence"], "n"), _fmt(r["audit_verdict"], "a"), sig,
+                  _fmt(r["seconds"], "seconds") if r["status"] != "skipped" else "-", r["error"] or "")
+    if len(shown) < len(result.rows):
+        t.caption = f"failed runs only; all {len(result.rows)} runs are in {result.table}"
+    console.print(t)
+    console.print(f"runs ok: {result.n_ok}, skipped (unchanged): {result.n_skipped}, failed: {result.n_failed}")
+    for run, why in result.failures.items():
+        console.print(f"failed: {run}: {why}", markup=False, soft_wrap=True)
+    console.print(f"summary: {result.table}")
+    console.print(f"outputs: {result.out_dir}")
+    if result.n_failed:
+        raise typer.Exit(1)

@@ -1,0 +1,333 @@
+"""The methods paragraph, written from a run's recorded parameters and results.
+
+Every number in the text comes from the run's files (design sidecar, audit and
+evaluation JSON, range estimate) through the formatters below, which the
+appendix tables use too, so text and tables always agree and a reader (or a
+test) can parse the numbers back:
+
+* counts: plain integers, no thousands separator (``2430``);
+* distances: km with one decimal (``123.9 km``);
+* shares, AUC, AUC ratios, E and alpha: three decimals or fewer, trailing
+  zeros kept for shares and ratios (``0.050``), not for E/alpha (``0.05``);
+* p-values: three significant digits, ``< 0.001`` below 0.001 (tables give
+  ``1.23e-05`` style values).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+METHOD_WORDS = {
+    "blocks": "spatial blocks",
+    "hexagons": "hexagonal spatial blocks",
+    "checkerboard": "a checkerboard of square cells",
+    "clusters": "environmental clusters",
+    "groups": "groups (leave one group out)",
+    "holdout-group": "a one-way group holdout",
+    "random": "random assignment",
+    "leave-one-out": "leave-one-out",
+}
+
+
+# --- number formats shared by text and tables -------------------------------------------------
+
+def fmt_count(n) -> str:
+    """An integer count: ``2430``."""
+    return str(int(n))
+
+
+def fmt_km(x) -> str:
+    """A distance in km with one decimal, unit included: ``123.9 km``."""
+    return f"{float(x):.1f} km"
+
+
+def fmt_km_value(x) -> str:
+    """A distance in km with one decimal, no unit (table cells)."""
+    return "" if x is None or not math.isfinite(float(x)) else f"{float(x):.1f}"
+
+
+def fmt_share(x) -> str:
+    """A share, AUC or ratio with three decimals: ``0.824``."""
+    return "" if x is None or not math.isfinite(float(x)) else f"{float(x):.3f}"
+
+
+def fmt_level(x) -> str:
+    """A chosen level (E, alpha, a quantile) as given: ``0.05``."""
+    return f"{float(x):g}"
+
+
+def fmt_p(p) -> str:
+    """A p-value: three significant digits, ``< 0.001`` below 0.001."""
+    if p is None or (isinstance(p, float) and not math.isfinite(p)):
+        return ""
+    p = float(p)
+    return "< 0.001" if p < 0.001 else f"{p:.3g}"
+
+
+def fmt_list(items) -> str:
+    """``a``, ``a and b``, ``a, b and c``."""
+    items = [str(i) for i in items]
+    if not items:
+        return ""
+    if len(items) == 1:
+        return items[0]
+    return ", ".join(items[:-1]) + " and " + items[-1]
+
+
+def _num(v):
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return float("nan")
+    return f
+
+
+def threshold_words(rule: str) -> str:
+    """Plain words for a threshold rule's text form."""
+    rule = str(rule)
+    name, _, arg = rule.partition(":")
+    if name == "lowest":
+        return "the lowest prediction at a calibration presence"
+    if name == "quantile":
+        q = _num(arg)
+        return (f"the {fmt_level(q)} quantile of predictions at calibration presences "
+                f"(at most {fmt_level(q * 100)}% of calibration presences predicted absent)")
+    if name == "value":
+        return f"the fixed value {arg}"
+    if name == "max-tss":
+        return "the value maximising TSS on the calibration records"
+    return f"the rule {rule}"
+
+
+# --- sentences ------------------------------------------------------------------------------
+
+def records_sentence(design: dict) -> str:
+    rec = design.get("records", {}) or {}
+    dropped = rec.get("dropped", {}) or {}
+    n_dropped = int(sum(int(v) for v in dropped.values()))
+    text = (f"The fold table holds {fmt_count(rec.get('rows', 0))} rows: {fmt_count(rec.get('presence', 0))} presence, "
+            f"{fmt_count(rec.get('absence', 0))} absence and {fmt_count(rec.get('background', 0))} background records; "
+            f"{fmt_count(n_dropped)} rows were dropped")
+    if dropped:
+        text += " (" + ", ".join(f"{k}: {fmt_count(v)}" for k, v in sorted(dropped.items())) + ")"
+    if int(rec.get("calibration_only", 0) or 0):
+        text += f", and {fmt_count(rec['calibration_only'])} records are used for calibration only"
+    return text + "."
+
+
+def range_sentence(range_doc: dict) -> str:
+    fits = range_doc.get("fits", []) or []
+    covs = list(dict.fromkeys(f.get("covariate") for f in fits))
+    chosen = [f for f in fits if f.get("chosen")]
+    text = (f"The autocorrelation range was estimated from empirical semivariograms of {fmt_count(len(covs))} "
+            f"covariates ({fmt_list(covs)}), each fitted with spherical and exponential models by weighted least squares; "
+            f"the suggested block size is {fmt_km(range_doc.get('suggested_block_km'))}")
+    rule = range_doc.get("summary_rule")
+    if rule:
+        text += f" ({rule})"
+    text += "."
+    parts = []
+    for f in chosen:
+        if f.get("range_at_bound"):
+            parts.append(f"{f['covariate']}: range not reached within the sampled distances")
+        else:
+            parts.append(f"{f['covariate']}: {fmt_km(f['range_km'])} ({f['model']})")
+    if parts:
+        text += " Chosen effective ranges: " + "; ".join(parts) + "."
+    return text
+
+
+def _design_sentences(split, plane_words: str) -> list[str]:
+    d = split.design
+    p = split.parameters
+    method = split.method
+    k = int(d.get("n_folds", p.get("folds", 0)) or 0)
+    rec = d.get("records", {}) or {}
+    seed = d.get("seed", p.get("seed"))
+    how = METHOD_WORDS.get(method, f"the given fold column ({method})")
+    kept = fmt_count(rec.get("kept", rec.get("rows", 0)))
+    out = []
+    size = p.get("block_size_km", d.get("block_size_km"))
+    if method in ("blocks", "hexagons", "checkerboard") and size is not None:
+        shape = ("hexagonal cells with the area of a square block of " if method == "hexagons"
+                 else "square cells of ")
+        s = (f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: {shape}{fmt_km(size)} "
+             f"laid in {plane_words}")
+        off = p.get("grid_offset_km")
+        if off and len(off) == 2:
+            s += f", with the grid origin shifted by {fmt_km(off[0])} east and {fmt_km(off[1])} north"
+        s += f" (seed {seed})."
+        out.append(s)
+        rule = p.get("block_size_rule", "given")
+        if rule == "auto":
+            out.append("The block size equals the estimated autocorrelation range (block-size rule: auto).")
+        elif rule == "match":
+            out.append("The block size was chosen from a ladder of sizes as the one whose evaluation-to-calibration "
+                       "distances best match the prediction-location-to-record distances (block-size rule: match).")
+        else:
+            out.append("The block size was set by the analyst (block-size rule: given).")
+        if method == "checkerboard":
+            out.append("Cells take folds in a fixed pattern so that neighbouring cells differ "
+                       "(2 folds: rook neighbours; 4 folds: a 2 x 2 tile; 5 or more: fold = (i + 2j) mod k).")
+        elif p.get("occupied_cells") is not None:
+            out.append(f"The {fmt_count(p['occupied_cells'])} occupied cells were allotted to folds so that presence "
+                       f"counts (then background counts) per fold are as even as possible "
+                       f"(imbalance reported by the design: presence {fmt_share(_num(p.get('presence_imbalance')))}, "
+                       f"background {fmt_share(_num(p.get('background_imbalance')))}).")
+    elif method == "clusters":
+        covs = p.get("covariates") or []
+        out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: k-means (seed {seed}) on "
+                   f"the covariates {fmt_list(covs)}, standardised on {p.get('standardised_on', 'the records')}.")
+    elif method == "groups":
+        out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: one fold per value of "
+                   f"the column `{p.get('group_column', '?')}`.")
+    elif method == "holdout-group":
+        out.append(f"The {kept} kept records were split by {how} on the column `{p.get('group_column', '?')}`: "
+                   f"calibration on {fmt_list(p.get('calibrate_on') or ['the other groups'])}, evaluation on "
+                   f"{fmt_list(p.get('evaluate_on') or ['the remaining groups'])}.")
+    elif method == "random":
+        out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}, without regard to "
+                   f"location (seed {seed}).")
+    elif method == "leave-one-out":
+        out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: each presence is "
+                   f"evaluated once, in a fold of its own.")
+    else:
+        out.append(f"The {kept} kept records were in {fmt_count(k)} folds given by the analyst.")
+
+    buffer = _num(d.get("buffer_km", p.get("buffer_km", 0)) or 0)
+    folds = d.get("folds", []) or []
+    if buffer > 0:
+        gaps = [fmt_count(f.get("gap", 0)) for f in folds]
+        out.append(f"A buffer of {fmt_km(buffer)} was applied: calibration records closer than {fmt_km(buffer)} to a "
+                   f"fold's evaluation records were left out of that fold's calibration set "
+                   f"({fmt_list(gaps)} records left out, fold by fold).")
+    else:
+        out.append("No buffer was applied.")
+    if folds:
+        ev = [fmt_count(f.get("evaluation_presence", 0)) for f in folds]
+        cal = [fmt_count(f.get("calibration_presence", 0)) for f in folds]
+        out.append(f"Evaluation presences per fold: {fmt_list(ev)}; calibration presences per fold: {fmt_list(cal)}.")
+    return out
+
+
+def _audit_sentences(split) -> list[str]:
+    a = split.audit
+    if a is None:
+        return ["The split was not audited for residual dependence (no audit/audit.json in its folder)."]
+    rows = a.get("folds", []) or []
+    ctx = a.get("context", {}) or {}
+    verdicts = [str(r.get("verdict", "")) for r in rows]
+    k = len(rows)
+    rng = _num(a.get("range_km", ctx.get("range_km")))
+    text = "Residual dependence was audited per fold"
+    if math.isfinite(rng):
+        text += f" against an autocorrelation range of {fmt_km(rng)}"
+        if ctx.get("range_source"):
+            src = str(ctx["range_source"]).split(" (")[0]
+            text += f" ({src})"
+    text += "."
+    out = [text]
+    med = np.array([_num(r.get("nn_median_km")) for r in rows], float)
+    within = np.array([_num(r.get("share_within_range")) for r in rows], float)
+    if np.isfinite(med).any():
+        s = (f"The median distance from an evaluation record to its nearest calibration record ran from "
+             f"{fmt_km(np.nanmin(med))} to {fmt_km(np.nanmax(med))} across folds")
+        if np.isfinite(within).any():
+            s += (f", and the share of evaluation records within the range of a calibration record from "
+                  f"{fmt_share(np.nanmin(within))} to {fmt_share(np.nanmax(within))}")
+        out.append(s + ".")
+    rules = a.get("rules", []) or []
+    if rules:
+        out.append("Rules applied (thresholds in the audit table): " +
+                   "; ".join(f"{r.get('name')} (threshold {fmt_level(r.get('threshold'))})" for r in rules) + ".")
+    out.append(f"{fmt_count(verdicts.count('independent'))} of {fmt_count(k)} folds were judged independent, "
+               f"{fmt_count(verdicts.count('dependent'))} dependent and {fmt_count(verdicts.count('insufficient'))} "
+               f"insufficient; the split's audit verdict is {a.get('verdict', 'not given')}.")
+    return out
+
+
+def _model_words(params: dict) -> str:
+    model = params.get("model")
+    if model == "baseline":
+        return "the built-in baseline presence-background model, calibrated on each fold's calibration set"
+    if model:
+        return f"the model `{model}`, calibrated on each fold's calibration set"
+    if params.get("prediction_table"):
+        return "the analyst's predictions (a prediction table)"
+    return "the analyst's prediction rasters, one per fold"
+
+
+def _evaluation_sentences(split) -> list[str]:
+    e = split.evaluation
+    if e is None:
+        return ["The split was not evaluated (no evaluation/evaluation.json in its folder)."]
+    par = e.get("parameters", {}) or {}
+    rows = e.get("folds", []) or []
+    k = len(rows)
+    sig = [bool(r.get("significant")) for r in rows]
+    n_sig = sum(sig)
+    out = [
+        f"Predictions came from {_model_words(par)}. The threshold was chosen from calibration presences only: "
+        f"`{par.get('threshold_rule')}`, {threshold_words(par.get('threshold_rule'))}.",
+        f"Significance was tested first, per fold: a one-tailed cumulative binomial test of the evaluation presences "
+        f"predicted present against the area predicted present, and a partial ROC test with omission tolerance "
+        f"E = {fmt_level(par.get('omission'))} and {fmt_count(par.get('replicates', 0))} bootstrap replicates "
+        f"(each resampling 50% of the evaluation presences, seed {par.get('seed')}); a fold is significant when "
+        f"{par.get('significance_rule', 'both tests reject the null')}, with alpha = {fmt_level(par.get('alpha'))}.",
+    ]
+    s = f"{fmt_count(n_sig)} of {fmt_count(k)} folds were significant"
+    good = [r for r in rows if r.get("significant")]
+    ratios = np.array([_num(r.get("auc_ratio_mean")) for r in good], float)
+    aucs = np.array([_num(r.get("auc")) for r in good], float)
+    if good and np.isfinite(ratios).any():
+        s += (f"; among them the partial AUC ratio (bootstrap mean) ran from {fmt_share(np.nanmin(ratios))} to "
+              f"{fmt_share(np.nanmax(ratios))} and the full AUC from {fmt_share(np.nanmin(aucs))} to "
+              f"{fmt_share(np.nanmax(aucs))}")
+    out.append(s + ".")
+    bad = [str(r.get("fold")) for r, ok in zip(rows, sig) if not ok]
+    if bad:
+        out.append(f"Fold{'s' if len(bad) > 1 else ''} {fmt_list(bad)} {'were' if len(bad) > 1 else 'was'} not "
+                   f"significant: marked \"do not interpret\", and {'their' if len(bad) > 1 else 'its'} performance "
+                   f"figures are not findings.")
+    return out
+
+
+def split_paragraph(split, plane_words: str, include_records: bool = False) -> str:
+    """One paragraph describing how a split was made, audited and evaluated."""
+    parts = [f"Split `{split.name}`:"]
+    if include_records:
+        parts.append(records_sentence(split.design))
+    parts += _design_sentences(split, plane_words)
+    parts += _audit_sentences(split)
+    parts += _evaluation_sentences(split)
+    return " ".join(parts)
+
+
+def comparison_paragraph(splits) -> str:
+    """One sentence per split, side by side, when a run holds several."""
+    bits = []
+    for s in splits:
+        b = f"`{s.name}` ({METHOD_WORDS.get(s.method, s.method)})"
+        if s.audit is not None:
+            v = [str(r.get("verdict")) for r in s.audit.get("folds", [])]
+            b += (f": audit verdict {s.audit.get('verdict')} ({fmt_count(v.count('independent'))} of "
+                  f"{fmt_count(len(v))} folds independent)")
+        else:
+            b += ": not audited"
+        if s.evaluation is not None:
+            rows = s.evaluation.get("folds", [])
+            b += f", {fmt_count(sum(bool(r.get('significant')) for r in rows))} of {fmt_count(len(rows))} folds significant"
+        else:
+            b += ", not evaluated"
+        bits.append(b)
+    text = "Side by side: " + "; ".join(bits) + "."
+    dep = [s.name for s in splits if s.audit is not None and s.audit.get("verdict") == "dependent"]
+    ind = [s.name for s in splits if s.audit is not None and s.audit.get("verdict") == "independent"]
+    if dep and ind:
+        text += (f" Evaluation records of a split judged dependent ({fmt_list(f'`{n}`' for n in dep)}) sit close to "
+                 f"calibration records, so its tests mostly measure interpolation between neighbours; the "
+                 f"split judged independent ({fmt_list(f'`{n}`' for n in ind)}) is the one whose results speak to "
+                 f"prediction away from the calibration data.")
+    return text
