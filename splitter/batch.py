@@ -623,17 +623,30 @@ def _skipped_row(spec: RunSpec, final: Path, fp: str) -> Optional[dict]:
 
 
 def _partials(out: Path, runs) -> list:
-    names = {f".{r}.partial-" for r in runs}
+    """Temporary folders of these runs: being written, withdrawn, or an older run being replaced."""
+    prefixes = tuple(f".{r}.{tag}-" for r in runs for tag in ("partial", "old"))
     if not out.is_dir():
         return []
-    return [p for p in out.iterdir() if p.name.startswith(".") and any(p.name.startswith(n) for n in names)]
+    return [p for p in out.iterdir() if p.name.startswith(prefixes)]
 
 
 def _remove_partials(out: Path, runs) -> None:
-    # Twice: a worker may be creating files while the first sweep runs.
-    for _ in range(2):
+    """Take the temporary folders away: rename first, then delete.
+
+    The rename is atomic, so a worker that is just renaming the same folder to its
+    final name either wins (the run is complete and stays) or finds it gone; a
+    folder is never deleted while it becomes a run's folder.
+    """
+    for _ in range(2):  # twice: a worker may be creating one while the first sweep runs
         for p in _partials(out, runs):
-            shutil.rmtree(p, ignore_errors=True)
+            target = p
+            if not p.name.endswith(".withdrawn"):
+                target = p.with_name(p.name + ".withdrawn")
+                try:
+                    os.replace(p, target)
+                except OSError:
+                    continue
+            shutil.rmtree(target, ignore_errors=True)
 
 
 def _fmt(v, key) -> str:

@@ -113,7 +113,6 @@ def fold_summary_table(assignment, title: str) -> Table:
     return t
 
 
-@app.command()
 @guarded
 def design(
     records: Path = typer.Argument(..., help="Occurrence records: CSV, GeoPackage or GeoParquet."),
@@ -205,7 +204,6 @@ def evaluation_table(result, title: str) -> Table:
     return t
 
 
-@app.command()
 @guarded
 def evaluate(
     folds_table: Path = typer.Argument(..., metavar="FOLDS", help="Fold table (ours, or your own with a fold column)."),
@@ -260,7 +258,6 @@ def evaluate(
         raise typer.Exit(1)
 
 
-@app.command("range")
 @guarded
 def range_command(
     env: List[Path] = typer.Option(..., "--env", help="Covariate GeoTIFF (repeatable)."),
@@ -307,7 +304,6 @@ def audit_table(result) -> Table:
     return t
 
 
-@app.command()
 @guarded
 def audit(
     table: Path = typer.Argument(..., help="Fold table: ours, or your own with a fold or role column."),
@@ -356,7 +352,6 @@ def audit(
         raise typer.Exit(1)
 
 
-@app.command()
 @guarded
 def appendix(
     run_dir: Path = typer.Argument(..., help="A run folder (a split with its audit/ and evaluation/), or a folder of several."),
@@ -378,7 +373,6 @@ def appendix(
     out.print(f"tables: {len(result.tables)} CSV, figures: {len(result.figures)} files in {out_dir}")
 
 
-@app.command()
 @guarded
 def demo(
     out_dir: Path = typer.Argument(Path("splitter-demo"), help="Where to write the demo run."),
@@ -418,6 +412,15 @@ def demo_summary(run) -> Table:
         t.add_row(*cells)
     t.caption = "NN km: median distance from evaluation presences to the nearest calibration presence"
     return t
+
+
+# Commands, in the order a newcomer meets them.
+app.command()(demo)
+app.command()(design)
+app.command("range")(range_command)
+app.command()(audit)
+app.command()(evaluate)
+app.command()(appendix)
 
 
 def run():  # pragma: no cover - console entry for python -m

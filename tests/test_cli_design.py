@@ -1,6 +1,7 @@
 """The design command as a user runs it: outputs, and one clear line + exit 2 on bad input."""
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -149,3 +150,68 @@ def test_rows_without_covariate_values_are_kept_and_dropped(tmp_path):
     outside = ~((lon >= 6) & (lon < 11) & (lat > 45) & (lat <= 50))
     assert (out.loc[outside, "dropped"] == "no-covariate-value").all()
     assert (out.loc[~outside, "dropped"] == "").all() and outside.any()
+
+
+DEMO = Path(__file__).resolve().parent.parent / "demo_data"
+
+
+def test_background_from_a_file_and_sampled_over_rasters(tmp_path):
+    import pandas as pd
+    import rasterio
+
+    pres = write_records_csv(tmp_path / "p.csv", n_presence=80, n_background=0, lon0=-38, lat0=45)
+    res = run("design", pres, "--background", DEMO / "background.csv", "--method", "random", "--folds", 3,
+              "--out", tmp_path / "a.csv")
+    assert res.exit_code == 0, res.output
+    a = pd.read_csv(tmp_path / "a.csv", dtype=str, keep_default_na=False)
+    assert (a.kind == "background").sum() == 2000 and (a.kind == "presence").sum() == 80
+    res = run("design", pres, "--background-count", 150, "--env", DEMO / "temperature.tif", "--method", "blocks",
+              "--folds", 3, "--block-size", 100, "--seed", 4, "--out", tmp_path / "b.csv")
+    assert res.exit_code == 0, res.output
+    b = pd.read_csv(tmp_path / "b.csv", dtype=str, keep_default_na=False)
+    bg = b[b.kind == "background"]
+    assert len(bg) == 150 and bg.record_id.str.startswith("bg-").all()
+    with rasterio.open(DEMO / "temperature.tif") as src:
+        vals = np.array([v[0] for v in src.sample(zip(bg.longitude.astype(float), bg.latitude.astype(float)))])
+        # reference: rasterio's own sampling — every sampled background point is on a valid cell
+        assert np.all(vals != src.nodata)
+    assert_one_line_error(run("design", pres, "--background-count", 10, "--block-size", 50, "--out", tmp_path / "c.csv"),
+                          "--background-count", "--env")
+
+
+def test_projected_records_use_planar_kilometres(tmp_path):
+    import pandas as pd
+    import pyproj
+
+    rng = np.random.default_rng(2)
+    x = rng.uniform(4_000_000, 4_300_000, 150)
+    y = rng.uniform(3_000_000, 3_200_000, 150)
+    (tmp_path / "p.csv").write_text("x,y\n" + "\n".join(f"{a:.1f},{b:.1f}" for a, b in zip(x, y)) + "\n")
+    res = run("design", tmp_path / "p.csv", "--crs", "EPSG:3035", "--method", "blocks", "--folds", 4,
+              "--block-size", 50, "--buffer", 15, "--seed", 1, "--out", tmp_path / "f.csv")
+    assert res.exit_code == 0, res.output
+    side = json.loads((tmp_path / "f.design.json").read_text())
+    assert side["geometry_crs"] == "EPSG:3035"  # a projected CRS is used as it is
+    f = pd.read_csv(tmp_path / "f.csv")
+    gaps = pd.read_csv(tmp_path / "f.gaps.csv")
+    for i in range(1, 5):
+        ev = f[f.fold == i]
+        cal = f[(f.fold != i) & ~f.record_id.isin(gaps[gaps.fold == i].record_id)]
+        # reference: analytic Euclidean distance in metres of the projected CRS
+        d = np.hypot(cal.x.to_numpy()[:, None] - ev.x.to_numpy()[None], cal.y.to_numpy()[:, None] - ev.y.to_numpy()[None])
+        assert d.min() >= 15_000
+    assert pyproj.CRS.from_user_input(side["geometry_crs"]).is_projected
+
+
+def test_block_size_auto_uses_the_estimated_range(tmp_path):
+    pres = write_records_csv(tmp_path / "p.csv", n_presence=120, n_background=0, lon0=-38, lat0=45)
+    env = [DEMO / "moisture.tif", DEMO / "canopy.tif"]
+    res = run("design", pres, "--block-size", "auto", *[a for p in env for a in ("--env", p)], "--folds", 3,
+              "--seed", 2, "--out", tmp_path / "f.csv")
+    assert res.exit_code == 0, res.output
+    side = json.loads((tmp_path / "f.design.json").read_text())
+    import splitter
+
+    est = splitter.estimate_range(env, seed=2)
+    assert side["block_size_km"] == est.suggested_block_km
+    assert side["parameters"]["block_size_rule"] == "auto"

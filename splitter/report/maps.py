@@ -83,9 +83,11 @@ class MapPlane:
 
     def describe(self) -> str:
         """A short plain description (projection and centre) for captions."""
-        d = self.crs.to_dict() if hasattr(self.crs, "to_dict") else {}
-        if d.get("proj") == "laea":
-            lat0, lon0 = float(d.get("lat_0", 0.0)), float(d.get("lon_0", 0.0))
+        op = self.crs.coordinate_operation
+        if op is not None and "lambert azimuthal equal area" in op.method_name.lower():
+            par = {p.name.lower(): float(p.value) for p in op.params}
+            lat0 = par.get("latitude of natural origin", 0.0)
+            lon0 = par.get("longitude of natural origin", 0.0)
             return (f"Lambert azimuthal equal-area projection centred at "
                     f"{abs(lat0):.2f}° {'N' if lat0 >= 0 else 'S'}, {abs(lon0):.2f}° {'E' if lon0 >= 0 else 'W'}")
         epsg = self.crs.to_epsg()

@@ -1,0 +1,781 @@
+"""The methods appendix: Markdown, a self-contained HTML page, CSV tables and figures.
+
+Built from a run folder alone (design sidecars, fold tables, audit and
+evaluation files, the range estimate): every number in it is read from those
+files, nothing is typed in by hand. The run folder is only read; everything is
+written under OUT_DIR, atomically, and the same run folder always gives the
+same bytes.
+
+Examples
+--------
+>>> from splitter.report.appendix import build_appendix
+>>> app = build_appendix("splitter-demo", "splitter-demo/appendix")  # doctest: +SKIP
+>>> app.html.name  # doctest: +SKIP
+'appendix.html'
+"""
+
+from __future__ import annotations
+
+import math
+import platform
+import re
+import shlex
+import shutil
+from dataclasses import dataclass, field
+from importlib import metadata
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from splitter.errors import InputError
+from splitter.io.atomic import atomic_path, atomic_write
+from splitter.io.results import write_csv
+from splitter.report import paragraph as P
+from splitter.report.document import Bullets, Code, Document, Figure, Heading, Table, Text, to_markdown
+from splitter.report.html import to_html
+from splitter.report.maps import SPATIAL_METHODS, MapPlane, cell_grid, generalise_coordinates, plot_fold_map
+from splitter.report.panels import plot_roc_panels, range_estimate_from_dict
+from splitter.report.rundir import Run, SplitRun, load_run, sha256_file
+from splitter.report.style import save
+
+__all__ = ["Appendix", "build_appendix"]
+
+TITLE = "Methods appendix: evaluation folds, dependence audit and per-fold tests"
+#: Packages whose versions the reproducibility block lists (import name -> distribution name).
+PACKAGES = (("splitter", "splitter"), ("numpy", "numpy"), ("scipy", "scipy"), ("pandas", "pandas"),
+            ("scikit-learn", "scikit-learn"), ("geopandas", "geopandas"), ("shapely", "shapely"),
+            ("pyproj", "pyproj"), ("rasterio", "rasterio"), ("matplotlib", "matplotlib"))
+#: Decimal places kept for generalised longitude/latitude (1e-7 degree is about 1 cm).
+LONLAT_DECIMALS = 7
+
+
+@dataclass(frozen=True)
+class Appendix:
+    """Where the appendix was written.
+
+    Attributes
+    ----------
+    markdown, html : Path
+    tables : list of Path
+        CSV tables under ``tables/``.
+    figures : list of Path
+        PNG and SVG files under ``figures/``.
+    generalise_km : float or None
+    """
+
+    markdown: Path
+    html: Path
+    tables: list = field(default_factory=list)
+    figures: list = field(default_factory=list)
+    generalise_km: float | None = None
+
+
+# --- helpers ---------------------------------------------------------------------------------
+
+def _safe(name: str) -> str:
+    return re.sub(r"[^A-Za-z0-9_.-]+", "-", name).strip("-") or "split"
+
+
+def _num(v) -> float:
+    try:
+        return float(v)
+    except (TypeError, ValueError):
+        return float("nan")
+
+
+def _truthy(v) -> bool:
+    return str(v).strip().lower() in ("true", "1", "yes")
+
+
+def _version(dist: str) -> str:
+    if dist == "splitter":
+        import splitter
+
+        return splitter.__version__
+    try:
+        return metadata.version(dist)
+    except metadata.PackageNotFoundError:
+        return "not installed"
+
+
+def _seed_from(command: str | None) -> str:
+    if not command:
+        return ""
+    try:
+        parts = shlex.split(command)
+    except ValueError:
+        return ""
+    for a, b in zip(parts, parts[1:]):
+        if a == "--seed":
+            return b
+    return ""
+
+
+def _check_out_dir(run: Run, out_dir: Path) -> None:
+    """OUT_DIR may sit inside RUN_DIR (as the demo's does) but never on the run's files."""
+    out = out_dir.resolve()
+    if out == run.folder.resolve():
+        raise InputError(f"--out {out_dir}: is the run folder itself; give a new folder (e.g. {run.folder}/appendix).")
+    guarded = [s.folder.resolve() for s in run.splits]
+    if run.range_path is not None:
+        guarded.append(run.range_path.parent.resolve())
+    for g in guarded:
+        if out == g or g in out.parents:
+            raise InputError(f"--out {out_dir}: lies inside {g}, which holds the run's files; give another folder.")
+
+
+class _Writer:
+    """Collects written files and keeps the figure/table names."""
+
+    def __init__(self, out_dir: Path):
+        self.out = out_dir
+        self.tables: list[Path] = []
+        self.figures: list[Path] = []
+
+    def table(self, frame: pd.DataFrame, name: str) -> str:
+        path = write_csv(frame, self.out / "tables" / f"{name}.csv")
+        self.tables.append(path)
+        return f"tables/{name}.csv"
+
+    def figure(self, fig, name: str) -> str:
+        self.figures += save(fig, self.out / "figures" / name)
+        return f"figures/{name}"
+
+    def copy_figure(self, stem: Path, name: str) -> str | None:
+        """Reuse a figure the run already drew (PNG and SVG)."""
+        if not all(stem.with_suffix(s).exists() for s in (".png", ".svg")):
+            return None
+        for s in (".png", ".svg"):
+            dst = self.out / "figures" / f"{name}{s}"
+            dst.parent.mkdir(parents=True, exist_ok=True)
+            with atomic_path(dst) as tmp:
+                shutil.copyfile(stem.with_suffix(s), tmp)
+            self.figures.append(dst)
+        return f"figures/{name}"
+
+
+# --- the map plane and coordinates -----------------------------------------------------------
+
+def _map_plane(run: Run) -> MapPlane:
+    """One equal-area plane for every map: the first spatial split's geometry CRS, else one
+    centred on the records."""
+    ordered = sorted(run.splits, key=lambda s: (s.method not in SPATIAL_METHODS, s.name))
+    for s in ordered:
+        crs = s.geometry_crs
+        if crs is not None and crs.is_projected:
+            return MapPlane(crs)
+    from splitter.geo import Points
+
+    r = run.splits[0].records
+    return MapPlane.for_points(Points.lonlat(r.lon, r.lat))
+
+
+@dataclass(frozen=True)
+class _Coords:
+    x_km: np.ndarray
+    y_km: np.ndarray
+    lon: np.ndarray
+    lat: np.ndarray
+
+
+def _coords(split: SplitRun, plane: MapPlane, generalise_km: float | None) -> _Coords:
+    r = split.records
+    x, y = plane.from_lonlat(r.lon, r.lat)
+    if generalise_km is None:
+        return _Coords(x, y, r.lon, r.lat)
+    gx, gy = generalise_coordinates(x, y, generalise_km)
+    lon, lat = plane.to_lonlat(gx, gy)
+    return _Coords(gx, gy, np.round(lon, LONLAT_DECIMALS), np.round(lat, LONLAT_DECIMALS))
+
+
+# --- tables ----------------------------------------------------------------------------------
+
+def _records_frame(split: SplitRun, c: _Coords) -> pd.DataFrame:
+    r = split.records
+    n = r.record_id.size
+    # "1;3": the folds whose calibration set leaves this record out (buffer gaps).
+    order = np.lexsort((r.gap_folds, r.gap_rows))
+    rows, folds = r.gap_rows[order], r.gap_folds[order]
+    gaps = np.full(n, "", dtype=object)
+    if rows.size:
+        starts = np.r_[0, np.flatnonzero(np.diff(rows)) + 1]
+        groups = np.split(folds.astype(str), starts[1:])
+        gaps[rows[starts]] = [";".join(g) for g in groups]
+    fold = pd.array(np.where(r.fold < 0, 0, r.fold), dtype="Int64")
+    fold[r.fold < 0] = pd.NA
+    return pd.DataFrame({
+        "record_id": r.record_id, "kind": r.kind, "fold": fold, "dropped": r.dropped,
+        "left_out_of_calibration_in_folds": gaps,
+        "longitude": c.lon, "latitude": c.lat, "x_km": c.x_km, "y_km": c.y_km,
+    })
+
+
+def _fold_counts_frame(split: SplitRun) -> pd.DataFrame:
+    rows = split.design.get("folds", []) or []
+    names = split.records.fold_names
+    cols = ["fold", "evaluation_presence", "evaluation_absence", "evaluation_background",
+            "calibration_presence", "calibration_absence", "calibration_background", "gap"]
+    df = pd.DataFrame(rows).reindex(columns=cols)
+    if len(df):
+        df["fold"] = [names.get(int(f), str(f)) if pd.notna(f) else "" for f in df["fold"]]
+    return df
+
+
+AUDIT_FIRST = ["fold", "verdict", "reasons"]
+EVAL_FIRST = ["fold", "significant", "interpretation", "binomial_p", "partial_roc_p", "n_evaluation", "successes",
+              "area_predicted", "threshold_rule", "threshold"]
+
+
+def _reorder(df: pd.DataFrame, first: list) -> pd.DataFrame:
+    lead = [c for c in first if c in df.columns]
+    return df[lead + [c for c in df.columns if c not in lead]]
+
+
+def _display_fold_counts(split: SplitRun, frame: pd.DataFrame, source: str) -> Table:
+    has_abs = bool(frame[["evaluation_absence", "calibration_absence"]].fillna(0).astype(float).to_numpy().sum())
+    cols = ["fold", "evaluation presences", "evaluation background"]
+    keys = ["fold", "evaluation_presence", "evaluation_background"]
+    if has_abs:
+        cols.insert(2, "evaluation absences")
+        keys.insert(2, "evaluation_absence")
+    cols += ["calibration presences", "calibration background"]
+    keys += ["calibration_presence", "calibration_background"]
+    if has_abs:
+        cols.insert(-1, "calibration absences")
+        keys.insert(-1, "calibration_absence")
+    buffer = _num(split.design.get("buffer_km", 0) or 0)
+    if buffer > 0:
+        cols.append("left out by the buffer")
+        keys.append("gap")
+    rows = [[str(r["fold"])] + [P.fmt_count(_num(r[k]) if math.isfinite(_num(r[k])) else 0) for k in keys[1:]]
+            for _, r in frame.iterrows()]
+    notes = ["Evaluation counts are the records whose fold is that fold; calibration counts are the other kept "
+             "records" + (", less those the buffer leaves out." if buffer > 0 else ".")]
+    return Table(caption=f"Records per fold, split `{split.name}`.", columns=tuple(cols),
+                 rows=tuple(tuple(r) for r in rows), css_class="fold-counts", element_id=f"fold-counts-{_safe(split.name)}",
+                 notes=tuple(notes), source=source)
+
+
+def _display_rules(rules: list, names: list) -> Table:
+    rows = tuple((str(r.get("name")), str(r.get("rule")), P.fmt_level(r.get("threshold"))) for r in rules)
+    which = "all splits" if len(names) != 1 else f"split `{names[0]}`"
+    return Table(caption=f"Audit rules and their thresholds ({which}). A fold is dependent when any rule fires, "
+                         "independent when every rule that could be applied stays quiet, and insufficient otherwise.",
+                 columns=("rule", "fires when", "threshold"), rows=rows, css_class="audit-rules")
+
+
+def _display_audit(split: SplitRun, source: str) -> Table:
+    t = split.audit_table
+    if t is None:
+        t = pd.DataFrame(split.audit.get("folds", [])).astype(str)
+    spec = [("fold", "fold", str), ("verdict", "verdict", str),
+            ("n_evaluation", "evaluation records", lambda v: P.fmt_count(_num(v)) if math.isfinite(_num(v)) else ""),
+            ("n_calibration", "calibration records", lambda v: P.fmt_count(_num(v)) if math.isfinite(_num(v)) else ""),
+            ("nn_median_km", "median nearest calibration distance (km)", lambda v: P.fmt_km_value(_num(v))),
+            ("nn_p10_km", "10th percentile (km)", lambda v: P.fmt_km_value(_num(v))),
+            ("share_within_range", "share within range", lambda v: P.fmt_share(_num(v))),
+            ("wasserstein_km", "Wasserstein-1 vs prediction locations (km)", lambda v: P.fmt_km_value(_num(v))),
+            ("schoener_d", "Schoener's D", lambda v: P.fmt_share(_num(v))),
+            ("share_outside_envelope", "share outside envelope (MESS < 0)", lambda v: P.fmt_share(_num(v))),
+            ("shared_method_share", "share with a shared method", lambda v: P.fmt_share(_num(v))),
+            ("reasons", "why", str)]
+    spec = [s for s in spec if s[0] in t.columns]
+    rows = tuple(tuple(fn(r[c]) for c, _, fn in spec) for _, r in t.iterrows())
+    notes = ["Distances run from each evaluation record to its nearest calibration record (geodesic). "
+             "Empty cells: the measure could not be computed (no range, covariates or groups given)."]
+    return Table(caption=f"Residual dependence audit, split `{split.name}` (verdict: {split.audit.get('verdict')}).",
+                 columns=tuple(s[1] for s in spec), rows=rows, css_class="audit", element_id=f"audit-{_safe(split.name)}",
+                 notes=tuple(notes), source=source)
+
+
+PERFORMANCE = [("auc_ratio_mean", "partial AUC ratio (mean)"), ("auc_ratio_interval", "95% interval"),
+               ("auc", "full AUC"), ("omission_rate", "omission rate"), ("sensitivity", "sensitivity"),
+               ("specificity", "specificity"), ("tss", "TSS"), ("kappa", "kappa"), ("boyce", "Boyce index")]
+
+
+def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> Table:
+    other = ""
+    if "other_kind" in frame.columns:
+        kinds = set(frame["other_kind"].astype(str)) - {"", "nan"}
+        other = "background" if kinds == {"background"} else ""
+    perf = [(k, "pseudo-specificity" if (k == "specificity" and other == "background") else lab) for k, lab in PERFORMANCE]
+    cols = ["fold", "significant", "interpretation", "binomial p", "partial ROC p", "evaluation presences",
+            "predicted present", "area predicted present"] + [lab for _, lab in perf]
+    fold_rows = frame[frame["fold"].astype(str) != "all"]
+    all_sig = bool(len(fold_rows)) and all(_truthy(v) for v in fold_rows["significant"])
+    rows, classes = [], []
+    for _, r in frame.iterrows():
+        is_all = str(r["fold"]) == "all"
+        sig = _truthy(r.get("significant"))
+        cells = [
+            "all folds" if is_all else str(r["fold"]),
+            "yes" if sig else "no",
+            str(r.get("interpretation", "")),
+            P.fmt_p(_num(r.get("binomial_p"))),
+            P.fmt_p(_num(r.get("partial_roc_p"))),
+            P.fmt_count(_num(r.get("n_evaluation"))) if math.isfinite(_num(r.get("n_evaluation"))) else "",
+            P.fmt_count(_num(r.get("successes"))) if math.isfinite(_num(r.get("successes"))) else "",
+            P.fmt_share(_num(r.get("area_predicted"))),
+        ]
+        show = sig and (not is_all or all_sig)
+        for k, _ in perf:
+            if not show:
+                cells.append("—")
+            elif k == "auc_ratio_interval":
+                lo, hi = _num(r.get("auc_ratio_low")), _num(r.get("auc_ratio_high"))
+                cells.append(f"{P.fmt_share(lo)} – {P.fmt_share(hi)}" if math.isfinite(lo) and math.isfinite(hi) else "")
+            else:
+                cells.append(P.fmt_share(_num(r.get(k))))
+        rows.append(tuple(cells))
+        classes.append("summary" if is_all else ("" if sig else "not-significant"))
+    par = (split.evaluation or {}).get("parameters", {})
+    notes = [
+        f"Significance first: binomial and partial ROC p-values (E = {P.fmt_level(par.get('omission'))}, "
+        f"{P.fmt_count(par.get('replicates', 0))} bootstrap replicates); significant when "
+        f"{par.get('significance_rule', 'both tests reject the null')}, alpha = {P.fmt_level(par.get('alpha'))}.",
+        "A fold that is not significant is marked \"do not interpret\": its performance figures are withheld here "
+        "(they stay in the CSV, flagged).",
+        "\"all folds\": p-values combined with Fisher's method; its performance columns are fold means, shown only "
+        "when every fold is significant.",
+    ]
+    if other == "background":
+        notes.append("Specificity is computed against background points, not true absences (pseudo-specificity).")
+    return Table(caption=f"Per-fold significance and performance, split `{split.name}` (threshold "
+                         f"`{par.get('threshold_rule')}`).",
+                 columns=tuple(cols), rows=tuple(rows), css_class="evaluation",
+                 element_id=f"evaluation-{_safe(split.name)}", row_classes=tuple(classes), notes=tuple(notes),
+                 source=source)
+
+
+def _comparison_frame(splits) -> pd.DataFrame:
+    rows = []
+    for s in splits:
+        d = s.design
+        row = {"split": s.name, "method": s.method, "folds": d.get("n_folds"),
+               "block_size_km": s.parameters.get("block_size_km", d.get("block_size_km")),
+               "block_size_rule": s.parameters.get("block_size_rule", ""), "buffer_km": d.get("buffer_km"),
+               "audit_verdict": "", "independent_folds": np.nan, "significant_folds": np.nan,
+               "nn_median_km_min": np.nan, "nn_median_km_max": np.nan,
+               "auc_ratio_mean_significant": np.nan}
+        if s.audit is not None:
+            f = s.audit.get("folds", [])
+            row["audit_verdict"] = s.audit.get("verdict", "")
+            row["independent_folds"] = sum(str(r.get("verdict")) == "independent" for r in f)
+            med = np.array([_num(r.get("nn_median_km")) for r in f], float)
+            if np.isfinite(med).any():
+                row["nn_median_km_min"], row["nn_median_km_max"] = np.nanmin(med), np.nanmax(med)
+        if s.evaluation is not None:
+            f = s.evaluation.get("folds", [])
+            good = [r for r in f if r.get("significant")]
+            row["significant_folds"] = len(good)
+            v = np.array([_num(r.get("auc_ratio_mean")) for r in good], float)
+            if np.isfinite(v).any():
+                row["auc_ratio_mean_significant"] = float(np.nanmean(v))
+        rows.append(row)
+    df = pd.DataFrame(rows)
+    for c in ("independent_folds", "significant_folds"):
+        df[c] = pd.array([None if not math.isfinite(_num(v)) else int(v) for v in df[c]], dtype="Int64")
+    return df
+
+
+def _display_comparison(df: pd.DataFrame, source: str) -> Table:
+    def km(v):
+        return P.fmt_km_value(_num(v)) if math.isfinite(_num(v)) else "none"
+
+    def cnt(v):
+        return "" if pd.isna(v) else P.fmt_count(v)
+
+    rows = []
+    for _, r in df.iterrows():
+        rows.append((f"`{r['split']}`", str(r["method"]), cnt(r["folds"]), km(r["block_size_km"]),
+                     km(r["buffer_km"]) if _num(r["buffer_km"]) > 0 else "none", str(r["audit_verdict"]) or "not audited",
+                     cnt(r["independent_folds"]), cnt(r["significant_folds"]),
+                     f"{P.fmt_km_value(r['nn_median_km_min'])} – {P.fmt_km_value(r['nn_median_km_max'])}"
+                     if math.isfinite(_num(r["nn_median_km_min"])) else ""))
+    return Table(caption="The splits side by side.",
+                 columns=("split", "method", "folds", "block size (km)", "buffer (km)", "audit verdict",
+                          "independent folds", "significant folds", "median nearest calibration distance (km)"),
+                 rows=tuple(rows), css_class="comparison", element_id="comparison", source=source)
+
+
+def _display_range(doc: dict, source: str) -> Table:
+    rows = []
+    for f in doc.get("fits", []):
+        rows.append((str(f.get("covariate")), str(f.get("model")),
+                     "not reached" if f.get("range_at_bound") else P.fmt_km_value(_num(f.get("range_km"))),
+                     P.fmt_share(_num(f.get("r2"))), "yes" if f.get("chosen") else ""))
+    return Table(caption=f"Variogram fits per covariate; suggested block size "
+                         f"{P.fmt_km(doc.get('suggested_block_km'))}.",
+                 columns=("covariate", "model", "effective range (km)", "R²", "chosen"), rows=tuple(rows),
+                 css_class="range", element_id="range-fits", source=source)
+
+
+# --- the appendix ----------------------------------------------------------------------------
+
+def _ratio_frames(splits) -> dict:
+    frames = {}
+    for s in splits:
+        if s.evaluation is None or not s.evaluation.get("folds"):
+            continue
+        df = pd.DataFrame(s.evaluation["folds"])
+        if {"auc_ratio_mean", "auc_ratio_low", "auc_ratio_high", "significant"} <= set(df.columns):
+            frames[s.name] = df.astype({"significant": str})
+    return frames
+
+
+def _block_size_for_variogram(splits) -> tuple[float | None, str]:
+    for s in splits:
+        if s.method in SPATIAL_METHODS and s.parameters.get("block_size_km") is not None:
+            return float(s.parameters["block_size_km"]), s.name
+    return None, ""
+
+
+def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, _Writer]:
+    w = _Writer(out)
+    plane = _map_plane(run)
+    plane_words = plane.describe()
+    splits = run.splits
+    names = [s.name for s in splits]
+    blocks: list = []
+
+    same_records = len({(P.records_sentence(s.design), tuple(sorted((s.design.get("inputs_sha256") or {}).values())))
+                        for s in splits}) == 1
+
+    # 1. Methods paragraph(s)
+    blocks.append(Heading(1, "Methods", "methods"))
+    intro = [f"This appendix describes {P.fmt_count(len(splits))} "
+             f"split{'s' if len(splits) != 1 else ''} of the same occurrence records" if same_records and len(splits) > 1
+             else f"This appendix describes {P.fmt_count(len(splits))} split{'s' if len(splits) != 1 else ''}"]
+    intro[0] += f" ({P.fmt_list(f'`{n}`' for n in names)})."
+    if same_records:
+        intro.append(P.records_sentence(splits[0].design))
+    range_doc = run.range
+    range_source = "range/range.json" if run.range is not None else ""
+    if range_doc is None:
+        for s in splits:
+            if s.range_summary is not None:
+                range_doc, range_source = s.range_summary, f"{s.name}: design sidecar (block size auto)"
+                break
+    if range_doc is not None:
+        intro.append(P.range_sentence(range_doc))
+    blocks.append(Text(" ".join(intro), "methods"))
+    for s in splits:
+        blocks.append(Text(P.split_paragraph(s, plane_words, include_records=not same_records), "methods"))
+    if len(splits) > 1:
+        blocks.append(Text(P.comparison_paragraph(splits), "methods"))
+    if generalise_km is not None:
+        blocks.append(Text(
+            f"Locations are generalised in this appendix: every coordinate in its tables and maps is the centre of the "
+            f"{generalise_km:g} km x {generalise_km:g} km cell (of a grid anchored at the origin of the {plane_words}) "
+            f"that holds the record, written back as longitude/latitude and as plane kilometres. Fold tables, "
+            f"audits and evaluations were computed on the exact positions, which stay in the run folder only.",
+            "warning"))
+
+    # 2. Records and folds
+    blocks.append(Heading(1, "Records and folds", "folds"))
+    coords = {}
+    for s in splits:
+        c = _coords(s, plane, generalise_km)
+        coords[s.name] = c
+        tag = _safe(s.name)
+        rec_src = w.table(_records_frame(s, c), f"{tag}_records")
+        counts = _fold_counts_frame(s)
+        src = w.table(counts, f"{tag}_fold_counts")
+        blocks.append(Heading(2, f"Split `{s.name}`", f"folds-{tag}"))
+        blocks.append(_display_fold_counts(s, counts, src))
+        blocks.append(Text(f"Every record with its fold, kind and coordinates"
+                           f"{' (generalised)' if generalise_km else ''}: `{rec_src}`."))
+
+    # maps, drawn on one common extent so the splits compare at a glance
+    allx = np.concatenate([coords[s.name].x_km[s.records.fold >= 0] for s in splits])
+    ally = np.concatenate([coords[s.name].y_km[s.records.fold >= 0] for s in splits])
+    ok = np.isfinite(allx) & np.isfinite(ally)
+    extent = None
+    if ok.any():
+        from splitter.report.maps import _extent
+
+        extent = _extent(allx[ok], ally[ok])
+    for s in splits:
+        if extent is None:
+            break
+        c = coords[s.name]
+        r = s.records
+        grid = None
+        size = s.parameters.get("block_size_km", s.design.get("block_size_km"))
+        gcrs = s.geometry_crs
+        if s.method in SPATIAL_METHODS and size and gcrs is not None and gcrs.is_projected:
+            from splitter.geo import Points, planar_km
+
+            ok_r = np.isfinite(r.lon) & np.isfinite(r.lat)
+            gx = np.full(r.lon.shape, np.nan)
+            gy = np.full(r.lat.shape, np.nan)
+            if ok_r.any():
+                gx[ok_r], gy[ok_r] = planar_km(Points.lonlat(r.lon[ok_r], r.lat[ok_r]), gcrs)
+            grid = cell_grid(s.method, float(size), s.parameters.get("grid_offset_km") or (0.0, 0.0), gcrs, plane,
+                             gx, gy, r.fold, extent, fill=generalise_km is None)
+        buffer = _num(s.design.get("buffer_km", 0) or 0)
+        fm = plot_fold_map(c.x_km, c.y_km, r.kind, r.fold, fold_names=r.fold_names, gap_rows=r.gap_rows,
+                           gap_folds=r.gap_folds, buffer_km=buffer if buffer > 0 else 0.0, grid=grid, title=s.name,
+                           extent=extent, generalised_km=generalise_km)
+        stem = w.figure(fm.figure, f"map_{_safe(s.name)}")
+        label = r.fold_names.get(fm.focus_fold, str(fm.focus_fold))
+        cap = (f"Split `{s.name}`. Left: records coloured by evaluation fold (presences as dots, background as small "
+               f"squares)")
+        if grid is not None:
+            what = "hexagons" if grid.shape == "hexagon" else "square cells"
+            cap += (f" over the design's {what} of {P.fmt_km(grid.size_km)}"
+                    + (" (cells coloured by the fold of the records they hold)" if generalise_km is None else
+                       " (cells not coloured: with generalised positions the fold of each cell is not shown)"))
+            if grid.occupied_only:
+                cap += "; only occupied cells are outlined"
+        cap += f". Right: fold {label}'s evaluation records, its calibration records"
+        if buffer > 0:
+            cap += (f", and the {P.fmt_count(fm.n_gap)} records left out of its calibration set by the "
+                    f"{P.fmt_km(buffer)} buffer (crosses)")
+        cap += f". Axes in km on the {plane_words}"
+        cap += f"; positions generalised to {generalise_km:g} km cells." if generalise_km else "."
+        blocks.append(Figure(stem, cap, alt=f"map of records by fold, split {s.name}"))
+
+    # 3. Autocorrelation range
+    blocks.append(Heading(1, "Autocorrelation range", "range"))
+    if range_doc is not None:
+        block_km, block_split = _block_size_for_variogram(splits)
+        try:
+            from splitter.dependence.figures import plot_variogram
+
+            est = range_estimate_from_dict(range_doc)
+            fig = plot_variogram(est, chosen_block_km=block_km)
+            stem = w.figure(fig, "variogram")
+        except (KeyError, TypeError, ValueError):
+            stem = w.copy_figure(run.range_figure, "variogram") if run.range_figure is not None else None
+        rtab = w.table(pd.DataFrame(range_doc.get("fits", [])), "range_fits")
+        blocks.append(_display_range(range_doc, rtab))
+        if stem:
+            which = (f"the block size of split `{block_split}` ({P.fmt_km(block_km)})" if block_km is not None
+                     else f"the suggested block size ({P.fmt_km(range_doc.get('suggested_block_km'))})")
+            blocks.append(Figure(stem, f"Empirical semivariograms (dots) with the fitted spherical and exponential "
+                                       f"models, one panel per covariate; dotted vertical line: {which}. "
+                                       f"Source: {range_source}.", alt="semivariograms"))
+    else:
+        blocks.append(Text("No autocorrelation range was estimated in this run (no range/range.json and no "
+                           "block size chosen with 'auto')."))
+
+    # 4. Residual dependence
+    blocks.append(Heading(1, "Residual dependence audit", "audit"))
+    audited = [s for s in splits if s.audit is not None]
+    rule_sets: set = set()
+    if audited:
+        rule_sets = {tuple((r.get("name"), r.get("rule"), r.get("threshold")) for r in s.audit.get("rules", []))
+                     for s in audited}
+        if len(rule_sets) == 1:
+            blocks.append(_display_rules(audited[0].audit.get("rules", []), [s.name for s in audited]))
+            w.table(pd.DataFrame(audited[0].audit.get("rules", [])), "audit_rules")
+    for s in splits:
+        tag = _safe(s.name)
+        blocks.append(Heading(2, f"Split `{s.name}`", f"audit-{tag}"))
+        if s.audit is None:
+            blocks.append(Text(f"Split `{s.name}` was not audited: no `audit/audit.json` in its folder."))
+            continue
+        if len(rule_sets) != 1:
+            blocks.append(_display_rules(s.audit.get("rules", []), [s.name]))
+            w.table(pd.DataFrame(s.audit.get("rules", [])), f"{tag}_audit_rules")
+        t = s.audit_table if s.audit_table is not None else pd.DataFrame(s.audit.get("folds", []))
+        src = w.table(_reorder(t, AUDIT_FIRST), f"{tag}_audit")
+        blocks.append(_display_audit(s, src))
+        ctx = s.audit.get("context", {}) or {}
+        if ctx.get("prediction_locations"):
+            blocks.append(Text(f"Prediction locations for the distance comparison: {ctx['prediction_locations']}."))
+        if s.distance_figure is not None:
+            stem = w.copy_figure(s.distance_figure, f"distance_ecdf_{tag}")
+            if stem:
+                blocks.append(Figure(stem, f"Split `{s.name}`: cumulative distributions of nearest-neighbour distances "
+                                           f"(evaluation record to nearest calibration record, per fold; prediction "
+                                           f"location to nearest record; record to nearest other record), with the "
+                                           f"autocorrelation range. Drawn by the audit.", alt="distance ECDFs"))
+
+    # 5. Significance and performance
+    blocks.append(Heading(1, "Significance and performance", "evaluation"))
+    for s in splits:
+        tag = _safe(s.name)
+        blocks.append(Heading(2, f"Split `{s.name}`", f"evaluation-{tag}"))
+        if s.evaluation is None:
+            blocks.append(Text(f"Split `{s.name}` was not evaluated: no `evaluation/evaluation.json` in its folder."))
+            continue
+        t = s.evaluation_table
+        if t is None:
+            t = pd.DataFrame(s.evaluation.get("folds", []) + [s.evaluation.get("all", {})]).astype(str)
+        src = w.table(_reorder(t, EVAL_FIRST), f"{tag}_evaluation")
+        blocks.append(_display_evaluation(s, t, src))
+        for msg in s.evaluation.get("warnings", []) or []:
+            blocks.append(Text(f"Warning recorded by the evaluation: {msg}", "warning"))
+        curves = s.evaluation.get("curves") or {}
+        par = s.evaluation.get("parameters", {})
+        if curves:
+            fig = plot_roc_panels(curves, s.evaluation.get("folds", []), float(par.get("omission", 0.05)),
+                                  title=f"split {s.name}")
+            stem = w.figure(fig, f"roc_{tag}")
+            cut = 1.0 - float(par.get("omission", 0.05))
+            blocks.append(Figure(stem, f"Split `{s.name}`: exact area-based ROC curve of each fold (every prediction "
+                                       f"value is a threshold), with the null line (dashed) and the cut-off "
+                                       f"1 - E = {cut:g} (dotted); the shaded part above it is the partial area "
+                                       f"tested. Grey curves: not significant, do not interpret.",
+                                 alt=f"ROC curves, split {s.name}"))
+    frames = _ratio_frames(splits)
+    if frames:
+        from splitter.report.evaluation_figures import plot_ratio_intervals
+
+        alpha = float(next(s.evaluation["parameters"].get("alpha", 0.05) for s in splits if s.name in frames))
+        stem = w.figure(plot_ratio_intervals(frames, alpha), "auc_ratio_intervals")
+        blocks.append(Figure(stem, "Partial AUC ratio per fold: bootstrap mean and 95% interval against the null "
+                                   "ratio of 1; filled markers: significant folds, open markers: not significant "
+                                   "(do not interpret).", alt="AUC ratio intervals"))
+
+    # 6. Side by side
+    if len(splits) > 1:
+        blocks.append(Heading(1, "The splits side by side", "comparison"))
+        df = _comparison_frame(splits)
+        src = w.table(df, "comparison")
+        blocks.append(_display_comparison(df, src))
+        blocks.append(Text(P.comparison_paragraph(splits)))
+
+    # 7. Reproducibility
+    blocks += _reproducibility(run, splits)
+
+    # 8. Cautions
+    blocks += _cautions(generalise_km)
+    return Document(TITLE, tuple(blocks)), w
+
+
+def _reproducibility(run: Run, splits) -> list:
+    out = [Heading(1, "Reproducibility", "reproducibility")]
+    versions = [(name, _version(dist)) for name, dist in PACKAGES]
+    versions.insert(1, ("python", platform.python_version()))
+    recorded = sorted({str(s.design.get("software")) for s in splits if s.design.get("software")})
+    out.append(Table(caption="Software that built this appendix" +
+                             (f" (the folds were written by {P.fmt_list(recorded)})." if recorded else "."),
+                     columns=("package", "version"), rows=tuple(versions), css_class="software"))
+    seeds = []
+    if run.range is not None and run.range.get("seed") is not None:
+        seeds.append(("range", "range estimate", str(run.range.get("seed"))))
+    for s in splits:
+        seeds.append((s.name, "design", str(s.design.get("seed", ""))))
+        if s.audit is not None:
+            seeds.append((s.name, "audit", _seed_from((s.audit.get("context") or {}).get("command")) or "not recorded"))
+        if s.evaluation is not None:
+            seeds.append((s.name, "evaluation", str((s.evaluation.get("parameters") or {}).get("seed", ""))))
+    out.append(Table(caption="Seeds of every random step.", columns=("split", "step", "seed"), rows=tuple(seeds),
+                     css_class="seeds"))
+    cmds = []
+    if run.range is not None and run.range.get("command"):
+        cmds += ["# range estimate", run.range["command"]]
+    for s in splits:
+        for label, cmd in (("design", s.design.get("command")),
+                           ("audit", (s.audit or {}).get("context", {}).get("command") if s.audit else None),
+                           ("evaluation", (s.evaluation or {}).get("command") if s.evaluation else None)):
+            if cmd:
+                cmds += [f"# {s.name}: {label}", str(cmd)]
+    out.append(Text("Command lines recorded in the run's files:"))
+    out.append(Code("\n".join(cmds) if cmds else "(no command lines were recorded)"))
+    inputs = {}
+    for s in splits:
+        for path, digest in sorted((s.design.get("inputs_sha256") or {}).items()):
+            inputs.setdefault((path, digest), []).append(s.name)
+    rows = tuple((f"`{p}`", d, ", ".join(n)) for (p, d), n in sorted(inputs.items()))
+    out.append(Table(caption="SHA-256 of the input files, as recorded by the design.",
+                     columns=("input", "SHA-256", "splits"), rows=rows, css_class="inputs"))
+    files = []
+    base = run.folder
+    if run.range_path is not None:
+        files.append(run.range_path)
+    for s in splits:
+        files += list(s.files)
+    rows = tuple((f"`{p.relative_to(base).as_posix()}`", sha256_file(p)) for p in files)
+    out.append(Table(caption="SHA-256 of the run's files this appendix was built from.",
+                     columns=("file", "SHA-256"), rows=rows, css_class="run-files"))
+    return out
+
+
+def _cautions(generalise_km) -> list:
+    items = [
+        "Evaluation describes the records used: these folds, these presences, this region and its survey effort. "
+        "It says nothing about places, periods or species the records do not cover.",
+        "A significant, well-performing fold does not make a model fit for a decision such as choosing a "
+        "reintroduction site or drawing a protected area; such uses need their own evidence, field checks and "
+        "expert review.",
+        "Follow the local rules for wildlife data (data-sharing agreements, sensitive-species policies, permits) and "
+        "licensed professional practice; where they ask for more than this appendix gives, they take precedence.",
+    ]
+    if generalise_km is None:
+        items.append("Locations of sensitive species should not be published exactly: rebuild this appendix with "
+                     "`--generalise KM` to snap every coordinate in its tables and maps to the centre of a KM grid "
+                     "cell.")
+    else:
+        items.append(f"Locations here are generalised to {generalise_km:g} km cells (`--generalise {generalise_km:g}`); "
+                     f"the run folder still holds the exact positions: do not share it where the generalised "
+                     f"appendix was required.")
+    items.append("Performance figures are withheld for folds that are not significant; a fold marked "
+                 "\"do not interpret\" carries no evidence about predictive ability, good or bad.")
+    return [Heading(1, "Cautions", "cautions"), Bullets(tuple(items))]
+
+
+def _clean_stale(out: Path, keep: set) -> None:
+    """Remove tables/figures an earlier build of this appendix left that this build did not write."""
+    md = out / "appendix.md"
+    if not md.exists() or not md.read_text(encoding="utf-8", errors="replace").startswith(f"# {TITLE}"):
+        return
+    for sub, patterns in (("tables", ("*.csv",)), ("figures", ("*.png", "*.svg"))):
+        for pat in patterns:
+            for p in (out / sub).glob(pat):
+                if p.resolve() not in keep:
+                    p.unlink()
+
+
+def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> Appendix:
+    """Write the methods appendix of a run.
+
+    Parameters
+    ----------
+    run_dir : path
+        One split folder (holding a ``*.design.json`` beside its fold table,
+        optionally ``audit/`` and ``evaluation/``), or a folder of such split
+        folders (one level down) plus optionally ``range/range.json``; with
+        several splits they are compared side by side.
+    out_dir : path
+        Where to write ``appendix.md``, ``appendix.html``, ``tables/*.csv`` and
+        ``figures/*.png|svg``. May lie inside ``run_dir`` (not inside a split
+        folder); the run's own files are only read.
+    generalise_km : float, optional
+        Snap every coordinate in the appendix's tables and maps to the centre
+        of a ``generalise_km`` square cell of the map plane (an equal-area CRS).
+
+    Returns
+    -------
+    Appendix
+
+    Raises
+    ------
+    InputError
+        No design sidecar in ``run_dir``, a bad ``generalise_km``, or an
+        ``out_dir`` on top of the run's files.
+    """
+    if generalise_km is not None:
+        g = _num(generalise_km)
+        if not math.isfinite(g) or g <= 0:
+            raise InputError(f"--generalise {generalise_km}: give a cell size in km greater than 0.")
+        generalise_km = g
+    out = Path(out_dir)
+    run = load_run(run_dir, exclude=out)
+    _check_out_dir(run, out)
+    out.mkdir(parents=True, exist_ok=True)
+    doc, w = _build(run, out, generalise_km)
+    md = out / "appendix.md"
+    html_path = out / "appendix.html"
+    _clean_stale(out, {p.resolve() for p in w.tables + w.figures})
+    with atomic_write(md, "w") as f:
+        f.write(to_markdown(doc))
+    page = to_html(doc, out)
+    with atomic_write(html_path, "w") as f:
+        f.write(page)
+    return Appendix(markdown=md, html=html_path, tables=list(w.tables), figures=list(w.figures),
+                    generalise_km=generalise_km)
