@@ -114,6 +114,13 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
     out = Path(out)
     frame = assignment.to_frame()
     pts = assignment.records.points if assignment.records is not None else None
+    if out.suffix.lower() == ".csv" and pts is not None and assignment.records.x_column is None:
+        # Vector input written as CSV: carry the coordinates as plain columns.
+        names = ("longitude", "latitude") if pts.geographic else ("x", "y")
+        pos = list(frame.columns).index("record_id") if "record_id" in frame.columns else len(frame.columns)
+        for off, (name, vals) in enumerate(zip(names, (pts.x, pts.y))):
+            if name not in frame.columns:
+                frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
     paths = {"folds": write_table(frame, out, pts)}
     gaps_path = companion(out, ".gaps.csv")
     if assignment.parameters.get("buffer_km", 0) and assignment.parameters.get("buffer_km") > 0:
