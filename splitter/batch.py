@@ -840,17 +840,16 @@ def batch_command(
         result = run_batch(manifest, out_dir, workers=workers, scheduler=scheduler, progress=step)
 
     t = Table(title=f"batch: {len(result.rows)} runs", title_justify="left")
-    for c in ("run", "status", "method", "folds", "presences", "audit", "significant", "seconds", "reason"):
-        t.add_column(c, justify="right" if c in ("folds", "presences", "significant", "seconds") else "left",
-                     overflow="fold")
+    for c in ("run", "status", "method", "folds", "presences", "audit", "significant folds", "seconds"):
+        t.add_column(c, justify="left" if c in ("run", "status", "method", "audit") else "right")
     shown = result.rows if len(result.rows) <= 40 else [r for r in result.rows if r["status"] == "failed"]
     for r in shown:
         sig = "" if r["folds_evaluated"] is None else f"{r['folds_significant']}/{r['folds_evaluated']}"
         t.add_row(r["run"], r["status"], _fmt(r["method"], "method"), _fmt(r["folds"], "folds"),
                   _fmt(r["n_presence"], "n"), _fmt(r["audit_verdict"], "a"), sig,
-                  _fmt(r["seconds"], "seconds") if r["status"] != "skipped" else "-", r["error"] or "")
+                  _fmt(r["seconds"], "seconds") if r["status"] != "skipped" else "-")
     if len(shown) < len(result.rows):
-        t.caption = f"failed runs only; all {len(result.rows)} runs are in {result.table}"
+        t.caption = f"failed runs only; every run is in {result.table}"
     console.print(t)
     console.print(f"runs ok: {result.n_ok}, skipped (unchanged): {result.n_skipped}, failed: {result.n_failed}")
     for run, why in result.failures.items():

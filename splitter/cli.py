@@ -32,6 +32,14 @@ if not out.is_terminal:  # piped or captured: do not squeeze tables into 80 colu
 err = Console(stderr=True, highlight=False)
 
 
+# Options every command that reads records shares.
+X_OPTION = typer.Option(None, "--x", help="Longitude / easting column (detected from common spellings if omitted).")
+Y_OPTION = typer.Option(None, "--y", help="Latitude / northing column.")
+CRS_OPTION = typer.Option(None, "--crs", help="CRS of the coordinates (default EPSG:4326 for CSV).")
+ID_OPTION = typer.Option(None, "--id-column", help="Record id column (default: record_id, else row number).")
+KIND_OPTION = typer.Option(None, "--kind-column", help="presence/absence/background (or 1/0) column (default: kind).")
+
+
 def _fail(message: str, code: int = 2):
     err.print(f"splitter: error: {message}", markup=False, soft_wrap=True)
     raise typer.Exit(code)
@@ -128,11 +136,11 @@ def design(
     background: Optional[Path] = typer.Option(None, "--background", help="A separate file of background points."),
     background_count: Optional[int] = typer.Option(None, "--background-count", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
     region: Optional[Path] = typer.Option(None, "--region", help="Polygon file of the study region (for --background-count)."),
-    x: Optional[str] = typer.Option(None, "--x", help="Longitude / easting column."),
-    y: Optional[str] = typer.Option(None, "--y", help="Latitude / northing column."),
-    crs: Optional[str] = typer.Option(None, "--crs", help="CRS of the coordinates (default EPSG:4326 for CSV)."),
-    id_column: Optional[str] = typer.Option(None, "--id-column", help="Record id column (default: record_id, else row number)."),
-    kind_column: Optional[str] = typer.Option(None, "--kind-column", help="presence/absence/background column (default: kind)."),
+    x: Optional[str] = X_OPTION,
+    y: Optional[str] = Y_OPTION,
+    crs: Optional[str] = CRS_OPTION,
+    id_column: Optional[str] = ID_OPTION,
+    kind_column: Optional[str] = KIND_OPTION,
     seed: int = typer.Option(0, "--seed", help="Seed for every random step."),
     out_path: Path = typer.Option(..., "--out", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
@@ -156,7 +164,6 @@ def design(
 
 def _print_design(assignment, paths):
     p = assignment.parameters
-    c = assignment.records.counts() if assignment.records is not None else {}
     out.print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
     if p.get("block_size_km"):
         out.print(f"block size: {p['block_size_km']:.4g} km ({p.get('block_size_rule', 'given')})")
@@ -217,11 +224,11 @@ def evaluate(
     omission: float = typer.Option(0.05, "--omission", help="Partial ROC omission tolerance E."),
     replicates: int = typer.Option(1000, "--replicates", help="Bootstrap replicates for the partial ROC."),
     alpha: float = typer.Option(0.05, "--alpha", help="Significance level."),
-    x: Optional[str] = typer.Option(None, "--x", help="Longitude / easting column."),
-    y: Optional[str] = typer.Option(None, "--y", help="Latitude / northing column."),
-    crs: Optional[str] = typer.Option(None, "--crs", help="CRS of the coordinates."),
-    id_column: Optional[str] = typer.Option(None, "--id-column", help="Record id column."),
-    kind_column: Optional[str] = typer.Option(None, "--kind-column", help="presence/absence/background column."),
+    x: Optional[str] = X_OPTION,
+    y: Optional[str] = Y_OPTION,
+    crs: Optional[str] = CRS_OPTION,
+    id_column: Optional[str] = ID_OPTION,
+    kind_column: Optional[str] = KIND_OPTION,
     seed: int = typer.Option(0, "--seed", help="Seed for the bootstrap."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'not-significant': exit 1 when any fold is not significant."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),
@@ -314,11 +321,11 @@ def audit(
     range_from: Optional[Path] = typer.Option(None, "--range-from", help="Folder written by 'splitter range'."),
     group_column: Optional[str] = typer.Option(None, "--group-column", help="Survey method / source column."),
     region: Optional[Path] = typer.Option(None, "--region", help="Polygon of the prediction region."),
-    x: Optional[str] = typer.Option(None, "--x", help="Longitude / easting column."),
-    y: Optional[str] = typer.Option(None, "--y", help="Latitude / northing column."),
-    crs: Optional[str] = typer.Option(None, "--crs", help="CRS of the coordinates."),
-    id_column: Optional[str] = typer.Option(None, "--id-column", help="Record id column."),
-    kind_column: Optional[str] = typer.Option(None, "--kind-column", help="presence/absence/background column."),
+    x: Optional[str] = X_OPTION,
+    y: Optional[str] = Y_OPTION,
+    crs: Optional[str] = CRS_OPTION,
+    id_column: Optional[str] = ID_OPTION,
+    kind_column: Optional[str] = KIND_OPTION,
     seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'dependent': exit 1 when any fold is flagged."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),

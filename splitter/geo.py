@@ -186,15 +186,46 @@ class NeighbourIndex:
         best, idx = self._refine(query, xyz, todo, best, idx, bound, 8)
         return best, idx
 
-    def _refine(self, query, xyz, todo, best, idx, bound, k):
-        """Check every candidate within ``bound`` (chord) for the rows in ``todo``."""
+    def nearest_other(self) -> tuple[np.ndarray, np.ndarray]:
+        """Leave-self-out: distance (km) and index of each reference point's nearest *other* point.
+
+        A point sharing its location with another gets 0; a lone point gets NaN and index -1.
+
+        Examples
+        --------
+        >>> d, i = NeighbourIndex(Points.lonlat([0.0, 0.0, 1.0], [0.0, 0.0, 0.0])).nearest_other()
+        >>> d.round(1).tolist(), i.tolist()
+        ([0.0, 0.0, 111.3], [1, 0, 0])
+        """
+        ref = self.reference
+        n = len(ref)
+        if n < 2:
+            return np.full(n, np.nan), np.full(n, -1, np.int64)
+        self_idx = np.arange(n)
+        coords = _unit_xyz(ref) if ref.geographic else np.column_stack([ref.x, ref.y])
+        dd, ii = self._tree.query(coords, k=2, workers=-1)
+        # With duplicates the first neighbour may be another point at distance 0.
+        col = np.where(ii[:, 0] == self_idx, 1, 0)
+        idx = ii[self_idx, col].astype(np.int64)
+        if not ref.geographic:
+            return dd[self_idx, col] * self._factor, idx
+        best = distance_km(ref, ref.take(idx))
+        bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
+        return self._refine(ref, coords, self_idx, best, idx, bound, 8, exclude=self_idx)
+
+    def _refine(self, query, xyz, todo, best, idx, bound, k, exclude=None):
+        """Check every candidate within ``bound`` (chord) for the rows in ``todo``.
+
+        ``exclude[row]`` names a reference index that row must not take (itself).
+        """
         nref = len(self.reference)
         while todo.size:
             kk = min(k, nref)
             dd, ii = self._tree.query(xyz[todo], k=kk, workers=-1)
             dd = dd.reshape(len(todo), kk)
             ii = ii.reshape(len(todo), kk)
-            found = dd <= bound[todo, None]
+            inside = dd <= bound[todo, None]
+            found = inside if exclude is None else inside & (ii != exclude[todo, None])
             rows, cols = np.nonzero(found)
             if rows.size:
                 qsel = todo[rows]
@@ -208,7 +239,7 @@ class NeighbourIndex:
                 best[q1[better]] = d1[better]
                 idx[q1[better]] = c1[better]
             # Rows whose k-th candidate was still inside the bound may hide more.
-            todo = todo[found[:, -1]]
+            todo = todo[inside[:, -1]]
             if kk >= nref:
                 break
             k *= 4

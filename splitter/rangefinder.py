@@ -4,7 +4,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import numpy as np
 
 from splitter.dependence.variogram import RangeEstimate, estimate_range
 from splitter.errors import InputError

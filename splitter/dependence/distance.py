@@ -28,16 +28,11 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
-from scipy.spatial import cKDTree
 from scipy.stats import wasserstein_distance
 
 from splitter.errors import InputError
-from splitter.geo import NeighbourIndex, Points, distance_km
+from splitter.geo import NeighbourIndex, Points
 
-# Sphere-vs-ellipsoid distance disagreement is < 0.5 %; 1 % leaves margin (same
-# reasoning as splitter.geo's nearest-neighbour search).
-_SPHERE_SLACK = 1.01
-_EARTH_RADIUS_KM = 6371.0088
 
 
 @dataclass(frozen=True, eq=False)
@@ -156,17 +151,6 @@ def check_folds(n: int, calibration, evaluation) -> tuple[list[np.ndarray], list
     return cal, ev
 
 
-def _unit_xyz(points: Points) -> np.ndarray:
-    ll = points.to_lonlat()
-    lon, lat = np.deg2rad(ll.x), np.deg2rad(ll.y)
-    c = np.cos(lat)
-    return np.column_stack([c * np.cos(lon), c * np.sin(lon), np.sin(lat)])
-
-
-def _chord(km):
-    return 2.0 * np.sin(np.minimum(np.asarray(km, float) / (2 * _EARTH_RADIUS_KM), np.pi / 2))
-
-
 def nearest_other_km(points: Points) -> np.ndarray:
     """Distance (km) from each point to its nearest *other* point (leave-self-out).
 
@@ -181,52 +165,9 @@ def nearest_other_km(points: Points) -> np.ndarray:
     >>> nearest_other_km(p).round(1).tolist()
     [0.0, 0.0, 111.3]
     """
-    n = len(points)
-    if n < 2:
-        return np.full(n, np.nan)
-    self_idx = np.arange(n)
-    if not points.geographic:
-        tree = cKDTree(np.column_stack([points.x, points.y]))
-        dd, ii = tree.query(np.column_stack([points.x, points.y]), k=2, workers=-1)
-        # With duplicates the first neighbour may be another point at distance 0;
-        # otherwise it is the point itself and the second column is the answer.
-        col = np.where(ii[:, 0] == self_idx, 1, 0)
-        d = dd[self_idx, col]
-        crs = points.crs
-        factor = float(crs.axis_info[0].unit_conversion_factor) / 1000.0 if crs.axis_info else 1e-3
-        return d * factor
-
-    xyz = _unit_xyz(points)
-    tree = cKDTree(xyz)
-    _, ii = tree.query(xyz, k=2, workers=-1)
-    cand = np.where(ii[:, 0] == self_idx, ii[:, 1], ii[:, 0]).astype(np.int64)
-    best = distance_km(points, points.take(cand))
-    bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
-    # Any point nearer on the ellipsoid lies within the slack on the sphere; widen the
-    # candidate list only for the rows whose list may still hide such a point.
-    todo = self_idx
-    k = 3
-    while todo.size:
-        kk = min(k, n)
-        dd, ii = tree.query(xyz[todo], k=kk, workers=-1)
-        dd = dd.reshape(len(todo), kk)
-        ii = ii.reshape(len(todo), kk)
-        found = (dd <= bound[todo, None]) & (ii != todo[:, None])
-        rows, cols = np.nonzero(found)
-        if rows.size:
-            q = todo[rows]
-            c = ii[rows, cols].astype(np.int64)
-            dist = distance_km(points.take(q), points.take(c))
-            # Smallest distance per query point.
-            order = np.lexsort((dist, q))
-            q, dist = q[order], dist[order]
-            first = np.r_[True, q[1:] != q[:-1]]
-            np.minimum.at(best, q[first], dist[first])
-        todo = todo[dd[:, -1] <= bound[todo]]
-        if kk >= n:
-            break
-        k *= 4
-    return best
+    if len(points) < 2:
+        return np.full(len(points), np.nan)
+    return NeighbourIndex(points).nearest_other()[0]
 
 
 def _check_points(points: Points, idx: np.ndarray, what: str):

@@ -86,6 +86,28 @@ def _window_mass(sorted_values: np.ndarray, cum_mass: np.ndarray, starts: np.nda
     return cum[upper] - cum[lower]
 
 
+def _merge_rounding_ties(ratios: np.ndarray, rel: float = 1e-10) -> np.ndarray:
+    """Ratios that differ only by floating-point rounding, made exactly equal.
+
+    Two windows holding different cells of equal total area (e.g. cells of one row
+    of a longitude/latitude raster) and the same presences have equal P/E in exact
+    arithmetic, but the summed areas can differ in the last bits depending on the
+    order they were added (sorted in memory, or streamed window by window).
+    Spearman's ranks would split such a true tie at random; so neighbours (in
+    sorted order) within a relative 1e-10 are given the smaller one's value before
+    ranking. Ratios of real data that differ by less than that are not told apart.
+    """
+    if ratios.size < 2:
+        return ratios
+    order = np.argsort(ratios, kind="stable")
+    r = ratios[order]
+    starts_group = np.r_[True, np.diff(r) > rel * np.abs(r[1:])]
+    group = np.cumsum(starts_group) - 1
+    out = np.empty_like(ratios)
+    out[order] = r[starts_group][group]
+    return out
+
+
 def boyce_index(
     presence_scores,
     reference_values,
@@ -189,12 +211,13 @@ def _from_expected(
     used = expected > 0
     ratios = predicted[used] / expected[used]
     mids = (starts + ends)[used] / 2.0
-    if ratios.size < 3 or np.all(ratios == ratios[0]):
+    ranked = _merge_rounding_ties(ratios)
+    if ranked.size < 3 or np.all(ranked == ranked[0]):
         statistic = float("nan")
     else:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
-            statistic = float(stats.spearmanr(mids, ratios).statistic)
+            statistic = float(stats.spearmanr(mids, ranked).statistic)
     return BoyceResult(
         statistic=statistic,
         window_width=float(width),

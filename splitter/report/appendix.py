@@ -626,7 +626,9 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         from splitter.report.evaluation_figures import plot_ratio_intervals
 
         alpha = float(next(s.evaluation["parameters"].get("alpha", 0.05) for s in splits if s.name in frames))
-        stem = w.figure(plot_ratio_intervals(frames, alpha), "auc_ratio_intervals")
+        fig = plot_ratio_intervals(frames, alpha)
+        _tidy_ratio_figure(fig)
+        stem = w.figure(fig, "auc_ratio_intervals")
         blocks.append(Figure(stem, "Partial AUC ratio per fold: bootstrap mean and 95% interval against the null "
                                    "ratio of 1; filled markers: significant folds, open markers: not significant "
                                    "(do not interpret).", alt="AUC ratio intervals"))
@@ -637,7 +639,6 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         df = _comparison_frame(splits)
         src = w.table(df, "comparison")
         blocks.append(_display_comparison(df, src))
-        blocks.append(Text(P.comparison_paragraph(splits)))
 
     # 7. Reproducibility
     blocks += _reproducibility(run, splits)
@@ -645,6 +646,18 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
     # 8. Cautions
     blocks += _cautions(generalise_km)
     return Document(TITLE, tuple(blocks)), w
+
+
+def _tidy_ratio_figure(fig) -> None:
+    """Keep the interval figure's legend off the null line and its axis label inside the page."""
+    ax = fig.axes[0]
+    ax.set_ylabel("partial AUC ratio\n(bootstrap mean, 95% interval)")
+    lo, hi = ax.get_ylim()
+    ax.set_ylim(min(lo, 0.95), hi)
+    handles, labels = ax.get_legend_handles_labels()
+    if handles:
+        ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=3, frameon=False, fontsize=7)
+    fig.set_size_inches(6.4, 3.9)
 
 
 def _reproducibility(run: Run, splits) -> list:

@@ -75,7 +75,7 @@ def plot_roc_panels(curves: dict, rows: list, omission: float, title: str = ""):
         return fig
     ncol = min(k, 5)
     nrow = math.ceil(k / ncol)
-    fig = new_figure(2.05 * ncol + 0.5, 2.15 * nrow + 0.55)
+    fig = new_figure(2.1 * ncol + 0.6, 2.25 * nrow + 0.9)
     axes = np.atleast_2d(fig.subplots(nrow, ncol, sharex=True, sharey=True, squeeze=False))
     for n, lab in enumerate(labels):
         ax = axes[n // ncol][n % ncol]
@@ -86,32 +86,37 @@ def plot_roc_panels(curves: dict, rows: list, omission: float, title: str = ""):
         ax.plot([0, 1], [0, 1], color=GREY, lw=0.9, ls="--")
         keep = y >= cut
         if keep.any():
-            ax.fill_between(x, np.where(keep, y, np.nan), np.where(keep, x, np.nan), color=colour(0),
-                            alpha=0.18, lw=0)
+            ax.fill_between(x, np.where(keep, y, np.nan), np.where(keep, x, np.nan),
+                            color=colour(0) if sig else GREY, alpha=0.18, lw=0)
         ax.plot(x, y, color=colour(0) if sig else GREY, lw=1.4)
         ax.axhline(cut, color=colour(5), lw=0.9, ls=":")
         ax.set_xlim(0, 1)
         ax.set_ylim(0, 1.02)
-        ax.set_aspect("equal")
         if sig:
             ax.set_title(f"fold {lab}: significant", fontsize=8.5)
-            ax.text(0.97, 0.05, f"AUC {float(row.get('auc')):.3f}\nratio {float(row.get('auc_ratio_mean')):.3f}",
+            ax.text(0.97, 0.05, f"AUC {float(row.get('auc')):.3f}\nAUC ratio {float(row.get('auc_ratio_mean')):.3f}",
                     ha="right", va="bottom", fontsize=7, transform=ax.transAxes)
         else:
             ax.set_title(f"fold {lab}: not significant", fontsize=8.5, color=colour(5))
             ax.text(0.97, 0.05, "do not interpret", ha="right", va="bottom", fontsize=7.5, color=colour(5),
                     transform=ax.transAxes)
+        if n + ncol >= k:  # no panel below: this one carries the x axis
+            ax.set_xlabel("area predicted present", fontsize=8)
+            ax.tick_params(labelbottom=True)
+        if n % ncol == 0:
+            ax.set_ylabel("presences predicted present", fontsize=8)
     for n in range(k, nrow * ncol):
         axes[n // ncol][n % ncol].set_visible(False)
-    fig.supxlabel("share of testing area predicted present", fontsize=8.5)
-    fig.supylabel("share of evaluation\npresences predicted present", fontsize=8.5)
     from matplotlib.lines import Line2D
 
-    handles = [Line2D([], [], color=colour(0), lw=1.4, label="model"),
-               Line2D([], [], color=GREY, lw=0.9, ls="--", label="null (random)"),
-               Line2D([], [], color=colour(5), lw=0.9, ls=":", label=f"1 - E = {cut:.2f}")]
-    fig.legend(handles=handles, loc="outside upper center", ncol=3, frameon=False, fontsize=7.5,
-               title=title or None, title_fontsize=9)
+    handles = [Line2D([], [], color=colour(0), lw=1.4, label="model")]
+    if not all(_truthy(by_label[lab].get("significant")) for lab in labels):
+        handles.append(Line2D([], [], color=GREY, lw=1.4, label="model, fold not significant"))
+    handles += [Line2D([], [], color=GREY, lw=0.9, ls="--", label="null (random)"),
+                Line2D([], [], color=colour(5), lw=0.9, ls=":", label=f"1 - E = {cut:.2f}")]
+    if title:
+        fig.suptitle(title, fontsize=9.5)
+    fig.legend(handles=handles, loc="outside lower center", ncol=4, frameon=False, fontsize=7.5)
     return fig
 
 

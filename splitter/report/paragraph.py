@@ -140,6 +140,11 @@ def range_sentence(range_doc: dict) -> str:
 
 
 def _design_sentences(split, plane_words: str) -> list[str]:
+    crs = split.geometry_crs
+    if crs is not None and crs.is_projected:
+        from splitter.report.maps import MapPlane
+
+        plane_words = MapPlane(crs).describe()
     d = split.design
     p = split.parameters
     method = split.method
@@ -154,7 +159,7 @@ def _design_sentences(split, plane_words: str) -> list[str]:
         shape = ("hexagonal cells with the area of a square block of " if method == "hexagons"
                  else "square cells of ")
         s = (f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: {shape}{fmt_km(size)} "
-             f"laid in {plane_words}")
+             f"laid in the {plane_words}")
         off = p.get("grid_offset_km")
         if off and len(off) == 2:
             s += f", with the grid origin shifted by {fmt_km(off[0])} east and {fmt_km(off[1])} north"
@@ -296,7 +301,7 @@ def _evaluation_sentences(split) -> list[str]:
 
 def split_paragraph(split, plane_words: str, include_records: bool = False) -> str:
     """One paragraph describing how a split was made, audited and evaluated."""
-    parts = [f"Split `{split.name}`:"]
+    parts = [f"Split `{split.name}`."]
     if include_records:
         parts.append(records_sentence(split.design))
     parts += _design_sentences(split, plane_words)
