@@ -17,7 +17,6 @@ import pandas as pd
 from splitter.errors import InputError
 from splitter.evaluate import (
     ThresholdRule,
-    area_predicted,
     binomial_test,
     boyce_index,
     choose_threshold,
@@ -27,6 +26,7 @@ from splitter.evaluate import (
     partial_roc,
     predict_suitability,
 )
+from splitter.evaluate.surface import evaluate_surface
 from splitter.partition.assignment import FoldAssignment
 
 # Testing-extent check (Lobo, Jiménez-Valverde & Real, "AUC: a misleading measure of
@@ -237,14 +237,11 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
         cal_o = _kind_rows(assignment, cal, "background")
     fold_warn = []
     pts = assignment.records.points
-    cells = areas = None
+    path = None
     if pattern is not None:
-        from splitter.io.rasters import cell_values_and_areas, sample_rasters
+        from splitter.io.rasters import sample_rasters
 
         path = _fold_raster(pattern, label)
-        cells, areas = cell_values_and_areas(path, region)
-        if cells.size == 0:
-            raise InputError(f"{path}: every cell is nodata (inside the region); the fold's predictions are empty.")
     if table is not None:
         s_ev_p = _scores_from_table(table, label, ev_p, assignment)
         s_ev_o = _scores_from_table(table, label, ev_o, assignment)
@@ -270,33 +267,42 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
     if s_ev_p.size < MIN_PRESENCES:
         fold_warn.append(f"fold {label} has only {s_ev_p.size} evaluation presences; the tests have little power")
     thr = choose_threshold(rule, s_cal_p, s_cal_o if s_cal_o.size else None)
-    lo = min(s_ev_p.min(), s_cal_p.min(), cells.min() if cells is not None else np.inf)
-    hi = max(s_ev_p.max(), s_cal_p.max(), cells.max() if cells is not None else -np.inf)
+
+    try:
+        if path is not None:
+            # The testing region is the raster's valid cells, read in windows: one
+            # min/max pass and one summary pass, whatever the raster's size.
+            from splitter.io.rasters import valid_cells
+
+            surf = evaluate_surface(lambda: valid_cells(path, region), s_ev_p, [thr.value], omission=omission,
+                                    replicates=replicates, seed=seed)
+            area_share, proc = float(surf.area_shares[0]), surf.partial_roc
+            boyce = surf.boyce.statistic if surf.boyce is not None else np.nan
+            cell_lo, cell_hi = surf.surface.value_min, surf.surface.value_max
+            area_source = "raster cells (area-weighted)"
+        else:
+            if s_ev_o.size == 0:
+                raise InputError("no raster and no evaluation background/absences with predictions; the binomial test needs one of them.")
+            area_share = float(np.mean(s_ev_o >= thr.value))
+            proc = partial_roc(s_ev_o, s_ev_p, None, omission=omission, replicates=replicates, seed=seed)
+            boyce = boyce_index(s_ev_p, s_ev_o).statistic
+            cell_lo, cell_hi = np.inf, -np.inf
+            area_source = f"evaluation {other_kind} records"
+    except InputError as e:
+        where = f"{path}: " if path is not None else "prediction table: "
+        raise InputError(f"{where}fold {label}: {str(e)[0].lower()}{str(e)[1:]}") from None
+    lo = min(s_ev_p.min(), s_cal_p.min(), cell_lo)
+    hi = max(s_ev_p.max(), s_cal_p.max(), cell_hi)
     if lo < 0 or hi > 1:
         fold_warn.append(f"fold {label}: predictions run from {lo:.3g} to {hi:.3g}, outside [0, 1]; "
                          "only their order is used (ranks), which every test here allows")
-
-    if cells is not None:
-        area_share = area_predicted(cells, areas, thr.value)
-        ref_values, ref_weights, area_source = cells, areas, "raster cells (area-weighted)"
-    else:
-        if s_ev_o.size == 0:
-            raise InputError(f"fold {label}: no raster and no evaluation background/absences with predictions; the binomial test needs one of them.")
-        area_share = float(np.mean(s_ev_o >= thr.value))
-        ref_values, ref_weights, area_source = s_ev_o, None, f"evaluation {other_kind} records"
     successes = int(np.sum(s_ev_p >= thr.value))
     binom = binomial_test(successes, s_ev_p.size, area_share)
-    try:
-        proc = partial_roc(ref_values, s_ev_p, ref_weights, omission=omission, replicates=replicates, seed=seed)
-    except InputError as e:
-        where = f"{path}: " if cells is not None else "prediction table: "
-        raise InputError(f"{where}fold {label}: {str(e)[0].lower()}{str(e)[1:]}") from None
     if s_ev_o.size:
         meas = confusion_measures(s_ev_p, s_ev_o, thr.value, other_kind=other_kind).to_dict()
     else:
         meas = {}
         fold_warn.append(f"fold {label} has no evaluation background or absences: confusion-matrix measures not computed")
-    boyce = boyce_index(s_ev_p, ref_values, ref_weights).statistic
     significant = bool(binom.pvalue < alpha and proc.pvalue < alpha)
     row = {
         "fold": str(label),
@@ -366,11 +372,10 @@ def _extent_check(assignment, pattern, names, region, warnings):
     import shapely
 
     from splitter.geo import equal_area_crs, planar_km
-    from splitter.io.rasters import cell_values_and_areas
+    from splitter.io.rasters import valid_cells
 
     first = names.get(assignment.folds[0], str(assignment.folds[0]))
-    _, areas = cell_values_and_areas(_fold_raster(pattern, first), region)
-    region_km2 = float(areas.sum())
+    region_km2 = float(sum(b.areas.sum() for b in valid_cells(_fold_raster(pattern, first), region)))
     kept = (assignment.fold >= 0) & (assignment.kind == "presence")
     pts = assignment.records.points.take(np.flatnonzero(kept))
     crs = equal_area_crs(pts) if pts.geographic else pts.crs

@@ -13,6 +13,8 @@ the bottom of the range to (top - width) with a step of 1/100 of the range, so 9
 windows, the first starting at the bottom and the last ending at the top. Windows
 are closed intervals [start, start + width]. Windows without expected mass are left
 out (P/E is undefined there).
+P/E ratios that are equal up to floating-point rounding (e.g. windows holding
+different cells of the same total area) are ranked as ties.
 """
 
 from __future__ import annotations
@@ -167,8 +169,26 @@ def boyce_index(
     starts, ends, width = _windows(lo, hi, width_share, step_share)
     order = np.argsort(ref, kind="stable")
     ref_sorted = ref[order]
-    expected = _window_mass(ref_sorted, np.cumsum(w[order]) / w.sum(), starts, ends)
+    expected = _window_weight(ref_sorted, w[order], starts, ends) / w.sum()
     return _from_expected(pres, starts, ends, width, expected)
+
+
+def _window_weight(sorted_values: np.ndarray, sorted_weights: np.ndarray, starts: np.ndarray, ends: np.ndarray):
+    """Summed weight in closed windows [start, end] of values sorted ascending.
+
+    Each window is summed from the pieces of the sorted array between consecutive
+    window edges (pairwise sums of non-negative numbers), not as the difference of
+    two running totals: over 10^8 raster cells a running total drifts by ~1e-9 of
+    the whole, which the difference would pass on to a small window's share. The
+    loops run over the pieces and windows (a few hundred), never over the cells.
+    """
+    lower = np.searchsorted(sorted_values, starts, side="left")
+    upper = np.searchsorted(sorted_values, ends, side="right")
+    cuts = np.unique(np.concatenate([lower, upper]))
+    pieces = np.array([sorted_weights[a:b].sum() for a, b in zip(cuts[:-1], cuts[1:])])
+    first, last = np.searchsorted(cuts, lower), np.searchsorted(cuts, upper)
+    # An empty window (lower == upper) sums no piece: exactly 0.
+    return np.array([pieces[i:j].sum() for i, j in zip(first, last)])
 
 
 def _windows(lo: float, hi: float, width_share, step_share) -> tuple[np.ndarray, np.ndarray, float]:

@@ -47,7 +47,7 @@ True
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Callable, Iterable
+from typing import Iterable
 
 import numpy as np
 
@@ -531,13 +531,21 @@ def boyce_from_surface(
         raise InputError("Some scores are missing or infinite; drop nodata cells and those records first.")
     lo, hi = (surface.value_min, surface.value_max) if value_range is None else value_range
     starts, ends, width = _windows(lo, hi, width_share, step_share)
-    cum = np.cumsum(surface.slot_weights)
-    # Cells < start are the slots up to 2j; cells <= end up to 2j + 1. A window
-    # without cells gets exactly 0: only zero slots lie between its two prefix sums.
-    below_start = cum[2 * surface._positions(starts, "Boyce window start")]
-    upto_end = cum[2 * surface._positions(ends, "Boyce window end") + 1]
-    expected = (upto_end - below_start) / surface.total_weight
+    # Cells in [start, end] fill the slots from "equal to start" (2j + 1) to "equal
+    # to end" (2k + 1). Each window sums its own slots (as boyce_index sums its own
+    # pieces) rather than differencing running totals, which would cancel badly for
+    # small windows; zero slots are left out so that windows holding the same cells
+    # add the same numbers in the same order and tie exactly.
+    first = 2 * surface._positions(starts, "Boyce window start") + 1
+    last = 2 * surface._positions(ends, "Boyce window end") + 2
+    slots = surface.slot_weights
+    weight = np.array([_nonzero_sum(slots[a:b]) for a, b in zip(first, last)])
+    expected = weight / surface.total_weight
     return _from_expected(pres, starts, ends, width, expected)
+
+
+def _nonzero_sum(x: np.ndarray) -> float:
+    return float(x[x != 0.0].sum())
 
 
 def evaluate_surface(

@@ -492,6 +492,9 @@ class _CellReader:
         self._stack = contextlib.ExitStack()
 
     def __enter__(self):
+        # Each window is read once, so GDAL's block cache (5 % of RAM by default)
+        # only holds memory; a small cache keeps large rasters lean.
+        self._stack.enter_context(rasterio.Env(GDAL_CACHEMAX=64))
         self.srcs = [self._stack.enter_context(rasterio.open(p)) for p in self.paths]
         return self
 
