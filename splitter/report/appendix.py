@@ -34,7 +34,7 @@ from splitter.io.results import write_csv
 from splitter.report import paragraph as P
 from splitter.report.document import Bullets, Code, Document, Figure, Heading, Table, Text, to_markdown
 from splitter.report.html import to_html
-from splitter.report.maps import SPATIAL_METHODS, MapPlane, cell_grid, generalise_coordinates, plot_fold_map
+from splitter.report.maps import SPATIAL_METHODS, MapPlane, cell_grid, generalise_coordinates, map_extent, plot_fold_map
 from splitter.report.panels import plot_roc_panels, range_estimate_from_dict
 from splitter.report.rundir import Run, SplitRun, load_run, sha256_file
 from splitter.report.style import save
@@ -113,14 +113,21 @@ def _seed_from(command: str | None) -> str:
 
 
 def _check_out_dir(run: Run, out_dir: Path) -> None:
-    """OUT_DIR may sit inside RUN_DIR (as the demo's does) but never on the run's files."""
+    """OUT_DIR may sit inside RUN_DIR (the demo's does) but never where the run keeps files.
+
+    Refused: RUN_DIR or a split folder itself, and anything inside a split's ``audit/`` or
+    ``evaluation/`` folder or the run's ``range/`` folder (the appendix replaces its own old
+    figures, which must never be the run's).
+    """
     out = out_dir.resolve()
-    if out == run.folder.resolve():
-        raise InputError(f"--out {out_dir}: is the run folder itself; give a new folder (e.g. {run.folder}/appendix).")
-    guarded = [s.folder.resolve() for s in run.splits]
+    exact = {run.folder.resolve(), *(s.folder.resolve() for s in run.splits)}
+    if out in exact:
+        raise InputError(f"--out {out_dir}: is a folder of the run itself; give a new folder "
+                         f"(e.g. {run.folder / 'appendix'}).")
+    subtrees = [s.folder.resolve() / part for s in run.splits for part in ("audit", "evaluation")]
     if run.range_path is not None:
-        guarded.append(run.range_path.parent.resolve())
-    for g in guarded:
+        subtrees.append(run.range_path.parent.resolve())
+    for g in subtrees:
         if out == g or g in out.parents:
             raise InputError(f"--out {out_dir}: lies inside {g}, which holds the run's files; give another folder.")
 
@@ -269,24 +276,37 @@ def _display_audit(split: SplitRun, source: str) -> Table:
     t = split.audit_table
     if t is None:
         t = pd.DataFrame(split.audit.get("folds", [])).astype(str)
+
+    def cnt(v):
+        return P.fmt_count(_num(v)) if math.isfinite(_num(v)) else ""
+
     spec = [("fold", "fold", str), ("verdict", "verdict", str),
-            ("n_evaluation", "evaluation records", lambda v: P.fmt_count(_num(v)) if math.isfinite(_num(v)) else ""),
-            ("n_calibration", "calibration records", lambda v: P.fmt_count(_num(v)) if math.isfinite(_num(v)) else ""),
-            ("nn_median_km", "median nearest calibration distance (km)", lambda v: P.fmt_km_value(_num(v))),
-            ("nn_p10_km", "10th percentile (km)", lambda v: P.fmt_km_value(_num(v))),
+            ("n_evaluation", "evaluation records", cnt), ("n_calibration", "calibration records", cnt),
+            ("nn_median_km", "NN median (km)", lambda v: P.fmt_km_value(_num(v))),
+            ("nn_p10_km", "NN 10th percentile (km)", lambda v: P.fmt_km_value(_num(v))),
             ("share_within_range", "share within range", lambda v: P.fmt_share(_num(v))),
-            ("wasserstein_km", "Wasserstein-1 vs prediction locations (km)", lambda v: P.fmt_km_value(_num(v))),
+            ("wasserstein_km", "W1 vs prediction locations (km)", lambda v: P.fmt_km_value(_num(v))),
             ("schoener_d", "Schoener's D", lambda v: P.fmt_share(_num(v))),
-            ("share_outside_envelope", "share outside envelope (MESS < 0)", lambda v: P.fmt_share(_num(v))),
-            ("shared_method_share", "share with a shared method", lambda v: P.fmt_share(_num(v))),
-            ("reasons", "why", str)]
+            ("share_outside_envelope", "share outside envelope", lambda v: P.fmt_share(_num(v))),
+            ("shared_method_share", "share with shared method", lambda v: P.fmt_share(_num(v)))]
     spec = [s for s in spec if s[0] in t.columns]
-    rows = tuple(tuple(fn(r[c]) for c, _, fn in spec) for _, r in t.iterrows())
-    notes = ["Distances run from each evaluation record to its nearest calibration record (geodesic). "
-             "Empty cells: the measure could not be computed (no range, covariates or groups given)."]
+    cells = [[fn(r[c]) for c, _, fn in spec] for _, r in t.iterrows()]
+    # Columns no fold could fill (no covariates or groups given) are left out of the page, not the CSV.
+    keep = [j for j in range(len(spec)) if j < 2 or any(row[j] for row in cells)]
+    rows = tuple(tuple(row[j] for j in keep) for row in cells)
+    dropped = [spec[j][1] for j in range(len(spec)) if j not in keep]
+    notes = ["NN: distance (geodesic) from an evaluation record to its nearest calibration record. W1: "
+             "Wasserstein-1 distance between those distances and the prediction-location-to-record distances. "
+             "Envelope: the calibration records' covariate ranges (MESS < 0 outside)."]
+    if dropped:
+        notes.append("Not computed for any fold (no input for it): " + ", ".join(dropped) + ".")
+    if "reasons" in t.columns:
+        fired = [(str(r["fold"]), str(r["reasons"])) for _, r in t.iterrows()
+                 if str(r.get("verdict")) != "independent" and str(r["reasons"]).strip()]
+        notes += [f"Fold {f}: {why}." for f, why in fired]
     return Table(caption=f"Residual dependence audit, split `{split.name}` (verdict: {split.audit.get('verdict')}).",
-                 columns=tuple(s[1] for s in spec), rows=rows, css_class="audit", element_id=f"audit-{_safe(split.name)}",
-                 notes=tuple(notes), source=source)
+                 columns=tuple(spec[j][1] for j in keep), rows=rows, css_class="audit",
+                 element_id=f"audit-{_safe(split.name)}", notes=tuple(notes), source=source)
 
 
 PERFORMANCE = [("auc_ratio_mean", "partial AUC ratio (mean)"), ("auc_ratio_interval", "95% interval"),
@@ -294,30 +314,30 @@ PERFORMANCE = [("auc_ratio_mean", "partial AUC ratio (mean)"), ("auc_ratio_inter
                ("specificity", "specificity"), ("tss", "TSS"), ("kappa", "kappa"), ("boyce", "Boyce index")]
 
 
-def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> Table:
+def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> tuple[Table, Table]:
+    """Two tables: significance (first, always shown) and performance (significant folds only)."""
     other = ""
     if "other_kind" in frame.columns:
         kinds = set(frame["other_kind"].astype(str)) - {"", "nan"}
         other = "background" if kinds == {"background"} else ""
     perf = [(k, "pseudo-specificity" if (k == "specificity" and other == "background") else lab) for k, lab in PERFORMANCE]
-    cols = ["fold", "significant", "interpretation", "binomial p", "partial ROC p", "evaluation presences",
-            "predicted present", "area predicted present"] + [lab for _, lab in perf]
     fold_rows = frame[frame["fold"].astype(str) != "all"]
     all_sig = bool(len(fold_rows)) and all(_truthy(v) for v in fold_rows["significant"])
-    rows, classes = [], []
+    sig_rows, perf_rows, classes = [], [], []
     for _, r in frame.iterrows():
         is_all = str(r["fold"]) == "all"
         sig = _truthy(r.get("significant"))
-        cells = [
-            "all folds" if is_all else str(r["fold"]),
-            "yes" if sig else "no",
-            str(r.get("interpretation", "")),
+        label = "all folds" if is_all else str(r["fold"])
+        interp = str(r.get("interpretation", ""))
+        sig_rows.append((
+            label, "yes" if sig else "no", interp,
             P.fmt_p(_num(r.get("binomial_p"))),
             P.fmt_p(_num(r.get("partial_roc_p"))),
             P.fmt_count(_num(r.get("n_evaluation"))) if math.isfinite(_num(r.get("n_evaluation"))) else "",
             P.fmt_count(_num(r.get("successes"))) if math.isfinite(_num(r.get("successes"))) else "",
             P.fmt_share(_num(r.get("area_predicted"))),
-        ]
+        ))
+        cells = [label, interp]
         show = sig and (not is_all or all_sig)
         for k, _ in perf:
             if not show:
@@ -327,25 +347,34 @@ def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> Ta
                 cells.append(f"{P.fmt_share(lo)} – {P.fmt_share(hi)}" if math.isfinite(lo) and math.isfinite(hi) else "")
             else:
                 cells.append(P.fmt_share(_num(r.get(k))))
-        rows.append(tuple(cells))
+        perf_rows.append(tuple(cells))
         classes.append("summary" if is_all else ("" if sig else "not-significant"))
     par = (split.evaluation or {}).get("parameters", {})
-    notes = [
-        f"Significance first: binomial and partial ROC p-values (E = {P.fmt_level(par.get('omission'))}, "
-        f"{P.fmt_count(par.get('replicates', 0))} bootstrap replicates); significant when "
-        f"{par.get('significance_rule', 'both tests reject the null')}, alpha = {P.fmt_level(par.get('alpha'))}.",
-        "A fold that is not significant is marked \"do not interpret\": its performance figures are withheld here "
-        "(they stay in the CSV, flagged).",
-        "\"all folds\": p-values combined with Fisher's method; its performance columns are fold means, shown only "
-        "when every fold is significant.",
-    ]
+    tag = _safe(split.name)
+    sig_table = Table(
+        caption=f"Per-fold significance, split `{split.name}` (threshold `{par.get('threshold_rule')}`, chosen from "
+                f"calibration presences).",
+        columns=("fold", "significant", "interpretation", "binomial p", "partial ROC p", "evaluation presences",
+                 "predicted present", "area predicted present"),
+        rows=tuple(sig_rows), css_class="evaluation significance", element_id=f"significance-{tag}",
+        row_classes=tuple(classes),
+        notes=(f"Binomial test: evaluation presences predicted present against the share of area predicted present. "
+               f"Partial ROC: omission tolerance E = {P.fmt_level(par.get('omission'))}, "
+               f"{P.fmt_count(par.get('replicates', 0))} bootstrap replicates. Significant when "
+               f"{par.get('significance_rule', 'both tests reject the null')}, alpha = {P.fmt_level(par.get('alpha'))}.",
+               "\"all folds\": p-values combined with Fisher's method."),
+        source=source)
+    notes = ["A fold that is not significant is marked \"do not interpret\": its performance figures are withheld "
+             "here (they stay in the CSV, flagged).",
+             "\"all folds\": fold means, shown only when every fold is significant."]
     if other == "background":
         notes.append("Specificity is computed against background points, not true absences (pseudo-specificity).")
-    return Table(caption=f"Per-fold significance and performance, split `{split.name}` (threshold "
-                         f"`{par.get('threshold_rule')}`).",
-                 columns=tuple(cols), rows=tuple(rows), css_class="evaluation",
-                 element_id=f"evaluation-{_safe(split.name)}", row_classes=tuple(classes), notes=tuple(notes),
-                 source=source)
+    perf_table = Table(
+        caption=f"Per-fold performance at the threshold, split `{split.name}`.",
+        columns=tuple(["fold", "interpretation"] + [lab for _, lab in perf]), rows=tuple(perf_rows),
+        css_class="evaluation performance", element_id=f"performance-{tag}", row_classes=tuple(classes),
+        notes=tuple(notes), source=source)
+    return sig_table, perf_table
 
 
 def _comparison_frame(splits) -> pd.DataFrame:
@@ -381,7 +410,7 @@ def _comparison_frame(splits) -> pd.DataFrame:
 
 def _display_comparison(df: pd.DataFrame, source: str) -> Table:
     def km(v):
-        return P.fmt_km_value(_num(v)) if math.isfinite(_num(v)) else "none"
+        return P.fmt_km_value(_num(v)) if math.isfinite(_num(v)) else "—"
 
     def cnt(v):
         return "" if pd.isna(v) else P.fmt_count(v)
@@ -389,7 +418,7 @@ def _display_comparison(df: pd.DataFrame, source: str) -> Table:
     rows = []
     for _, r in df.iterrows():
         rows.append((f"`{r['split']}`", str(r["method"]), cnt(r["folds"]), km(r["block_size_km"]),
-                     km(r["buffer_km"]) if _num(r["buffer_km"]) > 0 else "none", str(r["audit_verdict"]) or "not audited",
+                     km(r["buffer_km"]) if _num(r["buffer_km"]) > 0 else "—", str(r["audit_verdict"]) or "not audited",
                      cnt(r["independent_folds"]), cnt(r["significant_folds"]),
                      f"{P.fmt_km_value(r['nn_median_km_min'])} – {P.fmt_km_value(r['nn_median_km_max'])}"
                      if math.isfinite(_num(r["nn_median_km_min"])) else ""))
@@ -412,6 +441,48 @@ def _display_range(doc: dict, source: str) -> Table:
 
 
 # --- the appendix ----------------------------------------------------------------------------
+
+def _map_figure(w: _Writer, s: SplitRun, c: _Coords, plane: MapPlane, plane_words: str, extent,
+                generalise_km: float | None) -> Figure:
+    """Draw and save one split's map; return its figure block."""
+    r = s.records
+    grid = None
+    size = s.parameters.get("block_size_km", s.design.get("block_size_km"))
+    gcrs = s.geometry_crs
+    if s.method in SPATIAL_METHODS and size and gcrs is not None and gcrs.is_projected:
+        from splitter.geo import Points, planar_km
+
+        ok = np.isfinite(r.lon) & np.isfinite(r.lat)
+        gx = np.full(r.lon.shape, np.nan)
+        gy = np.full(r.lat.shape, np.nan)
+        if ok.any():
+            gx[ok], gy[ok] = planar_km(Points.lonlat(r.lon[ok], r.lat[ok]), gcrs)
+        grid = cell_grid(s.method, float(size), s.parameters.get("grid_offset_km") or (0.0, 0.0), gcrs, plane,
+                         gx, gy, r.fold, extent, fill=generalise_km is None)
+    buffer = _num(s.design.get("buffer_km", 0) or 0)
+    fm = plot_fold_map(c.x_km, c.y_km, r.kind, r.fold, fold_names=r.fold_names, gap_rows=r.gap_rows,
+                       gap_folds=r.gap_folds, buffer_km=buffer if buffer > 0 else 0.0, grid=grid, title=s.name,
+                       extent=extent, generalised_km=generalise_km)
+    stem = w.figure(fm.figure, f"map_{_safe(s.name)}")
+    label = r.fold_names.get(fm.focus_fold, str(fm.focus_fold))
+    cap = f"Split `{s.name}`. Left: records coloured by evaluation fold (presences as dots, background as small squares)"
+    if grid is not None:
+        what = "hexagons" if grid.shape == "hexagon" else "square cells"
+        cap += (f" over the design's {what} of {P.fmt_km(grid.size_km)}"
+                + (" (cells coloured by the fold of the records they hold)" if generalise_km is None else
+                   " (cells left uncoloured: with generalised positions the fold of each cell is not shown)"))
+        if grid.occupied_only and len(grid.polygons):
+            cap += "; only occupied cells are outlined"
+        elif grid.occupied_only:
+            cap += "; too many cells to outline at this scale without showing where records are"
+    cap += f". Right: fold {label}'s evaluation records and its calibration records"
+    if buffer > 0:
+        cap += (f", with the {P.fmt_count(fm.n_gap)} records left out of its calibration set by the "
+                f"{P.fmt_km(buffer)} buffer (crosses; the fold with the most records left out)")
+    cap += f". Axes in km on the {plane_words}"
+    cap += f"; positions generalised to {generalise_km:g} km cells." if generalise_km else "."
+    return Figure(stem, cap, alt=f"map of records by fold, split {s.name}")
+
 
 def _ratio_frames(splits) -> dict:
     frames = {}
@@ -472,12 +543,15 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
             f"audits and evaluations were computed on the exact positions, which stay in the run folder only.",
             "warning"))
 
-    # 2. Records and folds
+    # 2. Records and folds, each split with its map; maps share one extent so they compare at a glance
     blocks.append(Heading(1, "Records and folds", "folds"))
-    coords = {}
+    coords = {s.name: _coords(s, plane, generalise_km) for s in splits}
+    allx = np.concatenate([coords[s.name].x_km[s.records.fold >= 0] for s in splits])
+    ally = np.concatenate([coords[s.name].y_km[s.records.fold >= 0] for s in splits])
+    ok = np.isfinite(allx) & np.isfinite(ally)
+    extent = map_extent(allx[ok], ally[ok]) if ok.any() else None
     for s in splits:
-        c = _coords(s, plane, generalise_km)
-        coords[s.name] = c
+        c = coords[s.name]
         tag = _safe(s.name)
         rec_src = w.table(_records_frame(s, c), f"{tag}_records")
         counts = _fold_counts_frame(s)
@@ -486,56 +560,8 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         blocks.append(_display_fold_counts(s, counts, src))
         blocks.append(Text(f"Every record with its fold, kind and coordinates"
                            f"{' (generalised)' if generalise_km else ''}: `{rec_src}`."))
-
-    # maps, drawn on one common extent so the splits compare at a glance
-    allx = np.concatenate([coords[s.name].x_km[s.records.fold >= 0] for s in splits])
-    ally = np.concatenate([coords[s.name].y_km[s.records.fold >= 0] for s in splits])
-    ok = np.isfinite(allx) & np.isfinite(ally)
-    extent = None
-    if ok.any():
-        from splitter.report.maps import _extent
-
-        extent = _extent(allx[ok], ally[ok])
-    for s in splits:
-        if extent is None:
-            break
-        c = coords[s.name]
-        r = s.records
-        grid = None
-        size = s.parameters.get("block_size_km", s.design.get("block_size_km"))
-        gcrs = s.geometry_crs
-        if s.method in SPATIAL_METHODS and size and gcrs is not None and gcrs.is_projected:
-            from splitter.geo import Points, planar_km
-
-            ok_r = np.isfinite(r.lon) & np.isfinite(r.lat)
-            gx = np.full(r.lon.shape, np.nan)
-            gy = np.full(r.lat.shape, np.nan)
-            if ok_r.any():
-                gx[ok_r], gy[ok_r] = planar_km(Points.lonlat(r.lon[ok_r], r.lat[ok_r]), gcrs)
-            grid = cell_grid(s.method, float(size), s.parameters.get("grid_offset_km") or (0.0, 0.0), gcrs, plane,
-                             gx, gy, r.fold, extent, fill=generalise_km is None)
-        buffer = _num(s.design.get("buffer_km", 0) or 0)
-        fm = plot_fold_map(c.x_km, c.y_km, r.kind, r.fold, fold_names=r.fold_names, gap_rows=r.gap_rows,
-                           gap_folds=r.gap_folds, buffer_km=buffer if buffer > 0 else 0.0, grid=grid, title=s.name,
-                           extent=extent, generalised_km=generalise_km)
-        stem = w.figure(fm.figure, f"map_{_safe(s.name)}")
-        label = r.fold_names.get(fm.focus_fold, str(fm.focus_fold))
-        cap = (f"Split `{s.name}`. Left: records coloured by evaluation fold (presences as dots, background as small "
-               f"squares)")
-        if grid is not None:
-            what = "hexagons" if grid.shape == "hexagon" else "square cells"
-            cap += (f" over the design's {what} of {P.fmt_km(grid.size_km)}"
-                    + (" (cells coloured by the fold of the records they hold)" if generalise_km is None else
-                       " (cells not coloured: with generalised positions the fold of each cell is not shown)"))
-            if grid.occupied_only:
-                cap += "; only occupied cells are outlined"
-        cap += f". Right: fold {label}'s evaluation records, its calibration records"
-        if buffer > 0:
-            cap += (f", and the {P.fmt_count(fm.n_gap)} records left out of its calibration set by the "
-                    f"{P.fmt_km(buffer)} buffer (crosses)")
-        cap += f". Axes in km on the {plane_words}"
-        cap += f"; positions generalised to {generalise_km:g} km cells." if generalise_km else "."
-        blocks.append(Figure(stem, cap, alt=f"map of records by fold, split {s.name}"))
+        if extent is not None:
+            blocks.append(_map_figure(w, s, c, plane, plane_words, extent, generalise_km))
 
     # 3. Autocorrelation range
     blocks.append(Heading(1, "Autocorrelation range", "range"))
@@ -592,7 +618,8 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
                 blocks.append(Figure(stem, f"Split `{s.name}`: cumulative distributions of nearest-neighbour distances "
                                            f"(evaluation record to nearest calibration record, per fold; prediction "
                                            f"location to nearest record; record to nearest other record), with the "
-                                           f"autocorrelation range. Drawn by the audit.", alt="distance ECDFs"))
+                                           f"autocorrelation range. Drawn by the audit.", alt="distance ECDFs",
+                                     width_pct=62))
 
     # 5. Significance and performance
     blocks.append(Heading(1, "Significance and performance", "evaluation"))
@@ -606,7 +633,7 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         if t is None:
             t = pd.DataFrame(s.evaluation.get("folds", []) + [s.evaluation.get("all", {})]).astype(str)
         src = w.table(_reorder(t, EVAL_FIRST), f"{tag}_evaluation")
-        blocks.append(_display_evaluation(s, t, src))
+        blocks += list(_display_evaluation(s, t, src))
         for msg in s.evaluation.get("warnings", []) or []:
             blocks.append(Text(f"Warning recorded by the evaluation: {msg}", "warning"))
         curves = s.evaluation.get("curves") or {}
@@ -631,7 +658,7 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         stem = w.figure(fig, "auc_ratio_intervals")
         blocks.append(Figure(stem, "Partial AUC ratio per fold: bootstrap mean and 95% interval against the null "
                                    "ratio of 1; filled markers: significant folds, open markers: not significant "
-                                   "(do not interpret).", alt="AUC ratio intervals"))
+                                   "(do not interpret).", alt="AUC ratio intervals", width_pct=72))
 
     # 6. Side by side
     if len(splits) > 1:
@@ -771,6 +798,14 @@ def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> A
     InputError
         No design sidecar in ``run_dir``, a bad ``generalise_km``, or an
         ``out_dir`` on top of the run's files.
+
+    Examples
+    --------
+    >>> from splitter.demo import run_demo
+    >>> run = run_demo("demo-run", replicates=100)  # doctest: +SKIP
+    >>> app = build_appendix("demo-run", "demo-run/appendix-10km", generalise_km=10)  # doctest: +SKIP
+    >>> sorted(p.name for p in app.figures)[:2]  # doctest: +SKIP
+    ['auc_ratio_intervals.png', 'auc_ratio_intervals.svg']
     """
     if generalise_km is not None:
         g = _num(generalise_km)
@@ -778,7 +813,7 @@ def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> A
             raise InputError(f"--generalise {generalise_km}: give a cell size in km greater than 0.")
         generalise_km = g
     out = Path(out_dir)
-    run = load_run(run_dir, exclude=out)
+    run = load_run(run_dir)
     _check_out_dir(run, out)
     out.mkdir(parents=True, exist_ok=True)
     doc, w = _build(run, out, generalise_km)

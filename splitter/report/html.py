@@ -33,13 +33,12 @@ pre { background: #f4f4f4; border: 1px solid #ddd; padding: .6rem .8rem; white-s
       word-break: break-all; }
 table { border-collapse: collapse; margin: .4rem 0 .3rem 0; font-size: .8rem;
         font-family: "DejaVu Sans", Arial, sans-serif; }
-caption { caption-side: top; text-align: left; font-family: "DejaVu Serif", Georgia, serif;
-          font-size: .88rem; padding-bottom: .3rem; }
-th, td { border-top: 1px solid #bbb; border-bottom: 1px solid #bbb; padding: .18rem .45rem; text-align: right;
+p.caption { font-size: .88rem; margin: 1rem 0 .3rem 0; break-after: avoid; }
+th, td { border-top: 1px solid #bbb; border-bottom: 1px solid #bbb; padding: .18rem .45rem; text-align: left;
          vertical-align: top; }
 th { background: #eeeeee; }
-td:first-child, th:first-child { text-align: left; }
-td.text, th.text { text-align: left; }
+td.num, th.num { text-align: right; font-variant-numeric: tabular-nums; }
+td.num, td:first-child { white-space: nowrap; }
 tr.not-significant td { background: #f3f3f3; color: #555; font-style: italic; }
 tr.summary td { border-top: 2px solid #555; font-weight: bold; }
 .table-wrap { overflow-x: auto; margin-bottom: 1.2rem; }
@@ -47,8 +46,13 @@ p.note { font-size: .8rem; color: #444; margin: .1rem 0; }
 figure { margin: 1rem 0 1.6rem 0; }
 figure img { max-width: 100%; height: auto; display: block; border: 1px solid #e2e2e2; }
 figcaption { font-size: .86rem; margin-top: .3rem; }
+table.inputs td, table.run-files td { overflow-wrap: anywhere; }
 @media print {
-  body { max-width: none; margin: 0; font-size: 11pt; }
+  body { max-width: none; margin: 0; font-size: 10.5pt; }
+  table { font-size: 7pt; }
+  th, td { padding: .1rem .22rem; }
+  td.num, td:first-child { white-space: normal; }
+  figure img { max-width: 100% !important; }
   h2 { break-after: avoid; }
   figure, table, pre { break-inside: avoid; }
   .table-wrap { overflow: visible; }
@@ -106,18 +110,21 @@ def to_html(doc: Document, out_dir) -> str:
                 attrs += f' id="{html.escape(b.element_id)}"'
             if b.css_class:
                 attrs += f' class="{html.escape(b.css_class)}"'
+            # A column is numeric (right-aligned, header too) when every filled cell is a number.
+            numeric = [all(_numeric(r[j]) for r in b.rows if j < len(r) and str(r[j]).strip() not in ("", "—"))
+                       and any(j < len(r) and _numeric(r[j]) for r in b.rows) for j in range(len(b.columns))]
+            head = "".join(f'<th class="{"num" if numeric[j] else "text"}">{_inline(c)}</th>'
+                           for j, c in enumerate(b.columns))
             rows = []
-            head = "".join(f"<th>{_inline(c)}</th>" for c in b.columns)
             for k, row in enumerate(b.rows):
                 cls = b.row_classes[k] if k < len(b.row_classes) and b.row_classes[k] else ""
-                cells = "".join(
-                    f'<td class="text">{_inline(c)}</td>' if not _numeric(c) else f"<td>{_inline(c)}</td>" for c in row
-                )
+                cells = "".join(f'<td class="{"num" if j < len(numeric) and numeric[j] else "text"}">{_inline(c)}</td>'
+                                for j, c in enumerate(row))
                 rows.append(f'<tr class="{cls}">{cells}</tr>' if cls else f"<tr>{cells}</tr>")
             notes = "".join(f'<p class="note">{_inline(n)}</p>' for n in b.notes)
             src = f'<p class="note">Data: <code>{html.escape(b.source)}</code></p>' if b.source else ""
             body.append(
-                f'<div class="table-wrap"><table{attrs}><caption><b>Table {n_table}.</b> {_inline(b.caption)}</caption>'
+                f'<div class="table-wrap"><p class="caption"><b>Table {n_table}.</b> {_inline(b.caption)}</p><table{attrs}>'
                 f"<thead><tr>{head}</tr></thead><tbody>{''.join(rows)}</tbody></table>{notes}{src}</div>"
             )
         elif isinstance(b, Figure):
@@ -139,7 +146,8 @@ def to_html(doc: Document, out_dir) -> str:
     )
 
 
-_NUM = re.compile(r"^[<>≤≥]?\s*[-+−]?\d[\d.,eE+−-]*(\s*(km|%))?$")
+_ONE = r"[<>≤≥]?\s*[-+−]?\d[\d.,eE+−-]*(\s*(km|%))?"
+_NUM = re.compile(rf"^{_ONE}(\s*–\s*{_ONE})?$")
 
 
 def _numeric(cell) -> bool:

@@ -31,6 +31,8 @@ from splitter.report.style import GREY, colour, new_figure
 SPATIAL_METHODS = ("blocks", "hexagons", "checkerboard")
 #: Beyond this many lattice cells over the map extent only occupied cells are outlined.
 MAX_GRID_CELLS = 6000
+#: Folds named one by one in a map legend; beyond it one key says the colours repeat.
+MAX_LEGEND_FOLDS = 12
 #: Points added per cell edge when cells are carried into another plane.
 _EDGE_STEPS = 8
 
@@ -210,6 +212,11 @@ def cell_grid(method: str, size_km: float, offset_km, geometry_crs: pyproj.CRS, 
         occ_i, occ_j = hexagon_cells(gx_km[keep], gy_km[keep], size_km, off)
     ii, jj = ii.ravel(), jj.ravel()
     occupied_only = ii.size > MAX_GRID_CELLS
+    if occupied_only and not fill:
+        # Outlining only the occupied cells would show where records are at the cell size,
+        # finer than a generalised map may: draw no cells at all then.
+        return CellGrid(polygons=np.zeros((0, 4 if shape == "square" else 6, 2)), cell_fold=np.zeros(0, np.int64),
+                        shape=shape, size_km=float(size_km), occupied_only=True)
     occ_key = occ_i.astype(np.int64) * 2**32 + occ_j.astype(np.int64)
     uk, first = np.unique(occ_key, return_index=True)
     if occupied_only:
@@ -262,7 +269,8 @@ class FoldMap:
     grid: CellGrid | None = field(default=None, repr=False)
 
 
-def _extent(x, y):
+def map_extent(x, y) -> tuple[float, float, float, float]:
+    """(xmin, xmax, ymin, ymax) of the finite points, padded by 4 % of the larger side."""
     ok = np.isfinite(x) & np.isfinite(y)
     if not ok.any():
         raise InputError("no record has usable coordinates to map.")
@@ -311,7 +319,7 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
     drawn = np.isfinite(x) & np.isfinite(y) & (fold >= 0)
     folds = sorted(int(f) for f in np.unique(fold[fold > 0]))
     if extent is None:
-        extent = _extent(x[drawn], y[drawn])
+        extent = map_extent(x[drawn], y[drawn])
     if focus_fold is None:
         if gap_folds.size:
             counts = np.bincount(gap_folds, minlength=max(folds) + 1 if folds else 1)
@@ -326,16 +334,14 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
     colour_of = {f: colour(f - 1) for f in folds}
 
     if grid is not None and len(grid.polygons):
+        from matplotlib.colors import to_rgba
+
         for ax, filled in ((ax_all, True), (ax_one, False)):
-            faces = ["none"] * len(grid.polygons)
-            if filled:
-                faces = [colour_of.get(int(f), "none") if f > 0 else "none" for f in grid.cell_fold]
+            # Translucent faces, solid outlines: the fill must not fade the cell edges.
+            faces = [to_rgba(colour_of[int(f)], 0.22) if (filled and int(f) in colour_of) else (0, 0, 0, 0)
+                     for f in grid.cell_fold]
             ax.add_collection(PolyCollection(list(grid.polygons), facecolors=faces, edgecolors=GREY,
-                                             linewidths=0.4, alpha=0.22 if filled else 0.6, zorder=1))
-            if filled and grid.cell_fold.any():
-                # The translucent fill would fade the outlines; draw them again on top.
-                ax.add_collection(PolyCollection(list(grid.polygons), facecolors="none", edgecolors=GREY,
-                                                 linewidths=0.4, zorder=1.1))
+                                             linewidths=0.4 if filled else 0.3, zorder=1))
 
     # Panel 1: every record by fold; presences larger than background.
     for f in folds:
@@ -375,7 +381,11 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
     ax_one.set_title(f"fold {label}: evaluation, calibration and buffer gap" if buffer_km > 0
                      else f"fold {label}: evaluation and calibration records")
 
-    handles = [Patch(facecolor=colour_of[f], edgecolor="none", label=f"fold {fold_names.get(f, f)}") for f in folds]
+    if len(folds) <= MAX_LEGEND_FOLDS:
+        handles = [Patch(facecolor=colour_of[f], edgecolor="none", label=f"fold {fold_names.get(f, f)}")
+                   for f in folds]
+    else:  # leave-one-out and the like: colours repeat, one key says so
+        handles = [Patch(facecolor=colour(0), edgecolor="none", label=f"{len(folds)} folds (colours repeat)")]
     handles += [Line2D([], [], ls="none", marker="o", color=GREY, ms=4, label="presence"),
                 Line2D([], [], ls="none", marker="s", color=GREY, ms=2, label="background")]
     if absn.any():
@@ -383,8 +393,9 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
     if cal_only.any():
         handles.append(Line2D([], [], ls="none", marker="x", color="#000000", ms=4, label="calibration only"))
     if grid is not None and len(grid.polygons):
-        what = "hexagons" if grid.shape == "hexagon" else "cells"
-        handles.append(Patch(facecolor="none", edgecolor=GREY, label=f"{what} of {grid.size_km:.1f} km"))
+        what = (f"hexagons (area of a {grid.size_km:.1f} km block)" if grid.shape == "hexagon"
+                else f"cells of {grid.size_km:.1f} km")
+        handles.append(Patch(facecolor="none", edgecolor=GREY, label=what))
     ax_all.legend(handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=4, frameon=False)
     h2 = [Line2D([], [], ls="none", marker="o", color=colour_of.get(focus_fold, colour(0)), ms=4,
                  label=f"fold {label} evaluation"),
@@ -394,7 +405,7 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
                          label=f"left out by the {buffer_km:.1f} km buffer ({int(gap.sum())})"))
     ax_one.legend(handles=h2, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, frameon=False)
     if generalised_km:
-        fig.text(0.995, 0.005, f"positions generalised to {generalised_km:g} km cells", ha="right", va="bottom",
-                 fontsize=7, color=GREY)
+        fig.suptitle(f"positions generalised to {generalised_km:g} km cells", x=0.995, ha="right", fontsize=7,
+                     color=GREY)
     return FoldMap(figure=fig, x_km=x, y_km=y, fold=fold, focus_fold=int(focus_fold), n_gap=int(gap.sum()),
                    grid=grid)

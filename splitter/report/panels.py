@@ -133,6 +133,9 @@ def range_estimate_from_dict(doc: dict):
                             bin_edges_km=arr(s["bin_edges_km"]), n_points=int(s["n_points"]))
         for name, s in doc["semivariograms"].items()
     }
+    # JSON keys come back sorted; the fits keep the covariates' own order.
+    order = list(dict.fromkeys(f["covariate"] for f in doc["fits"] if f["covariate"] in svs))
+    svs = {name: svs[name] for name in order + [n for n in svs if n not in order]}
     fields = VariogramFit.__dataclass_fields__
     fits, best = [], {}
     for f in doc["fits"]:

@@ -21,10 +21,10 @@ import numpy as np
 
 METHOD_WORDS = {
     "blocks": "spatial blocks",
-    "hexagons": "hexagonal spatial blocks",
-    "checkerboard": "a checkerboard of square cells",
+    "hexagons": "hexagonal blocks",
+    "checkerboard": "a checkerboard",
     "clusters": "environmental clusters",
-    "groups": "groups (leave one group out)",
+    "groups": "groups, leaving one group out",
     "holdout-group": "a one-way group holdout",
     "random": "random assignment",
     "leave-one-out": "leave-one-out",
@@ -59,7 +59,13 @@ def fmt_level(x) -> str:
 
 
 def fmt_p(p) -> str:
-    """A p-value: three significant digits, ``< 0.001`` below 0.001."""
+    """A p-value: three significant digits, ``< 0.001`` below 0.001.
+
+    Examples
+    --------
+    >>> fmt_p(0.0123456), fmt_p(2e-9), fmt_p(0.4)
+    ('0.0123', '< 0.001', '0.4')
+    """
     if p is None or (isinstance(p, float) and not math.isfinite(p)):
         return ""
     p = float(p)
@@ -67,13 +73,42 @@ def fmt_p(p) -> str:
 
 
 def fmt_list(items) -> str:
-    """``a``, ``a and b``, ``a, b and c``."""
+    """``a``, ``a and b``, ``a, b and c``.
+
+    Examples
+    --------
+    >>> fmt_list([86, 86, 85])
+    '86, 86 and 85'
+    """
     items = [str(i) for i in items]
     if not items:
         return ""
     if len(items) == 1:
         return items[0]
     return ", ".join(items[:-1]) + " and " + items[-1]
+
+
+#: Per-fold lists longer than this are summarised (range and total) instead of listed.
+MAX_LISTED = 12
+
+
+def fold_values(values, total: bool = True) -> str:
+    """Per-fold counts as a list (``86, 86 and 85``), or a summary for many folds.
+
+    Examples
+    --------
+    >>> fold_values([3, 4])
+    '3 and 4'
+    >>> fold_values([1] * 20)
+    'from 1 to 1 (total 20 over 20 folds)'
+    >>> fold_values([5, 6] * 10, total=False)
+    'from 5 to 6 (over 20 folds)'
+    """
+    values = [int(v) for v in values]
+    if len(values) <= MAX_LISTED:
+        return fmt_list(fmt_count(v) for v in values)
+    what = f"total {fmt_count(sum(values))} over" if total else "over"
+    return f"from {fmt_count(min(values))} to {fmt_count(max(values))} ({what} {fmt_count(len(values))} folds)"
 
 
 def _num(v):
@@ -156,7 +191,7 @@ def _design_sentences(split, plane_words: str) -> list[str]:
     out = []
     size = p.get("block_size_km", d.get("block_size_km"))
     if method in ("blocks", "hexagons", "checkerboard") and size is not None:
-        shape = ("hexagonal cells with the area of a square block of " if method == "hexagons"
+        shape = ("hexagons with the area of a square block of " if method == "hexagons"
                  else "square cells of ")
         s = (f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: {shape}{fmt_km(size)} "
              f"laid in the {plane_words}")
@@ -186,8 +221,11 @@ def _design_sentences(split, plane_words: str) -> list[str]:
         out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: k-means (seed {seed}) on "
                    f"the covariates {fmt_list(covs)}, standardised on {p.get('standardised_on', 'the records')}.")
     elif method == "groups":
+        groups = p.get("fold_groups") or {}
+        named = (" (" + "; ".join(f"fold {f}: {g}" for f, g in list(groups.items())[:MAX_LISTED])
+                 + ("; ..." if len(groups) > MAX_LISTED else "") + ")") if groups else ""
         out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: one fold per value of "
-                   f"the column `{p.get('group_column', '?')}`.")
+                   f"the column `{p.get('group_column', '?')}`{named}.")
     elif method == "holdout-group":
         out.append(f"The {kept} kept records were split by {how} on the column `{p.get('group_column', '?')}`: "
                    f"calibration on {fmt_list(p.get('calibrate_on') or ['the other groups'])}, evaluation on "
@@ -204,16 +242,16 @@ def _design_sentences(split, plane_words: str) -> list[str]:
     buffer = _num(d.get("buffer_km", p.get("buffer_km", 0)) or 0)
     folds = d.get("folds", []) or []
     if buffer > 0:
-        gaps = [fmt_count(f.get("gap", 0)) for f in folds]
+        gaps = fold_values(f.get("gap", 0) for f in folds)
         out.append(f"A buffer of {fmt_km(buffer)} was applied: calibration records closer than {fmt_km(buffer)} to a "
                    f"fold's evaluation records were left out of that fold's calibration set "
-                   f"({fmt_list(gaps)} records left out, fold by fold).")
+                   f"({gaps} records left out, fold by fold).")
     else:
         out.append("No buffer was applied.")
     if folds:
-        ev = [fmt_count(f.get("evaluation_presence", 0)) for f in folds]
-        cal = [fmt_count(f.get("calibration_presence", 0)) for f in folds]
-        out.append(f"Evaluation presences per fold: {fmt_list(ev)}; calibration presences per fold: {fmt_list(cal)}.")
+        ev = fold_values(f.get("evaluation_presence", 0) for f in folds)
+        cal = fold_values((f.get("calibration_presence", 0) for f in folds), total=False)
+        out.append(f"Evaluation presences per fold: {ev}; calibration presences per fold: {cal}.")
     return out
 
 

@@ -206,15 +206,13 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
     )
 
 
-def load_run(run_dir, exclude=None) -> Run:
+def load_run(run_dir) -> Run:
     """Find and read every split of RUN_DIR.
 
     Parameters
     ----------
     run_dir : path
         One split folder, or a folder of split folders (one level down).
-    exclude : path, optional
-        A folder to skip while looking one level down (the appendix's own output).
 
     Raises
     ------
@@ -227,10 +225,7 @@ def load_run(run_dir, exclude=None) -> Run:
     found = [(p, run_dir.name if len(_sidecars(run_dir)) == 1 else f"{run_dir.name}-{p.name[: -len(SIDECAR)]}")
              for p in _sidecars(run_dir)]
     if not found:
-        skip = Path(exclude).resolve() if exclude is not None else None
         for sub in sorted(p for p in run_dir.iterdir() if p.is_dir()):
-            if skip is not None and sub.resolve() == skip:
-                continue
             cars = _sidecars(sub)
             for p in cars:
                 found.append((p, sub.name if len(cars) == 1 else f"{sub.name}-{p.name[: -len(SIDECAR)]}"))
