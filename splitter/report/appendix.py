@@ -654,7 +654,6 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
 
         alpha = float(next(s.evaluation["parameters"].get("alpha", 0.05) for s in splits if s.name in frames))
         fig = plot_ratio_intervals(frames, alpha)
-        _tidy_ratio_figure(fig)
         stem = w.figure(fig, "auc_ratio_intervals")
         blocks.append(Figure(stem, "Partial AUC ratio per fold: bootstrap mean and 95% interval against the null "
                                    "ratio of 1; filled markers: significant folds, open markers: not significant "
@@ -673,18 +672,6 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
     # 8. Cautions
     blocks += _cautions(generalise_km)
     return Document(TITLE, tuple(blocks)), w
-
-
-def _tidy_ratio_figure(fig) -> None:
-    """Keep the interval figure's legend off the null line and its axis label inside the page."""
-    ax = fig.axes[0]
-    ax.set_ylabel("partial AUC ratio\n(bootstrap mean, 95% interval)")
-    lo, hi = ax.get_ylim()
-    ax.set_ylim(min(lo, 0.95), hi)
-    handles, labels = ax.get_legend_handles_labels()
-    if handles:
-        ax.legend(handles, labels, loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=3, frameon=False, fontsize=7)
-    fig.set_size_inches(6.4, 3.9)
 
 
 def _reproducibility(run: Run, splits) -> list:

@@ -36,7 +36,7 @@ def plot_ratio_intervals(frames: dict, alpha: float = 0.05):
 
     ``frames`` maps a split name to its evaluation table (without the ``all`` row).
     """
-    fig = new_figure(6.0, 3.4)
+    fig = new_figure(6.4, 3.9)
     ax = fig.add_subplot()
     n_series = len(frames)
     width = 0.7 / max(n_series, 1)
@@ -58,6 +58,9 @@ def plot_ratio_intervals(frames: dict, alpha: float = 0.05):
     ax.set_xticks(np.arange(len(labels)))
     ax.set_xticklabels(labels)
     ax.set_xlabel("fold")
-    ax.set_ylabel("partial AUC ratio (bootstrap mean, 95 % interval)")
-    ax.legend(loc="best", frameon=False, fontsize=7)
+    ax.set_ylabel("partial AUC ratio\n(bootstrap mean, 95% interval)")
+    lo, hi = ax.get_ylim()
+    ax.set_ylim(min(lo, 0.95), hi)  # keep the null line in view
+    # Legend under the axes, so it never sits on the null line or an interval.
+    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.2), ncol=3, frameon=False, fontsize=7)
     return fig
