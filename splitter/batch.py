@@ -83,8 +83,6 @@ OPTIONS = {
 }
 REQUIRED = ("run", "records")
 KNOWN = REQUIRED + tuple(OPTIONS)
-# Options whose value is a file (or files) whose bytes go into the fingerprint.
-FILE_OPTIONS = ("records", "background", "region", "env", "prediction_table")
 BATCH_COLUMNS = ("run", "status", "error", "method", "folds", "n_presence", "audit_verdict",
                  "folds_significant", "folds_evaluated", "seconds")
 # A run id becomes a folder name: letters, digits, '.', '_', '-', not starting with '.'
@@ -448,8 +446,11 @@ def _commands(spec: RunSpec, final: Path) -> dict:
     return out
 
 
-def _steps(spec: RunSpec, work: Path, final: Path, check) -> dict:
-    """design -> write -> read back -> audit -> evaluate, as the single commands do."""
+def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
+    """design -> write -> read back -> audit -> evaluate, as the single commands do.
+
+    Returns the batch.csv fields of the run and the equivalent single commands.
+    """
     import numpy as np
 
     from splitter.auditor import audit
@@ -564,7 +565,7 @@ def execute_run(spec: RunSpec, out_dir: str, fingerprint_hex: str, inputs: dict)
     row = {"run": spec.run, "status": "ok", "error": "", "method": spec.options["method"],
            "folds": spec.options["folds"], "n_presence": None, "audit_verdict": None,
            "folds_significant": None, "folds_evaluated": None, "seconds": None}
-    work = None
+    work, installing = None, False
     try:
         out.mkdir(parents=True, exist_ok=True)
         work = _new_partial(out, spec.run)
@@ -587,6 +588,7 @@ def execute_run(spec: RunSpec, out_dir: str, fingerprint_hex: str, inputs: dict)
         _point_json_at(work, final)
         check()
         sentinel.unlink()  # FileNotFoundError here also means the folder was taken away
+        installing = True
         _install(work, final)
         work = None
         row.update(summary)
@@ -595,7 +597,9 @@ def execute_run(spec: RunSpec, out_dir: str, fingerprint_hex: str, inputs: dict)
     except _Withdrawn:
         row.update(status="failed", error="interrupted")
     except Exception as e:  # one failing run must not stop the batch
-        row.update(status="failed", error=one_line(e))
+        # A write into a folder the batch just took away fails too: that is the interrupt.
+        withdrawn = work is not None and not installing and not (work / SENTINEL).exists()
+        row.update(status="failed", error="interrupted" if withdrawn else one_line(e))
     finally:
         if work is not None:
             shutil.rmtree(work, ignore_errors=True)
@@ -671,6 +675,35 @@ def write_batch_table(rows, path) -> Path:
     return Path(path)
 
 
+def _quiet_cluster(distributed, n_workers: int):
+    """A local cluster whose worker processes leave Ctrl-C to the client.
+
+    Ctrl-C in a terminal reaches every process of the foreground group; worker
+    processes would each print a traceback. A signal that is ignored when a
+    process starts stays ignored in it, so SIGINT is ignored while the workers
+    are spawned (a few seconds) and restored at once after. Worker logs are
+    silenced below CRITICAL: a run's own failure comes back as its row, and
+    shutdown chatter (heartbeats to a closed scheduler) is no concern of the user.
+    """
+    import logging
+    import signal
+    import threading
+    import warnings
+
+    main = threading.current_thread() is threading.main_thread()
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN) if main else None
+    try:
+        with warnings.catch_warnings():
+            # Two clusters on one machine: Dask moves the second's status page to a free
+            # loopback port and says so; that is no concern of a batch.
+            warnings.filterwarnings("ignore", message="Port .* is already in use")
+            return distributed.LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
+                                            dashboard_address=None, silence_logs=logging.CRITICAL)
+    finally:
+        if main:
+            signal.signal(signal.SIGINT, previous)
+
+
 def _connect(workers, scheduler):
     import distributed
 
@@ -678,12 +711,12 @@ def _connect(workers, scheduler):
         if workers is not None:
             raise InputError("give --workers (a local cluster) or --scheduler (an existing one), not both.")
         try:
-            return distributed.Client(scheduler, timeout="15s", set_as_default=False), None
+            # Connect timeout: Dask's setting distributed.comm.timeouts.connect (default 30 s).
+            return distributed.Client(scheduler, set_as_default=False), None
         except (OSError, TimeoutError, ValueError) as e:
             raise InputError(f"--scheduler {scheduler}: cannot connect ({one_line(e)}); "
                              "start one with 'dask scheduler' or leave out --scheduler.") from None
-    cluster = distributed.LocalCluster(n_workers=workers or 2, threads_per_worker=1, processes=True,
-                                       dashboard_address=None)
+    cluster = _quiet_cluster(distributed, workers or 2)
     try:
         return distributed.Client(cluster, set_as_default=False), cluster
     except BaseException:

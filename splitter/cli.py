@@ -430,6 +430,15 @@ app.command()(evaluate)
 app.command()(appendix)
 
 
+def _register_batch():
+    from splitter.batch import batch_command
+
+    app.command("batch")(guarded(batch_command))
+
+
+_register_batch()
+
+
 def run():  # pragma: no cover - console entry for python -m
     app()
 
