@@ -35,13 +35,12 @@ them so every report prints them):
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from splitter.dependence.distance import DistanceDiagnostics, check_folds, distance_diagnostics
+from splitter.dependence.distance import DistanceDiagnostics, _num, check_folds, distance_diagnostics
 from splitter.dependence.environment import covariate_ranges, mess, schoener_d
 from splitter.errors import InputError
 from splitter.geo import Points
@@ -166,17 +165,6 @@ class AuditResult:
                 for label, r in zip(self.fold_labels, self.ranges)
             },
         }
-
-
-def _num(v):
-    if v is None or isinstance(v, str):
-        return v
-    if isinstance(v, (bool, np.bool_)):
-        return bool(v)
-    if isinstance(v, (int, np.integer)):
-        return int(v)
-    v = float(v)
-    return v if math.isfinite(v) else None
 
 
 def _group_codes(groups, n: int) -> np.ndarray:
