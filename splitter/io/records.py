@@ -125,8 +125,12 @@ def _find_column(columns, wanted, names, option, path) -> str:
 
 def _read_csv_table(path: Path) -> pd.DataFrame:
     text = _decode_csv(path)
+    header = text.split("\n", 1)[0]
+    # Comma unless the header plainly uses another delimiter (semicolon CSVs from
+    # spreadsheets with a decimal comma, or tab-separated text).
+    sep = max((",", ";", "\t"), key=lambda d: (header.count(d), d == ","))
     try:
-        table = pd.read_csv(_io.StringIO(text), dtype=str, keep_default_na=False, na_filter=False)
+        table = pd.read_csv(_io.StringIO(text), sep=sep, dtype=str, keep_default_na=False, na_filter=False)
     except pd.errors.EmptyDataError:
         raise InputError(f"{path}: the file is empty; give a table with a header row and one row per record.") from None
     except pd.errors.ParserError as e:
@@ -222,8 +226,8 @@ def _csv_points(table, path, x, y, crs, notes):
             f"{path}: no coordinate columns found (looked for longitude/lon/x and latitude/lat/y); "
             f"columns are: {', '.join(cols)}; name them with --x COLUMN --y COLUMN."
         )
-    xs = pd.to_numeric(table[x_col].str.strip(), errors="coerce").to_numpy(float)
-    ys = pd.to_numeric(table[y_col].str.strip(), errors="coerce").to_numpy(float)
+    xs = _numbers(table[x_col])
+    ys = _numbers(table[y_col])
     if crs is None:
         crs_obj = WGS84
     else:
@@ -232,6 +236,14 @@ def _csv_points(table, path, x, y, crs, notes):
         except pyproj.exceptions.CRSError:
             raise InputError(f"--crs {crs}: not a CRS pyproj knows; give e.g. EPSG:4326 or EPSG:3035.") from None
     return Points(xs, ys, crs_obj), x_col, y_col
+
+
+def _numbers(column: pd.Series) -> np.ndarray:
+    """Coordinates as floats; a decimal comma (``45,12``) is read as a point."""
+    text = column.astype(str).str.strip()
+    if not text.str.contains(".", regex=False).any():
+        text = text.str.replace(",", ".", regex=False)
+    return pd.to_numeric(text, errors="coerce").to_numpy(float)
 
 
 def _read_vector(path, crs, notes):
