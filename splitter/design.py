@@ -232,6 +232,13 @@ def design(
         params["folds"] = folds
 
     kept_now = fold >= 0
+    if "presence_imbalance" not in params and folds >= 2:
+        # Methods that do not balance (checkerboard, clusters, groups...) still report it.
+        counts = np.bincount(fold[kept_now & (kinds == "presence")], minlength=folds + 1)[1:]
+        bcounts = np.bincount(fold[kept_now & (kinds == "background")], minlength=folds + 1)[1:]
+        spread = lambda c: round(float((c.max() - c.min()) / c.mean()), 4) if c.mean() > 0 else 0.0
+        params["presence_imbalance"] = spread(counts)
+        params["background_imbalance"] = spread(bcounts)
     rows, gfolds = (np.zeros(0, np.int64), np.zeros(0, np.int64))
     if buffer > 0:
         work = np.where(kept_now, fold, -1)
