@@ -161,3 +161,31 @@ def test_few_presences_and_nodata_records(tmp_path):
     assert "only 3 evaluation presences" in res.output
     assert ev.n_evaluation[1] == 3 and np.isfinite(ev.binomial_p[1])
     assert ev.dropped_no_prediction[0] >= 1
+
+
+def test_region_polygon_cuts_the_testing_area(demo_folds, tmp_path):
+    import geopandas as gpd
+    import shapely
+    from shapely.geometry import box
+
+    pattern = _niche_rasters(tmp_path / "preds", [1, 2, 3, 4], noise=0.02)
+    region = tmp_path / "west.gpkg"
+    gpd.GeoDataFrame(geometry=[box(-44.0, 40.0, -38.0, 50.0)], crs=4326).to_file(region)
+    res = run("evaluate", demo_folds, "--predictions", pattern, "--region", region, "--replicates", 50, "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    ev = pd.read_csv(tmp_path / "ev" / "evaluation.csv")
+    folds = pd.read_csv(demo_folds, dtype=str, keep_default_na=False)
+    with rasterio.open(pattern.format(fold=1)) as src:
+        a = src.read(1, masked=True)
+        rows, cols = np.nonzero(~a.mask)
+        xs, ys = rasterio.transform.xy(src.transform, rows, cols)
+        inside = shapely.contains_xy(box(-44.0, 40.0, -38.0, 50.0), np.asarray(xs), np.asarray(ys))
+        areas = cell_areas(src.transform, src.height, src.width, src.crs)[rows]
+        ev_p = folds[(folds.fold == "1") & (folds.kind == "presence")]
+        pres = np.array([v[0] for v in src.sample(zip(ev_p.longitude.astype(float), ev_p.latitude.astype(float)))])
+    cells = a.data[rows, cols][inside]
+    w = areas[inside]
+    y = np.r_[np.ones(pres.size), np.zeros(cells.size)]
+    # reference: sklearn.metrics.roc_auc_score over the cells whose centres fall in the region (shapely)
+    ref = roc_auc_score(y, np.r_[pres, cells], sample_weight=np.r_[np.ones(pres.size), w])
+    assert ev.auc[0] == pytest.approx(ref, abs=1e-9)
