@@ -189,3 +189,19 @@ def test_region_polygon_cuts_the_testing_area(demo_folds, tmp_path):
     # reference: sklearn.metrics.roc_auc_score over the cells whose centres fall in the region (shapely)
     ref = roc_auc_score(y, np.r_[pres, cells], sample_weight=np.r_[np.ones(pres.size), w])
     assert ev.auc[0] == pytest.approx(ref, abs=1e-9)
+
+
+def test_same_seed_gives_byte_identical_evaluation_and_audit(demo_folds, tmp_path):
+    pattern = _niche_rasters(tmp_path / "preds", [1, 2, 3, 4], noise=0.02)
+    for i in range(2):
+        assert run("evaluate", demo_folds, "--predictions", pattern, "--replicates", 100, "--seed", 9,
+                   "--out", tmp_path / f"ev{i}").exit_code == 0
+        assert run("audit", demo_folds, "--range-km", 80, "--env", ENV[0], "--seed", 9, "--out", tmp_path / f"au{i}").exit_code == 0
+    for kind in ("ev", "au"):
+        files = sorted(p.relative_to(tmp_path / f"{kind}0") for p in (tmp_path / f"{kind}0").rglob("*") if p.is_file())
+        assert files
+        for f in files:
+            a, b = (tmp_path / f"{kind}0" / f).read_bytes(), (tmp_path / f"{kind}1" / f).read_bytes()
+            if f.suffix == ".json":  # the recorded command names its own output folder
+                a, b = a.replace(f"{kind}0".encode(), b"X"), b.replace(f"{kind}1".encode(), b"X")
+            assert a == b, f
