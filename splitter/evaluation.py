@@ -57,6 +57,7 @@ class FoldEvaluation:
     curve_x: np.ndarray = field(repr=False)
     curve_y: np.ndarray = field(repr=False)
     ratios: np.ndarray = field(repr=False)
+    scores: pd.DataFrame | None = field(default=None, repr=False)
 
 
 @dataclass(frozen=True)
@@ -253,6 +254,8 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
         v = vals[:, 0]
         a, b, c = ev_p.size, ev_p.size + ev_o.size, ev_p.size + ev_o.size + cal_p.size
         s_ev_p, s_ev_o, s_cal_p, s_cal_o = v[:a], v[a:b], v[b:c], v[c:]
+    scores = _score_table(assignment, label, parts=((ev_p, s_ev_p, "evaluation"), (ev_o, s_ev_o, "evaluation"),
+                                 (cal_p, s_cal_p, "calibration"), (cal_o, s_cal_o, "calibration")))
     no_pred = int((~np.isfinite(s_ev_p)).sum() + (~np.isfinite(s_ev_o)).sum())
     if no_pred:
         fold_warn.append(f"{no_pred} evaluation records have no prediction (nodata or missing) and were left out of fold {label}")
@@ -337,7 +340,28 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
         "warnings": "; ".join(fold_warn),
     }
     warnings.extend(fold_warn)
-    return FoldEvaluation(row, proc.curve.x, proc.curve.y, proc.ratios)
+    used = np.isfinite(scores["prediction"].to_numpy(float))
+    scores["predicted_present"] = np.where(used, (scores["prediction"].to_numpy(float) >= thr.value), None)
+    return FoldEvaluation(row, proc.curve.x, proc.curve.y, proc.ratios, scores)
+
+
+def _score_table(assignment, label, parts) -> pd.DataFrame:
+    """Every record a fold's tests looked at, its prediction, and why it was left out if it was."""
+    frames = []
+    for rows, vals, role in parts:
+        v = np.asarray(vals, float)
+        if rows.size == 0 or v.size != rows.size:  # calibration background is only scored for max-tss
+            continue
+        frames.append(pd.DataFrame({
+            "record_id": assignment.record_id[rows].astype(str),
+            "fold": str(label),
+            "role": role,
+            "kind": assignment.kind[rows].astype(str),
+            "prediction": v,
+            "dropped": np.where(np.isfinite(v), "", "no-prediction"),
+        }))
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
+        columns=["record_id", "fold", "role", "kind", "prediction", "dropped"])
 
 
 MEASURES = ["area_predicted", "auc", "auc_ratio", "auc_ratio_mean", "omission_rate", "sensitivity",

@@ -205,3 +205,23 @@ def test_same_seed_gives_byte_identical_evaluation_and_audit(demo_folds, tmp_pat
             if f.suffix == ".json":  # the recorded command names its own output folder
                 a, b = a.replace(f"{kind}0".encode(), b"X"), b.replace(f"{kind}1".encode(), b"X")
             assert a == b, f
+
+
+def test_scores_file_lists_every_record_the_tests_used_or_left_out(tmp_path):
+    src = write_records_csv(tmp_path / "mine.csv", n_presence=40, n_background=60, lon0=-38, lat0=45)
+    df = pd.read_csv(src, dtype=str, keep_default_na=False)
+    df["f"] = np.where(np.arange(len(df)) % 2 == 0, "1", "2")
+    df.loc[0, ["longitude", "latitude"]] = ["-32.01", "49.9"]  # presence on the nodata sea strip
+    df.to_csv(src, index=False)
+    pattern = _niche_rasters(tmp_path / "preds", [1, 2], noise=0.01)
+    res = run("evaluate", src, "--fold-column", "f", "--predictions", pattern, "--replicates", 50, "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    sc = pd.read_csv(tmp_path / "ev" / "scores.csv", dtype={"record_id": str, "fold": str}, keep_default_na=False)
+    ev = sc[sc.role == "evaluation"]
+    # every evaluation record of every fold is listed once, the one on nodata with its reason
+    assert sorted(ev.record_id) == sorted(df.record_id)
+    assert ev.set_index("record_id").loc[df.record_id[0], "dropped"] == "no-prediction"
+    table = pd.read_csv(tmp_path / "ev" / "evaluation.csv")
+    f1 = ev[(ev.fold == "1") & (ev.kind == "presence") & (ev.dropped == "")]
+    assert table.n_evaluation[0] == len(f1)
+    assert table.successes[0] == (f1.predicted_present.astype(str) == "True").sum()

@@ -33,6 +33,10 @@ def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
 
     out_dir = Path(out_dir)
     paths = {"table": write_csv(result.to_frame(), out_dir / "evaluation.csv")}
+    scores = [f.scores for f in result.folds if f.scores is not None]
+    if scores:
+        # Per record and fold: the prediction used, or why the record was left out.
+        paths["scores"] = write_csv(pd.concat(scores, ignore_index=True), out_dir / "scores.csv")
     doc = result.to_dict()
     if extra:
         doc.update(extra)
