@@ -169,7 +169,7 @@ def evaluate(
     for i in assignment.folds:
         label = names.get(i, str(i))
         fe = _evaluate_fold(assignment, i, label, predictions, table, region_geom, rule, omission,
-                            replicates, alpha, seed, warnings)
+                            replicates, alpha, seed, warnings, notes)
         folds_out.append(fe)
         if progress is not None:
             progress()
@@ -224,7 +224,7 @@ def _fold_raster(pattern, label) -> Path:
 
 
 def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission, replicates,
-                   alpha, seed, warnings) -> FoldEvaluation:
+                   alpha, seed, warnings, notes) -> FoldEvaluation:
     ev = assignment.evaluation(i)
     cal = assignment.calibration(i)
     ev_p = _kind_rows(assignment, ev, "presence")
@@ -250,7 +250,10 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
         s_cal_o = _scores_from_table(table, label, cal_o, assignment) if rule.kind == "max-tss" else np.zeros(0)
     else:
         need = np.concatenate([ev_p, ev_o, cal_p, cal_o])
-        vals, _ = sample_rasters([path], pts.take(need))
+        vals, sample_notes = sample_rasters([path], pts.take(need))
+        for n in sample_notes:  # e.g. records reprojected to the raster's CRS
+            if n.startswith("reprojected") and n not in notes:
+                notes.append(n)
         v = vals[:, 0]
         a, b, c = ev_p.size, ev_p.size + ev_o.size, ev_p.size + ev_o.size + cal_p.size
         s_ev_p, s_ev_o, s_cal_p, s_cal_o = v[:a], v[a:b], v[b:c], v[c:]

@@ -225,3 +225,23 @@ def test_scores_file_lists_every_record_the_tests_used_or_left_out(tmp_path):
     f1 = ev[(ev.fold == "1") & (ev.kind == "presence") & (ev.dropped == "")]
     assert table.n_evaluation[0] == len(f1)
     assert table.successes[0] == (f1.predicted_present.astype(str) == "True").sum()
+
+
+def test_prediction_rasters_in_another_crs_are_read_with_a_note(demo_folds, tmp_path):
+    from rasterio.warp import Resampling, calculate_default_transform, reproject
+
+    pattern = _niche_rasters(tmp_path / "ll", [1, 2, 3, 4], noise=0.02)
+    for f in (1, 2, 3, 4):
+        with rasterio.open(pattern.format(fold=f)) as src:
+            tr, w, h = calculate_default_transform(src.crs, "EPSG:3035", src.width, src.height, *src.bounds)
+            dst = np.full((h, w), np.nan, dtype="float32")
+            reproject(rasterio.band(src, 1), dst, dst_transform=tr, dst_crs="EPSG:3035", resampling=Resampling.nearest,
+                      dst_nodata=np.nan)
+        write_geotiff(tmp_path / f"laea_{f}.tif", dst, tr, "EPSG:3035")
+    res = run("evaluate", demo_folds, "--predictions", tmp_path / "laea_{fold}.tif", "--replicates", 50, "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    assert "reprojected" in res.output and "EPSG:3035" in res.output
+    ev = pd.read_csv(tmp_path / "ev" / "evaluation.csv")
+    ref = pd.read_csv(tmp_path / "ev" / "scores.csv")
+    assert (ref.dropped.fillna("") == "").mean() > 0.95  # records land on the reprojected cells
+    assert ev.significant[:4].all()
