@@ -417,12 +417,27 @@ def _extent_check(assignment, pattern, names, region, warnings):
         )
 
 
+def _predict_window(env, window, est) -> np.ndarray:
+    """Model predictions for one window of the covariate stack (NaN where any covariate is missing)."""
+    import rasterio
+
+    layers = []
+    for p in env:
+        with rasterio.open(p) as src:
+            layers.append(src.read(1, window=window, masked=True).astype("float64").filled(np.nan))
+    stack = np.stack(layers, axis=-1)
+    valid = np.isfinite(stack).all(axis=-1)
+    out = np.full(valid.shape, np.nan)
+    if valid.any():
+        out[valid] = predict_suitability(est, stack[valid])
+    return out
+
+
 def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes, progress) -> str:
     """Fit a model per fold on calibration records and write prediction rasters."""
-    import rasterio
     from sklearn.base import clone
 
-    from splitter.io.rasters import raster_info, sample_rasters, sample_valid_locations, write_geotiff
+    from splitter.io.rasters import raster_info, sample_rasters, sample_valid_locations, write_geotiff_by_rows
 
     env = [str(p) for p in (env or ())]
     if not env:
@@ -434,15 +449,6 @@ def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes,
     for inf in infos[1:]:
         if (inf.width, inf.height) != (first.width, first.height) or inf.transform != first.transform or inf.crs != first.crs:
             raise InputError(f"{inf.path}: the model needs all --env rasters on one grid (same CRS, size and cells) as {first.path}; resample it first.")
-    # The whole stack in memory: the baseline is for the demo and moderate rasters.
-    stack = []
-    for p in env:
-        with rasterio.open(p) as src:
-            a = src.read(1, masked=True).astype("float64")
-            stack.append(a.filled(np.nan))
-    stack = np.stack(stack, axis=-1)
-    valid = np.isfinite(stack).all(axis=-1)
-    X_cells = stack[valid]
     X_rec, _ = sample_rasters(env, assignment.records.points)
     kind = assignment.kind
     bg_extra = None
@@ -469,10 +475,10 @@ def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes,
             X = np.vstack([Xp, Xb])
             y = np.r_[np.ones(len(Xp)), np.zeros(len(Xb))]
             est.fit(X, y)
-        pred = np.full(valid.shape, np.nan)
-        pred[valid] = predict_suitability(est, X_cells)
         label = names.get(i, str(i))
-        write_geotiff(out_dir / f"fold_{label}.tif", pred, first.transform, first.crs)
+        # Predict window by window so covariate grids larger than memory work.
+        write_geotiff_by_rows(out_dir / f"fold_{label}.tif", first.width, first.height, first.transform, first.crs,
+                              lambda w, est=est: _predict_window(env, w, est))
         if progress is not None:
             progress()
     notes.append(f"model fitted per fold on that fold's calibration records; predictions in {out_dir}")

@@ -771,23 +771,33 @@ def write_geotiff(path, array, transform, crs, nodata: float = -9999.0) -> None:
     if data.ndim != 2 or data.size == 0:
         raise InputError(f"A GeoTIFF needs a non-empty 2-D array, not one of shape {data.shape} (for {path}).")
     data = np.where(np.isnan(data), np.float32(nodata), data)
+    with atomic_path(path) as tmp:
+        with rasterio.open(tmp, "w", **_geotiff_profile(data.shape[1], data.shape[0], transform, crs, nodata)) as dst:
+            dst.write(data, 1)
+
+
+def _geotiff_profile(width, height, transform, crs, nodata) -> dict:
     if isinstance(crs, pyproj.CRS):
         crs = crs.to_wkt()
-    profile = dict(
-        driver="GTiff",
-        width=data.shape[1],
-        height=data.shape[0],
-        count=1,
-        dtype="float32",
-        crs=rasterio.crs.CRS.from_user_input(crs),
-        transform=transform,
-        nodata=nodata,
-        compress="deflate",
-        predictor=3,
-        tiled=True,
-        blockxsize=256,
-        blockysize=256,
+    return dict(
+        driver="GTiff", width=width, height=height, count=1, dtype="float32",
+        crs=rasterio.crs.CRS.from_user_input(crs), transform=transform, nodata=nodata,
+        compress="deflate", predictor=3, tiled=True, blockxsize=256, blockysize=256,
     )
+
+
+def write_geotiff_by_rows(path, width: int, height: int, transform, crs, compute, *,
+                          nodata: float = -9999.0, rows_per_window: int = 1024) -> None:
+    """Write a GeoTIFF window by window: ``compute(window)`` returns that window's values.
+
+    For outputs larger than memory (e.g. a model's predictions over a 10^8-cell
+    grid). Windows are whole tile rows (multiples of 256 rows), so every tile is
+    written once; NaN becomes ``nodata``; the file appears atomically.
+    """
+    step = max(256, (rows_per_window // 256) * 256)
     with atomic_path(path) as tmp:
-        with rasterio.open(tmp, "w", **profile) as dst:
-            dst.write(data, 1)
+        with rasterio.open(tmp, "w", **_geotiff_profile(width, height, transform, crs, nodata)) as dst:
+            for row in range(0, height, step):
+                w = Window(0, row, width, min(step, height - row))
+                data = np.asarray(compute(w), dtype=np.float32)
+                dst.write(np.where(np.isnan(data), np.float32(nodata), data), 1, window=w)
