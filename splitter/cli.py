@@ -1,16 +1,20 @@
 """Command line: thin shell over the Python API.
 
-Exit codes: 0 ok, 1 a failed test or verdict asked for with --fail-on,
-2 bad input (one line on stderr naming the file, row or option and what to do).
+Exit codes: 0 ok, 1 a failed test or verdict asked for with --fail-on (or a failed
+batch run), 2 bad input (one line on stderr naming the file, row or option and what
+to do), 3 an unexpected error (a bug; SPLITTER_DEBUG=1 shows the traceback),
+130 interrupted.
 """
 
 from __future__ import annotations
 
 import functools
+import os
 import sys
 from pathlib import Path
 from typing import List, Optional
 
+import click
 import typer
 from rich.console import Console
 from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
@@ -59,6 +63,13 @@ def guarded(fn):
         except KeyboardInterrupt:
             err.print("splitter: interrupted; no partial output was left behind.")
             raise typer.Exit(130)
+        except (typer.Exit, typer.Abort, click.exceptions.ClickException):
+            raise
+        except Exception as e:  # a bug, not bad input: one line, the traceback on request
+            if os.environ.get("SPLITTER_DEBUG"):
+                raise
+            _fail(f"unexpected error ({type(e).__name__}: {e}); this is a bug in splitter, please report it "
+                  "with the command; set SPLITTER_DEBUG=1 to see the traceback.", code=3)
 
     return wrapper
 

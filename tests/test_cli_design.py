@@ -215,3 +215,19 @@ def test_block_size_auto_uses_the_estimated_range(tmp_path):
     est = splitter.estimate_range(env, seed=2)
     assert side["block_size_km"] == est.suggested_block_km
     assert side["parameters"]["block_size_rule"] == "auto"
+
+
+def test_an_unexpected_error_is_one_line_and_exit_3(tmp_path, monkeypatch):
+    import sys
+
+    design_module = sys.modules["splitter.design"]  # the module (splitter.design is also the function)
+
+    def boom(*a, **k):
+        raise ZeroDivisionError("division by zero")
+
+    monkeypatch.setattr(design_module, "design", boom)
+    src = write_records_csv(tmp_path / "r.csv")
+    res = run("design", src, "--block-size", 50, "--out", tmp_path / "f.csv")
+    assert res.exit_code == 3
+    lines = [l for l in res.stderr.strip().splitlines() if l.strip()]
+    assert len(lines) == 1 and "ZeroDivisionError" in lines[0] and "Traceback" not in res.stderr
