@@ -16,7 +16,7 @@ Examples
 __version__ = "0.1.0"
 
 from splitter.auditor import audit
-from splitter.design import add_background, design
+from splitter.fold_design import add_background, design
 from splitter.errors import InputError
 from splitter.evaluation import evaluate
 from splitter.geo import Points

@@ -94,7 +94,7 @@ def audit(
         prediction_points = sample_valid_locations(env, prediction_sample, seed, region=reg)
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area over the rasters' valid cells (seed {seed})"
     elif reg is not None:
-        from splitter.design import sample_in_polygon
+        from splitter.fold_design import sample_in_polygon
 
         prediction_points = sample_in_polygon(region, prediction_sample, seed)
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area inside the region (seed {seed})"

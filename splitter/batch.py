@@ -454,7 +454,7 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     import numpy as np
 
     from splitter.auditor import audit
-    from splitter.design import add_background, design
+    from splitter.fold_design import add_background, design
     from splitter.evaluation import evaluate
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.io.records import combine, read_records

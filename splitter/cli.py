@@ -108,7 +108,7 @@ def load_records(records: Path, x, y, crs, id_column, kind_column, background: O
         bg = read_records(background, x=x, y=y, crs=crs, id_column=id_column, default_kind="background")
         recs = combine(recs, bg, kind="background")
     if background_count:
-        from splitter.design import add_background
+        from splitter.fold_design import add_background
 
         recs = add_background(recs, int(background_count), env=env, region=region, seed=seed)
     return recs
@@ -156,7 +156,7 @@ def design(
     out_path: Path = typer.Option(..., "--out", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
     """Design calibration/evaluation folds before modelling."""
-    from splitter.design import design as run_design
+    from splitter.fold_design import design as run_design
     from splitter.io.foldtable import write_design
 
     with progress() as bar:

@@ -61,7 +61,7 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     DemoRun
     """
     from splitter.auditor import audit
-    from splitter.design import design
+    from splitter.fold_design import design
     from splitter.evaluation import evaluate
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.io.results import write_audit, write_evaluation, write_range

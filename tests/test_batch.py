@@ -203,7 +203,7 @@ def test_outputs_equal_the_single_commands(first, tmp_path):
 
     # sp14: the user's prediction table, through the Python API.
     from splitter.auditor import audit
-    from splitter.design import design
+    from splitter.fold_design import design
     from splitter.evaluation import evaluate
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.io.results import write_audit, write_evaluation
