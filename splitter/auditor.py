@@ -68,8 +68,9 @@ def audit(
 
     kind = assignment.kind
     pres = kind == "presence"
-    cal = [assignment.calibration(i)[pres[assignment.calibration(i)]] for i in assignment.folds]
-    ev = [assignment.evaluation(i)[pres[assignment.evaluation(i)]] for i in assignment.folds]
+    # Presences only: the distances run from evaluation to calibration presences.
+    cal = [rows[pres[rows]] for rows in map(assignment.calibration, assignment.folds)]
+    ev = [rows[pres[rows]] for rows in map(assignment.evaluation, assignment.folds)]
     names = fold_names or {i: str(i) for i in assignment.folds}
     labels = [names.get(i, str(i)) for i in assignment.folds]
 
