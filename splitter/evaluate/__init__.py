@@ -7,6 +7,7 @@ binomial test or partial ROC is not significant should not be interpreted.
 from splitter.evaluate.area import cell_areas
 from splitter.evaluate.baseline import fit_baseline, predict_suitability
 from splitter.evaluate.binomial import BinomialResult, area_predicted, binomial_test
+from splitter.evaluate.cells import CellSource, SuitabilitySurface, as_cells
 from splitter.evaluate.boyce import BoyceResult, boyce_index
 from splitter.evaluate.combine import CombinedPValue, FoldSummary, combine_pvalues_fisher, summarise_folds
 from splitter.evaluate.measures import Measures, confusion_measures
@@ -14,7 +15,6 @@ from splitter.evaluate.partial_roc import (
     PartialROCResult,
     ROCCurve,
     partial_roc,
-    partial_roc_reference,
     roc_curve_area,
 )
 from splitter.evaluate.thresholds import Threshold, ThresholdRule, choose_threshold
@@ -22,11 +22,14 @@ from splitter.evaluate.thresholds import Threshold, ThresholdRule, choose_thresh
 __all__ = [
     "BinomialResult",
     "BoyceResult",
+    "CellSource",
     "CombinedPValue",
     "FoldSummary",
     "Measures",
     "PartialROCResult",
     "ROCCurve",
+    "SuitabilitySurface",
+    "as_cells",
     "Threshold",
     "ThresholdRule",
     "area_predicted",
@@ -38,7 +41,6 @@ __all__ = [
     "confusion_measures",
     "fit_baseline",
     "partial_roc",
-    "partial_roc_reference",
     "predict_suitability",
     "roc_curve_area",
     "summarise_folds",

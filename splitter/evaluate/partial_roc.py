@@ -1,4 +1,4 @@
-"""Exact area-based partial ROC with a bootstrap of evaluation presences.
+"""Exact area-based partial ROC, tested against presences placed at random.
 
 Method: "Rethinking receiver operating characteristic analysis applications in
 ecological niche modeling", Ecological Modelling 213 (2008). For a threshold t,
@@ -17,24 +17,38 @@ and joined by straight lines would be biased upward.
 
 With omission tolerance E, only the part of the curve with y >= 1 - E counts:
 x0 = the smallest x on the curve where y reaches 1 - E, the model's partial area is
-the area under the curve from x0 to 1, the null's is the area under y = x over the
-same range, (1 - x0²) / 2, and the AUC ratio is their quotient (1 = random,
-maximum 2). With E = 1 the ratio is the full AUC / 0.5.
+the area under the curve from x0 to 1, the null line's is the area under y = x over
+the same range, (1 - x0²) / 2, and the AUC ratio is their quotient. With E = 1 the
+ratio is the full AUC / 0.5.
 
-Computation. All cells are passed over once: each cell is placed among the sorted
-distinct evaluation-presence values (a lookup table on a fine monotone bucketing of
-the value range, with a binary search only for cells near a presence value), and
-one weighted ``bincount`` gives, for every distinct presence value u, the area share
-of cells strictly below u (``below``) and equal to u (``tied``). A bootstrap replicate
-is then fully described by how many times it drew each distinct value; its ratio
-follows from those counts in O(number of distinct values), by integrating in
-horizontal strips::
+Significance. The ratio exceeds 1 for *any* model when few presences may be
+omitted: where y >= 1 - E the curve is at least 1 - E while the null line starts at
+x0, so with 10 presences and E = 0.05 the ratio is 2 / (1 + x0) > 1 whatever the
+model. Comparing bootstrap ratios with 1 is therefore no test against a model of no
+predictive ability. The test here compares the observed ratio with B ratios of the
+same number of presences placed at random in the testing region (cells drawn with
+probability proportional to their area; without a raster, background or absence
+records), the same E and the same exact curve, and reports the Monte Carlo p-value
+p = (1 + #{null ratios >= observed}) / (1 + B), which is never 0 and whose floor
+1 / (1 + B) shows how many replicates were run (common practice for Monte Carlo
+tests; Davison & Hinkley, Bootstrap Methods and their Application, Cambridge
+University Press 1997). The bootstrap of 50 % of the presences (with replacement)
+is kept to describe the observed ratio's spread (its 2.5-97.5 percentiles), and the
+conventional p (share of bootstrap ratios <= 1) is kept under its own name for
+comparison with published studies only.
+
+Computation. The cells are never sorted. One pass (see :mod:`splitter.evaluate.cells`)
+gives, for every distinct value u that a presence takes, the area share of cells
+strictly below u and equal to u; a second pass draws the null presences' cells by
+area and a third places their values in the same way. A sample of presences (the
+observed one, a bootstrap replicate or a null replicate) is then fully described
+by those two shares per presence; its ratio follows by integrating in horizontal
+strips, O(m log m) for m presences, with no further pass over the cells::
 
     partial area = (1 - E) (1 - x0) + integral_{1-E}^{1} (1 - x(y)) dy
 
-where x(y) is piecewise linear: a group of k sampled presences tied at value u spans
-a height k/m over which x runs linearly from x(u+) = 1 - below(u) - tied(u) to
-1 - below(u). No replicate touches the cells again.
+where x(y) is piecewise linear: a group of k presences tied at u spans a height k/m
+over which x runs linearly from x(u+) = 1 - below(u) - tied(u) to 1 - below(u).
 """
 
 from __future__ import annotations
@@ -44,18 +58,13 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from splitter.errors import InputError
+from splitter.evaluate.cells import SuitabilitySurface, as_cells, draw_cells, summarise_surface
 
-__all__ = [
-    "ROCCurve",
-    "PartialROCResult",
-    "partial_roc",
-    "roc_curve_area",
-    "partial_roc_reference",
-]
+__all__ = ["ROCCurve", "PartialROCResult", "partial_roc", "roc_curve_area"]
 
-# Replicates are processed in chunks so that the (replicates x distinct values)
-# work arrays stay near this many elements whatever the number of presences.
-_CHUNK_ELEMENTS = 2_000_000
+# Replicates are processed in chunks so that the (replicates x presences) work
+# arrays stay near this many elements whatever the number of presences.
+_CHUNK_ELEMENTS = 1_000_000
 
 
 # ----------------------------------------------------------------------------- results
@@ -97,27 +106,47 @@ class PartialROCResult:
     Attributes
     ----------
     statistic : float
-        Mean AUC ratio over bootstrap replicates.
+        Observed AUC ratio on all evaluation presences (the test statistic; same
+        as ``auc_ratio``).
     pvalue : float
-        Share of replicates with AUC ratio <= 1 (no better than random).
+        Monte Carlo p-value against presences placed at random in the testing
+        region: (1 + #{null ratios >= observed}) / (1 + B). Never 0; its floor
+        1 / (1 + B) shows the number of null replicates.
     auc : float
         Full ROC AUC on all evaluation presences (null 0.5).
     auc_ratio : float
         Partial AUC ratio on all evaluation presences (observed).
+    null_median : float
+        Median of the null ratios: what a model of no predictive ability scores
+        with this many presences and this E (often well above 1 for few presences).
+    bootstrap_mean : float
+        Mean of the bootstrap ratios (50 % of the presences per replicate); a
+        description, not the statistic.
     ratio_low, ratio_high : float
         2.5 and 97.5 percentiles of the bootstrap ratios (numpy's default linear method).
+    pvalue_bootstrap : float
+        Conventional p: share of bootstrap ratios <= 1. For comparison with
+        published studies only: it does not hold its size (a model of no skill is
+        called significant far more often than alpha when presences are few).
     omission : float
         Omission tolerance E.
     replicates : int
-        Bootstrap replicates B.
+        Bootstrap replicates and null replicates B (the same number of each).
     sample_size : int
-        Presences drawn (with replacement) in each replicate.
+        Presences drawn (with replacement) in each bootstrap replicate.
     n_presences : int
         Evaluation presences.
     n_cells : int
         Cells of the testing region with positive weight.
+    can_omit : bool
+        Whether a bootstrap replicate may omit at least one presence
+        (``sample_size * omission >= 1``). When it may not, the partial area is
+        the curve from the lowest presence upwards and the bootstrap ratios exceed
+        1 for any model.
     ratios : numpy.ndarray
         The B bootstrap ratios.
+    null_ratios : numpy.ndarray
+        The B null ratios.
     curve : ROCCurve
         The exact curve on all presences, for plotting.
     """
@@ -126,31 +155,40 @@ class PartialROCResult:
     pvalue: float
     auc: float
     auc_ratio: float
+    null_median: float
+    bootstrap_mean: float
     ratio_low: float
     ratio_high: float
+    pvalue_bootstrap: float
     omission: float
     replicates: int
     sample_size: int
     n_presences: int
     n_cells: int
+    can_omit: bool
     ratios: np.ndarray = field(repr=False)
+    null_ratios: np.ndarray = field(repr=False)
     curve: ROCCurve = field(repr=False)
 
     def to_dict(self) -> dict:
-        """Scalars only (the ratios are summarised by mean, percentiles and p)."""
+        """Scalars only (the ratio arrays are summarised)."""
         return {
             "statistic": self.statistic,
             "pvalue": self.pvalue,
             "auc": self.auc,
             "auc_ratio": self.auc_ratio,
+            "null_median": self.null_median,
+            "bootstrap_mean": self.bootstrap_mean,
             "ratio_low": self.ratio_low,
             "ratio_high": self.ratio_high,
             "ratio_sd": float(np.std(self.ratios, ddof=1)) if self.ratios.size > 1 else float("nan"),
+            "pvalue_bootstrap": self.pvalue_bootstrap,
             "omission": self.omission,
             "replicates": self.replicates,
             "sample_size": self.sample_size,
             "n_presences": self.n_presences,
             "n_cells": self.n_cells,
+            "can_omit": self.can_omit,
         }
 
     def to_frame(self):
@@ -161,52 +199,6 @@ class PartialROCResult:
 
 
 # ----------------------------------------------------------------------------- checks
-
-
-def _as_values(values) -> np.ndarray:
-    # Keep float32 rasters as they are (no 10^7-element copy); everything else is
-    # read as float64. Comparisons are later made in float64, where float32 is exact.
-    arr = np.asarray(values)
-    if arr.dtype.kind != "f":
-        arr = arr.astype(np.float64)
-    return arr.ravel()
-
-
-def _check_inputs(cell_values, presence_scores, cell_weights):
-    v = _as_values(cell_values)
-    s = np.asarray(presence_scores, dtype=np.float64).ravel()
-    if v.size == 0:
-        raise InputError("No cell values were given; the testing region has no valid cells.")
-    if s.size == 0:
-        raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
-    # min and max propagate NaN and show infinities: two fast reductions instead of
-    # an isfinite mask over every cell.
-    vmin, vmax = v.min(), v.max()
-    if not (np.isfinite(vmin) and np.isfinite(vmax)):
-        raise InputError("Some cell values are missing or infinite; drop nodata cells before the partial ROC.")
-    if not np.all(np.isfinite(s)):
-        raise InputError("Some evaluation presence scores are missing or infinite; drop those records first.")
-    w = None
-    if cell_weights is not None:
-        w = np.asarray(cell_weights, dtype=np.float64).ravel()
-        if w.shape != v.shape:
-            raise InputError(f"Got {w.size} cell weights for {v.size} cell values; give one weight per cell.")
-        wmin, total = w.min(), w.sum()
-        if not (np.isfinite(total) and wmin >= 0):
-            raise InputError("Cell weights must be finite and not negative.")
-        if total <= 0:
-            raise InputError("Cell weights sum to zero; give cell areas.")
-        if wmin == 0:
-            live = v[w > 0]
-            vmin, vmax = live.min(), live.max()
-    # All-equal cells leave nothing to rank: every threshold selects all or none of
-    # the region, so the curve says nothing about the model.
-    if vmin == vmax:
-        raise InputError(
-            "All cell values of the testing region are equal, so the prediction does not rank "
-            "the region; check the prediction raster for this fold."
-        )
-    return v, s, w
 
 
 def _check_options(omission, replicates, sample_share):
@@ -239,175 +231,114 @@ def _required(omission: float, m: int) -> float:
 
 
 @dataclass(frozen=True, eq=False)
-class _Prepared:
-    """Per distinct presence value (in descending order of value)."""
+class _ValueTable:
+    """Area share of cells strictly below and equal to each distinct value (ascending)."""
 
-    values: np.ndarray  # distinct presence values, descending
-    below: np.ndarray  # area share of cells strictly below the value
-    tied: np.ndarray  # area share of cells equal to the value
-    group: np.ndarray  # for each presence (input order): index into `values`
-    n_cells: int
+    values: np.ndarray
+    below: np.ndarray
+    tied: np.ndarray
 
 
-def _bucket(x: np.ndarray, low: float, scale: float, buckets: int) -> np.ndarray:
-    """Monotone bucket number in -1..buckets (shifted to 0..buckets+1) of float values.
+def _table(surface: SuitabilitySurface, values: np.ndarray) -> _ValueTable:
+    """Shares for ascending distinct ``values``, each one of the surface's query values."""
+    pos = surface._positions(values, "presence score")
+    total = surface.total_weight
+    below = np.cumsum(surface.slot_weights)[0:-1:2][pos] / total
+    tied = surface.slot_weights[1::2][pos] / total
+    return _ValueTable(values=values, below=below, tied=tied)
 
-    Every step (subtract, multiply, clip, floor) is monotone in floating point, so
-    x1 <= x2 implies bucket(x1) <= bucket(x2); that is all the exactness needs.
+
+def _ratios(keys: np.ndarray, table: _ValueTable, omission: float) -> np.ndarray:
+    """AUC ratio of every row of ``keys`` (rows = samples of m presences; each entry
+    the index of the presence's value in ``table``), by horizontal strips.
+
+    In presence-count units y runs from 0 to m. With the presences sorted by value,
+    descending, presence i spans heights [i, i + 1]; within a group of k presences
+    tied at u that starts at height a, 1 - x falls linearly from below + tied (at
+    a) to below (at a + k), so the strip of presence i adds
+    ``below + tied - tied (i - a + 1/2) / k`` to the integral of (1 - x(y)). The
+    level (1 - E) m lies in the strip of one presence j, the same for every row.
     """
-    y = np.subtract(x, low, dtype=np.float64)
-    y *= scale
-    np.clip(y, -1.0, float(buckets), out=y)  # before the cast: huge values stay finite
-    np.floor(y, out=y)
-    return y.astype(np.intp) + 1
+    out = np.empty(keys.shape[0])
+    m = keys.shape[1]
+    chunk = max(1, _CHUNK_ELEMENTS // m)
+    for start in range(0, keys.shape[0], chunk):
+        out[start : start + chunk] = _ratio_rows(keys[start : start + chunk], table, omission)
+    return out
 
 
-class _CellKeys:
-    """Places cell values among sorted distinct query values (one lookup per cell).
-
-    Each cell gets key = number of edges <= its value, where the edges interleave
-    the distinct query values u_j with their next float up, u_j+:
-    [u_0, u_0+, u_1, u_1+, ...]. So key = 2j for a cell strictly between u_{j-1}
-    and u_j, 2j + 1 for a cell equal to u_j, and 2d above all of them; one
-    weighted bincount of the keys then gives the area below and tied with every
-    query value.
-
-    A plain binary search per cell costs ~10 mispredicted branches, so the key is
-    found through a lookup table on a fine monotone bucketing of the value range:
-    a cell whose bucket holds no edge takes the table's key exactly (edges in
-    lower buckets are below it, edges in higher buckets above); only cells sharing
-    a bucket with an edge (about d / buckets of them for continuous predictions)
-    are binary-searched. Callers feed the cells in blocks that stay in cache.
-
-    Used by :func:`partial_roc` on cells in memory and by
-    :mod:`splitter.evaluate.surface` on cells streamed from a raster.
-    """
-
-    def __init__(self, u: np.ndarray):
-        # u: ascending distinct finite float64 query values.
-        self.edges = np.column_stack([u, np.nextafter(u, np.inf)]).ravel()
-        self.n_keys = 2 * u.size + 1
-        low = float(self.edges[0])
-        span = float(self.edges[-1]) - low  # > 0: u_0+ > u_0
-        buckets = int(min(1 << 20, max(1 << 16, 64 * self.n_keys)))
-        with np.errstate(over="ignore", divide="ignore"):
-            scale = buckets / span
-        self.use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
-        self.low, self.scale, self.buckets = low, scale, buckets
-        if self.use_table:
-            edge_bucket = _bucket(self.edges, low, scale, buckets)
-            self.table = np.searchsorted(edge_bucket, np.arange(buckets + 2), side="left")  # edges in lower buckets
-            self.shared = np.zeros(buckets + 2, dtype=bool)
-            self.shared[edge_bucket] = True
-
-    def __call__(self, vb: np.ndarray) -> np.ndarray:
-        """Key (0 .. n_keys - 1) of every value of the block ``vb``."""
-        if self.use_table:
-            with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
-                b = _bucket(vb, self.low, self.scale, self.buckets)
-            key = self.table[b]
-            near = np.flatnonzero(self.shared[b])
-            if near.size:
-                key[near] = np.searchsorted(self.edges, vb[near].astype(np.float64), side="right")
-            return key
-        # Query values span less than ~1e-300, or more than the float range:
-        # a plain binary search for every cell.
-        return np.searchsorted(self.edges, vb.astype(np.float64), side="right")
-
-
-def _prepare(v: np.ndarray, s: np.ndarray, w: np.ndarray | None) -> _Prepared:
-    """The single pass over the cells (see :class:`_CellKeys`), in blocks that stay in cache."""
-    u, inverse = np.unique(s, return_inverse=True)  # ascending distinct presence values
-    keys = _CellKeys(u)
-    mass = np.zeros(keys.n_keys)
-    block = 1 << 18
-    for start in range(0, v.size, block):
-        key = keys(v[start : start + block])
-        if w is None:
-            mass += np.bincount(key, minlength=keys.n_keys)
-        else:
-            mass += np.bincount(key, weights=w[start : start + block], minlength=keys.n_keys)
-    n_cells = v.size if w is None else int(np.count_nonzero(w))
-    return _prepared_from_mass(u, inverse, mass, n_cells)
-
-
-def _prepared_from_mass(u: np.ndarray, inverse: np.ndarray, mass: np.ndarray, n_cells: int) -> _Prepared:
-    """Area below and tied with each distinct presence value from the key masses.
-
-    ``mass`` (length 2d + 1, keys as in :class:`_CellKeys` for the ascending
-    distinct presence values ``u``) holds the raw cell weight of every key.
-    """
-    d = u.size
-    mass = mass / mass.sum()
-    cum = np.cumsum(mass)
-    # Prefix sums of non-negative masses are exactly 0 below the lowest cell, which
-    # the degenerate-case handling relies on.
-    below = cum[0 : 2 * d : 2]  # cum[2j] = mass of keys 0..2j, i.e. of cells < u[j]
-    tied = mass[1 : 2 * d : 2]
-    # Flip to descending order of value: the curve is traced from the top threshold down.
-    order = np.arange(d)[::-1]
-    group = (d - 1) - np.asarray(inverse).ravel()
-    return _Prepared(values=u[order], below=below[order], tied=tied[order], group=group, n_cells=n_cells)
-
-
-def _ratios_from_counts(counts: np.ndarray, prep: _Prepared, m: int, omission: float) -> np.ndarray:
-    """AUC ratio per row of ``counts`` (rows = replicates, columns = distinct values,
-    descending) for samples of m presences, by horizontal strips.
-
-    In presence-count units y runs from 0 to m. A group of k presences tied at u,
-    with `lo` presences above it, spans heights [lo, lo + k] over which 1 - x falls
-    linearly from `below + tied` to `below`, so a group wholly above the level
-    `required` adds k (below + tied / 2) to the strip integral of (1 - x(y)), and
-    only the group straddling the level (the first whose cumulative count reaches
-    it) needs its partial strip. Each replicate thus costs a few cumulative sums
-    over the distinct values.
-    """
+def _ratio_rows(keys: np.ndarray, table: _ValueTable, omission: float) -> np.ndarray:
+    rows, m = keys.shape
     required = _required(omission, m)
-    rows = np.arange(counts.shape[0])
-    hi = np.cumsum(counts, axis=1)  # presences scoring >= the group's value
-    strip = np.cumsum(counts * (prep.below + prep.tied / 2.0), axis=1)  # whole-group strips, top down
-    total = strip[:, -1]
+    ks = np.sort(keys, axis=1)[:, ::-1]  # descending value
+    below, tied = table.below[ks], table.tied[ks]
+    upper = below + tied  # 1 - x where a presence's group starts
+    pos = np.arange(m)
+    first = np.ones(ks.shape, dtype=bool)
+    first[:, 1:] = ks[:, 1:] != ks[:, :-1]
+    last = np.ones(ks.shape, dtype=bool)
+    last[:, :-1] = first[:, 1:]
+    start = np.maximum.accumulate(np.where(first, pos, 0), axis=1)
+    end = np.minimum.accumulate(np.where(last, pos + 1, m)[:, ::-1], axis=1)[:, ::-1]
+    size = end - start
+    strip = upper - tied * ((pos - start) + 0.5) / size
     if required <= 0.0:
-        # E = 1: x0 = 0 and the model area is the full AUC.
-        one_minus_x0 = np.ones(counts.shape[0])
-        model = total / m
+        # E = 1: x0 = 0 and the model's area is the full AUC.
+        one_minus_x0 = np.ones(rows)
+        model = strip.sum(axis=1) / m
     else:
-        # The straddling group: the first whose cumulative count reaches the level. It
-        # holds at least one presence (the previous cumulative count is below the level).
-        j = np.count_nonzero(hi < required, axis=1)
-        k = counts[rows, j].astype(float)
-        lo = hi[rows, j] - k
-        upper = (prep.below + prep.tied)[j]  # 1 - x where the group's diagonal starts
-        tied = prep.tied[j]
-        one_minus_x0 = upper - tied * (required - lo) / k
-        # Strip of the straddling group above the level: 1 - x from one_minus_x0 down to below.
-        cross = (lo + k - required) * upper - tied * (k * k - (required - lo) ** 2) / (2.0 * k)
-        top = (total - strip[rows, j]) + cross
-        model = ((required / m) * one_minus_x0) + top / m
+        j = int(np.ceil(required)) - 1  # the strip [j, j + 1] holding the level
+        a, k, up, t = start[:, j], size[:, j], upper[:, j], tied[:, j]
+        one_minus_x0 = up - t * (required - a) / k
+        cross = (j + 1 - required) * up - t * ((j + 1 - a) ** 2 - (required - a) ** 2) / (2.0 * k)
+        top = cross + strip[:, j + 1 :].sum(axis=1)
+        model = (required / m) * one_minus_x0 + top / m
     null = one_minus_x0 * (2.0 - one_minus_x0) / 2.0  # (1 - x0²) / 2
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = model / null
     # x0 = 1: more than E of the sample scores below every cell, both areas vanish.
-    # The ratio is then defined by continuity as its limit for x0 -> 1, the curve's
-    # height just left of x = 1: the share of sampled presences scoring at or above
-    # the lowest cell (at most 1 - E, so such a replicate never counts as better
-    # than random).
+    # The ratio is then its limit for x0 -> 1, the curve's height just left of x = 1:
+    # the share of the sample scoring at or above the lowest cell (at most 1 - E).
     degenerate = one_minus_x0 <= 0.0
     if np.any(degenerate):
-        reached = counts[degenerate] @ (prep.below + prep.tied > 0.0).astype(float) / m
-        ratio[degenerate] = reached
+        ratio[degenerate] = np.mean(upper[degenerate] > 0.0, axis=1)
     return ratio
 
 
-def _curve(prep: _Prepared, n: int, counts: np.ndarray) -> ROCCurve:
+def _curve(table: _ValueTable, keys: np.ndarray) -> ROCCurve:
+    counts = np.bincount(keys, minlength=table.values.size)[::-1]  # descending value
+    below, tied = table.below[::-1], table.tied[::-1]
+    n = keys.size
     hi = np.cumsum(counts)
     lo = hi - counts
-    x_start = 1.0 - (prep.below + prep.tied)
-    x_end = 1.0 - prep.below
+    x_start = 1.0 - (below + tied)
+    x_end = 1.0 - below
     x = np.concatenate(([0.0], np.column_stack([x_start, x_end]).ravel(), [1.0]))
     y = np.concatenate(([0.0], np.column_stack([lo / n, hi / n]).ravel(), [1.0]))
-    auc = float(np.sum(counts * (prep.below + prep.tied / 2.0)) / n)
+    auc = float(np.sum(counts * (below + tied / 2.0)) / n)
     return ROCCurve(x=x, y=y, auc=auc)
+
+
+def _presence_scores(presence_scores) -> np.ndarray:
+    s = np.asarray(presence_scores, dtype=np.float64).ravel()
+    if s.size == 0:
+        raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
+    if not np.all(np.isfinite(s)):
+        raise InputError("Some evaluation presence scores are missing or infinite; drop those records first.")
+    return s
+
+
+def _ranked_surface(source, s: np.ndarray, surface) -> SuitabilitySurface:
+    if surface is None:
+        surface = summarise_surface(source, np.unique(s))
+    # All-equal cells leave nothing to rank: every threshold selects all or none of
+    # the region, so the curve says nothing about the model.
+    if surface.live_min == surface.live_max:
+        raise InputError(
+            "All cell values of the testing region are equal, so the prediction does not rank "
+            "the region; check the prediction raster for this fold."
+        )
+    return surface
 
 
 def roc_curve_area(cell_values, presence_scores, cell_weights=None) -> ROCCurve:
@@ -415,8 +346,9 @@ def roc_curve_area(cell_values, presence_scores, cell_weights=None) -> ROCCurve:
 
     Parameters
     ----------
-    cell_values : array_like of float, shape (N,)
-        Predictions of the valid cells of the testing region.
+    cell_values : array_like of float, shape (N,), or CellSource
+        Predictions of the valid cells of the testing region (or a
+        :class:`~splitter.evaluate.cells.CellSource` streaming them).
     presence_scores : array_like of float, shape (n,)
         Predictions at the evaluation presences.
     cell_weights : array_like of float, shape (N,), optional
@@ -434,10 +366,10 @@ def roc_curve_area(cell_values, presence_scores, cell_weights=None) -> ROCCurve:
     >>> c.auc  # one presence above 3 of 4 cells, one tied with the top cell
     0.8125
     """
-    v, s, w = _check_inputs(cell_values, presence_scores, cell_weights)
-    prep = _prepare(v, s, w)
-    counts = np.bincount(prep.group, minlength=prep.values.size)
-    return _curve(prep, s.size, counts)
+    s = _presence_scores(presence_scores)
+    surface = _ranked_surface(as_cells(cell_values, cell_weights), s, None)
+    u, inverse = np.unique(s, return_inverse=True)
+    return _curve(_table(surface, u), inverse.ravel())
 
 
 def partial_roc(
@@ -448,37 +380,46 @@ def partial_roc(
     replicates: int = 1000,
     sample_share: float = 0.5,
     seed=0,
+    *,
+    surface: SuitabilitySurface | None = None,
 ) -> PartialROCResult:
-    """Partial ROC AUC ratio with a bootstrap of evaluation presences.
+    """Partial ROC AUC ratio, tested against presences placed at random in the testing region.
 
     Parameters
     ----------
-    cell_values : array_like of float, shape (N,)
-        Predictions of the valid cells of the testing region (nodata removed). Only
-        their order matters: values outside [0, 1] are fine.
+    cell_values : array_like of float, shape (N,), or CellSource
+        Predictions of the valid cells of the testing region (nodata removed), or a
+        :class:`~splitter.evaluate.cells.CellSource` streaming them from a raster.
+        Only their order matters: values outside [0, 1] are fine. Without a raster,
+        the predictions at evaluation background or absence records.
     presence_scores : array_like of float, shape (n,)
         Predictions at the evaluation presences.
     cell_weights : array_like of float, shape (N,), optional
-        Cell areas (e.g. :func:`splitter.evaluate.cell_areas` per row); None weights
-        cells equally. Zero-weight cells are ignored.
+        Cell areas (e.g. :func:`splitter.evaluate.cell_areas` per row) when ``cell_values``
+        is an array; None weights cells equally. Zero-weight cells are ignored.
     omission : float, default 0.05
         Omission tolerance E in [0, 1]; only the curve where y >= 1 - E counts.
         E = 1 gives the full-curve ratio (2 x AUC).
     replicates : int, default 1000
-        Bootstrap replicates B.
+        B: bootstrap replicates, and as many null replicates.
     sample_share : float, default 0.5
-        Each replicate draws ``floor(sample_share * n + 0.5)`` presences (at least
-        one) with replacement.
+        Each bootstrap replicate draws ``floor(sample_share * n + 0.5)`` presences
+        (at least one) with replacement.
     seed : int or numpy.random.Generator, default 0
-        Seed of ``numpy.random.default_rng``. The replicates' presence indices are
-        exactly ``np.random.default_rng(seed).integers(0, n, size=(replicates, m))``.
+        Seed of ``numpy.random.default_rng``. The bootstrap's presence indices are
+        exactly ``rng.integers(0, n, size=(replicates, m))``; the null's cells are
+        drawn from the same generator afterwards.
+    surface : SuitabilitySurface, optional
+        A summary of the cells already made for (at least) every presence score,
+        which saves one pass over the cells.
 
     Returns
     -------
     PartialROCResult
-        ``statistic`` = mean bootstrap ratio, ``pvalue`` = share of replicates with
-        ratio <= 1, the 95 % percentile interval, the observed ratio and full AUC on
-        all presences, and the curve.
+        ``statistic`` = observed ratio, ``pvalue`` = Monte Carlo p against the
+        null of presences placed at random, the bootstrap interval, the
+        conventional bootstrap p (``pvalue_bootstrap``, for comparison only), the
+        full AUC and the curve.
 
     Raises
     ------
@@ -488,11 +429,9 @@ def partial_roc(
 
     Notes
     -----
-    Cost: one O(N) pass over the N cells (placing each among the distinct presence
-    values, then a weighted bincount), then O(B x n) for the bootstrap; about 0.1 s
-    for 10^7 cells, 500 presences and 1000 replicates on one core (see
-    tests/benchmarks/bench_partial_roc.py). If more than E of a
-    replicate's presences score below every cell, x0 = 1 and both areas vanish;
+    Cost: three O(N) passes over the N cells (summary for the presence values,
+    null draws, summary for the null values), then O(B n log n). If more than E
+    of a sample's presences score below every cell, x0 = 1 and both areas vanish;
     the ratio is then its limit, the share of presences at or above the lowest
     cell (which is below 1).
 
@@ -500,122 +439,60 @@ def partial_roc(
     --------
     >>> rng = np.random.default_rng(1)
     >>> cells = rng.random(10_000)
-    >>> presences = np.sqrt(rng.random(200))  # skewed towards high suitability
-    >>> r = partial_roc(cells, presences, replicates=200, seed=2)
-    >>> bool(r.statistic > 1 and r.pvalue < 0.05)
+    >>> skilled = np.sqrt(rng.random(30))  # skewed towards high suitability
+    >>> r = partial_roc(cells, skilled, replicates=199, seed=2)
+    >>> bool(r.statistic > r.null_median and r.pvalue < 0.05)
     True
+    >>> r.pvalue >= 1 / 200  # never 0: its floor shows B
+    True
+    >>> blind = rng.choice(cells, 10)  # presences where a model of no skill puts them
+    >>> r = partial_roc(cells, blind, replicates=199, seed=2)
+    >>> bool(r.ratio_low > 1), bool(r.pvalue > 0.05)  # the bootstrap interval clears 1; the test does not
+    (True, True)
     """
     omission, replicates, sample_share = _check_options(omission, replicates, sample_share)
-    v, s, w = _check_inputs(cell_values, presence_scores, cell_weights)
-    return _result(_prepare(v, s, w), s.size, omission, replicates, sample_share, seed)
+    s = _presence_scores(presence_scores)
+    source = as_cells(cell_values, cell_weights)
+    surface = _ranked_surface(source, s, surface)
+    n = s.size
+    u, inverse = np.unique(s, return_inverse=True)
+    inverse = inverse.ravel()
+    table = _table(surface, u)
+    curve = _curve(table, inverse)
+    observed = float(_ratios(inverse[None, :], table, omission)[0])
 
-
-def _result(prep: _Prepared, n: int, omission: float, replicates: int, sample_share: float, seed) -> PartialROCResult:
-    """Observed curve and ratio, then the bootstrap, from the prepared cell summary alone.
-
-    Shared by :func:`partial_roc` and :func:`splitter.evaluate.surface.partial_roc_from_surface`,
-    so the in-memory and streamed paths draw the same replicates for the same seed.
-    """
-    d = prep.values.size
-
-    all_counts = np.bincount(prep.group, minlength=d)
-    curve = _curve(prep, n, all_counts)
-    observed = float(_ratios_from_counts(all_counts[None, :], prep, n, omission)[0])
-
-    m = _sample_size(n, sample_share)
     rng = np.random.default_rng(seed)
-    indices = rng.integers(0, n, size=(replicates, m))
-    ratios = np.empty(replicates)
-    chunk = max(1, _CHUNK_ELEMENTS // max(d, m))
-    for start in range(0, replicates, chunk):
-        block = prep.group[indices[start : start + chunk]]  # (rows, m) group of each draw
-        rows = block.shape[0]
-        flat = block + d * np.arange(rows)[:, None]
-        counts = np.bincount(flat.ravel(), minlength=rows * d).reshape(rows, d)
-        ratios[start : start + rows] = _ratios_from_counts(counts, prep, m, omission)
+    m = _sample_size(n, sample_share)
+    boot = _ratios(inverse[rng.integers(0, n, size=(replicates, m))], table, omission)
 
-    low, high = np.percentile(ratios, [2.5, 97.5])
+    # The null: n presences placed at random in the testing region, B times.
+    drawn = draw_cells(source, replicates * n, surface.total_weight, rng)
+    null_values, null_keys = np.unique(drawn, return_inverse=True)
+    null_table = _table(summarise_surface(source, null_values), null_values)
+    null = _ratios(null_keys.reshape(replicates, n), null_table, omission)
+    # Ratios equal to the observed one up to rounding count as "at least as
+    # large" (the tolerance scipy.stats.monte_carlo_test uses).
+    tolerance = 100 * np.finfo(float).eps * abs(observed)
+    hits = int(np.count_nonzero(null >= observed - tolerance))
+
+    low, high = np.percentile(boot, [2.5, 97.5])
     return PartialROCResult(
-        statistic=float(ratios.mean()),
-        pvalue=float(np.mean(ratios <= 1.0)),
+        statistic=observed,
+        pvalue=(hits + 1) / (replicates + 1),
         auc=curve.auc,
         auc_ratio=observed,
+        null_median=float(np.median(null)),
+        bootstrap_mean=float(boot.mean()),
         ratio_low=float(low),
         ratio_high=float(high),
+        pvalue_bootstrap=float(np.mean(boot <= 1.0)),
         omission=omission,
         replicates=replicates,
         sample_size=m,
         n_presences=n,
-        n_cells=prep.n_cells,
-        ratios=ratios,
+        n_cells=surface.n_cells,
+        can_omit=bool(np.floor(m * omission + 1e-9) >= 1),
+        ratios=boot,
+        null_ratios=null,
         curve=curve,
     )
-
-
-# ----------------------------------------------------------------------------- reference
-
-
-def partial_roc_reference(cell_values, presence_scores, indices, cell_weights=None, omission=0.05) -> np.ndarray:
-    """Plain per-replicate partial ROC ratios (slow; a check on :func:`partial_roc`).
-
-    For every row of ``indices`` it builds the full polyline over all cells and the
-    sampled presences (every distinct value a vertex) and integrates y dx from x0 to
-    1 by trapezoids. It passes over all cells once per replicate.
-
-    Parameters
-    ----------
-    cell_values, presence_scores, cell_weights
-        As in :func:`partial_roc`.
-    indices : array_like of int, shape (B, m)
-        Presence indices of each replicate (use ``np.arange(n)[None, :]`` for the
-        observed ratio on all presences).
-    omission : float
-        Omission tolerance E.
-
-    Returns
-    -------
-    numpy.ndarray, shape (B,)
-        AUC ratio per replicate.
-    """
-    omission = _check_options(omission, 1, 0.5)[0]
-    v, s, w = _check_inputs(cell_values, presence_scores, cell_weights)
-    if w is None:
-        w = np.ones_like(v)
-    keep = w > 0
-    v, w = v[keep], w[keep] / w[keep].sum()
-    indices = np.atleast_2d(np.asarray(indices))
-    out = np.empty(indices.shape[0])
-    for b, row in enumerate(indices):
-        sample = s[row]
-        m = sample.size
-        required = _required(omission, m)
-        values, inv = np.unique(np.concatenate([v, sample]), return_inverse=True)
-        inv = inv.ravel()
-        k = values.size
-        width = np.bincount(inv[: v.size], weights=w, minlength=k)[::-1]  # descending values
-        rise = np.bincount(inv[v.size :], minlength=k)[::-1].astype(float)
-        # Vertices P_0 = (0, 0), P_j after threshold value j (descending). Keep 1 - x
-        # (area strictly below the threshold) to avoid cancellation near x = 1.
-        rest = np.concatenate([np.cumsum(width[::-1])[::-1][1:], [0.0]])  # 1 - x at P_j, j >= 1
-        rest = np.concatenate([[1.0], rest])
-        height = np.concatenate([[0.0], np.cumsum(rise)])  # presence counts at P_j
-        widths = np.concatenate([[0.0], width])
-        if required <= 0.0:
-            j = 0
-            one_minus_x0 = 1.0
-            area = 0.0
-        else:
-            j = int(np.argmax(height >= required))  # first vertex at or above the level
-            frac = (required - height[j - 1]) / (height[j] - height[j - 1])
-            one_minus_x0 = rest[j - 1] - frac * widths[j]
-            # Trapezoid from x0 to P_j: width (1 - x0) - (1 - x_j), heights required and height[j].
-            area = (one_minus_x0 - rest[j]) * (required + height[j]) / 2.0
-        area += np.sum(widths[j + 1 :] * (height[j:-1] + height[j + 1 :]) / 2.0)
-        area /= m
-        if one_minus_x0 <= 0.0:
-            # Limit for x0 -> 1 (see partial_roc): height just left of x = 1.
-            lowest = np.flatnonzero(width > 0)[-1]  # the lowest cell value, descending index
-            out[b] = height[lowest + 1] / m
-        else:
-            out[b] = area / (one_minus_x0 * (2.0 - one_minus_x0) / 2.0)
-    return out

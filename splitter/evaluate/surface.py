@@ -1,4 +1,4 @@
-"""Exact evaluation of prediction rasters larger than memory, from streamed cells.
+"""A fold's binomial area share, partial ROC and Boyce index in as few passes as possible.
 
 The significance and performance tests of a fold need from the prediction raster
 only a handful of numbers, all known in advance of reading it:
@@ -6,13 +6,15 @@ only a handful of numbers, all known in advance of reading it:
 * the cumulative binomial test: the area share of cells ``>= threshold``;
 * the partial ROC (Ecological Modelling 213, 2008): for every distinct evaluation
   presence value u, the area share of cells strictly below u and equal to u (see
-  :mod:`splitter.evaluate.partial_roc`; its bootstrap never looks at cells again);
+  :mod:`splitter.evaluate.partial_roc`; its bootstrap never looks at cells again,
+  its null of presences placed at random makes two passes of its own);
 * the continuous Boyce index ("Evaluating the ability of habitat suitability models
   to predict species presences", Ecological Modelling 2006): the area share of cells
   in each closed moving window ``[start, end]``, i.e. the area below each ``start``
   and at or below each ``end``.
 
-So the cells are streamed once, in blocks (e.g. the row windows of
+So the cells (a :class:`~splitter.evaluate.cells.CellSource`: an array in memory
+or a raster read in windows) are streamed once, in blocks (e.g. the row windows of
 :func:`splitter.io.rasters.valid_cells`), and each block is placed among the sorted
 *query values* (presence values, thresholds, window edges) with the same one-pass
 lookup as the in-memory partial ROC; one weighted ``bincount`` per block adds the
@@ -26,10 +28,9 @@ after a pass over the cells, so :func:`evaluate_surface` makes two passes when t
 Boyce index is asked for and no range is given: a cheap min/max pass, then the
 summary pass.
 
-The results equal the in-memory functions on all cells (``partial_roc``,
-``area_predicted``, ``boyce_index``) up to the order in which floating-point areas
-are summed (about 1e-15 relative), and the bootstrap draws the same replicates for
-the same seed.
+The results equal ``area_predicted`` and ``boyce_index`` on all cells up to the
+order in which floating-point areas are summed (about 1e-15 relative); the partial
+ROC is the same function, given the summary so that it skips its first pass.
 
 Examples
 --------
@@ -47,19 +48,18 @@ True
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Iterable
-
 import numpy as np
 
 from splitter.errors import InputError
 from splitter.evaluate.boyce import BoyceResult, _from_expected, _windows
-from splitter.evaluate.partial_roc import (
-    PartialROCResult,
-    _CellKeys,
-    _check_options,
-    _prepared_from_mass,
-    _result,
+from splitter.evaluate.cells import (
+    SuitabilitySurface,
+    _finite_scores,
+    as_cells,
+    summarise_surface,
+    surface_range,
 )
+from splitter.evaluate.partial_roc import PartialROCResult, _check_options, partial_roc
 
 __all__ = [
     "SuitabilitySurface",
@@ -67,108 +67,11 @@ __all__ = [
     "surface_queries",
     "surface_range",
     "summarise_surface",
-    "partial_roc_from_surface",
     "boyce_from_surface",
     "evaluate_surface",
 ]
 
-# Cells keyed at a time inside a block: the lookup's temporaries (bucket numbers,
-# keys) then stay in the CPU caches, as in the in-memory partial ROC.
-_CHUNK = 1 << 18
-
-
 # ----------------------------------------------------------------------------- results
-
-
-@dataclass(frozen=True, eq=False)
-class SuitabilitySurface:
-    """Exact cell weights of a prediction surface around fixed query values.
-
-    Attributes
-    ----------
-    query_values : numpy.ndarray
-        The ascending distinct values the surface answers about (float64).
-    slot_weights : numpy.ndarray, shape (2 * len(query_values) + 1,)
-        Summed cell weight (e.g. km²) per slot: slot 2j holds the cells strictly
-        between ``query_values[j-1]`` and ``query_values[j]`` (slot 0: below the
-        first, slot 2d: above the last), slot 2j + 1 the cells equal to
-        ``query_values[j]``.
-    total_weight : float
-        Summed weight of all cells.
-    n_cells : int
-        Cells with positive weight.
-    n_values : int
-        All cells streamed (including zero-weight ones).
-    value_min, value_max : float
-        Smallest and largest cell value (all cells).
-    live_min, live_max : float
-        Smallest and largest value of the cells with positive weight.
-
-    Examples
-    --------
-    >>> s = summarise_surface([(np.array([0.1, 0.5, 0.5, 0.9]), np.array([1.0, 1.0, 2.0, 4.0]))], [0.5])
-    >>> s.slot_weights.tolist(), s.area_share_at(0.5)
-    ([1.0, 3.0, 4.0], 0.875)
-    """
-
-    query_values: np.ndarray
-    slot_weights: np.ndarray = field(repr=False)
-    total_weight: float
-    n_cells: int
-    n_values: int
-    value_min: float
-    value_max: float
-    live_min: float
-    live_max: float
-
-    @property
-    def weight_below(self) -> np.ndarray:
-        """Weight of cells strictly below each query value."""
-        return np.cumsum(self.slot_weights)[0:-1:2]
-
-    @property
-    def weight_equal(self) -> np.ndarray:
-        """Weight of cells equal to each query value."""
-        return self.slot_weights[1::2].copy()
-
-    @property
-    def weight_above(self) -> np.ndarray:
-        """Weight of cells strictly above each query value."""
-        # Suffix sums, so a small share above a high value keeps its relative precision.
-        return np.cumsum(self.slot_weights[::-1])[::-1][2::2]
-
-    def _positions(self, values, what: str) -> np.ndarray:
-        q = np.asarray(values, dtype=np.float64).ravel()
-        pos = np.searchsorted(self.query_values, q)
-        found = pos < self.query_values.size
-        found[found] = self.query_values[pos[found]] == q[found]
-        if not np.all(found):
-            missing = q[~found][0]
-            raise InputError(
-                f"The {what} {missing!r} is not one of the values the surface was summarised for; "
-                "pass it to surface_queries (or evaluate_surface) before streaming the cells."
-            )
-        return pos
-
-    def area_share_at(self, threshold: float) -> float:
-        """Weighted share of cells with value >= ``threshold`` (the binomial test's p).
-
-        Equals :func:`splitter.evaluate.area_predicted` on all cells; the threshold
-        must be one of :attr:`query_values`.
-        """
-        j = int(self._positions([threshold], "threshold")[0])
-        return float(np.sum(self.slot_weights[2 * j + 1 :]) / self.total_weight)
-
-    def to_dict(self) -> dict:
-        """Scalars only."""
-        return {
-            "n_queries": int(self.query_values.size),
-            "total_weight": self.total_weight,
-            "n_cells": self.n_cells,
-            "n_values": self.n_values,
-            "value_min": self.value_min,
-            "value_max": self.value_max,
-        }
 
 
 @dataclass(frozen=True, eq=False)
@@ -211,59 +114,6 @@ class SurfaceEvaluation:
         import pandas as pd
 
         return pd.DataFrame([self.to_dict()])
-
-
-# ----------------------------------------------------------------------------- inputs
-
-
-def _finite_scores(values, what: str, name: str) -> np.ndarray:
-    s = np.asarray(values, dtype=np.float64).ravel()
-    if not np.all(np.isfinite(s)):
-        raise InputError(f"Some {what} are missing or infinite; drop those {name} first.")
-    return s
-
-
-def _block_arrays(block) -> tuple[np.ndarray, np.ndarray | None]:
-    """(values, weights) of one streamed block.
-
-    A block is a ``CellBlock`` from :func:`splitter.io.rasters.valid_cells` (values
-    and areas), a ``(values, weights)`` pair (weights may be None), or a bare array
-    of values (equal weights).
-    """
-    if hasattr(block, "values") and hasattr(block, "areas"):
-        values, weights = block.values, block.areas
-    elif isinstance(block, tuple) and len(block) == 2:
-        values, weights = block
-    else:
-        values, weights = block, None
-    v = np.asarray(values)
-    if v.dtype.kind != "f":
-        v = v.astype(np.float64)
-    v = v.ravel()
-    if weights is None:
-        return v, None
-    w = np.asarray(weights, dtype=np.float64).ravel()
-    if w.shape != v.shape:
-        raise InputError(f"A block has {w.size} cell weights for {v.size} cell values; give one weight per cell.")
-    return v, w
-
-
-def _stream(blocks, passes_needed: int):
-    """A function returning a fresh iterable of blocks for each pass.
-
-    ``blocks`` may be a zero-argument callable (called once per pass, e.g.
-    ``lambda: valid_cells(path, region)``), or a re-iterable such as a list. A
-    one-shot iterator can serve a single pass only.
-    """
-    if callable(blocks):
-        return blocks
-    if passes_needed > 1 and iter(blocks) is blocks:
-        raise InputError(
-            "The cells can be streamed only once here, but the Boyce windows need a first pass for the "
-            "value range; pass a function that returns the blocks (e.g. lambda: valid_cells(path)) "
-            "or give value_range."
-        )
-    return lambda: blocks
 
 
 # ----------------------------------------------------------------------------- passes
@@ -309,186 +159,7 @@ def surface_queries(presence_scores=(), thresholds=(), boyce_range=None, width_s
     return np.unique(np.concatenate(parts))
 
 
-def surface_range(blocks: Iterable) -> tuple[float, float]:
-    """Smallest and largest cell value over streamed blocks (the cheap first pass).
-
-    Parameters
-    ----------
-    blocks : iterable
-        Blocks as for :func:`summarise_surface`.
-
-    Returns
-    -------
-    (float, float)
-
-    Examples
-    --------
-    >>> surface_range([np.array([0.4, 0.2]), np.array([0.9])])
-    (0.2, 0.9)
-    """
-    lo, hi = np.inf, -np.inf
-    for block in blocks:
-        v, _ = _block_arrays(block)
-        if v.size:
-            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
-    if lo > hi:
-        raise InputError("No cell values were given; the testing region has no valid cells.")
-    if not (np.isfinite(lo) and np.isfinite(hi)):
-        raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
-    return lo, hi
-
-
-def summarise_surface(blocks: Iterable, query_values) -> SuitabilitySurface:
-    """Stream cell blocks once into exact weights around the query values.
-
-    Parameters
-    ----------
-    blocks : iterable
-        Each item is a ``CellBlock`` from :func:`splitter.io.rasters.valid_cells`
-        (values and areas), a ``(values, weights)`` pair (weights None = equal), or
-        a bare array of values. Values must be finite (nodata removed), weights
-        finite and not negative.
-    query_values : array_like of float
-        The values to answer about, e.g. from :func:`surface_queries`.
-
-    Returns
-    -------
-    SuitabilitySurface
-
-    Raises
-    ------
-    InputError
-        No cells, non-finite cell values, negative or non-finite weights, weights
-        summing to zero, or no finite query value.
-
-    Notes
-    -----
-    Cost O(N) for N cells (the lookup of :mod:`splitter.evaluate.partial_roc`, with a
-    binary search only for cells near a query value) and memory O(block + queries).
-
-    Examples
-    --------
-    >>> s = summarise_surface([np.array([0.1, 0.4]), np.array([0.4, 0.8])], [0.4])
-    >>> s.weight_below.tolist(), s.weight_equal.tolist(), s.weight_above.tolist()
-    ([1.0], [2.0], [1.0])
-    """
-    q = np.unique(_finite_scores(query_values, "query values", "values"))
-    if q.size == 0:
-        raise InputError("No query values were given; pass the presence scores and thresholds to summarise for.")
-    keys = _CellKeys(q)
-    slots = np.zeros(keys.n_keys)
-    n_values = n_cells = 0
-    lo = live_lo = np.inf
-    hi = live_hi = -np.inf
-    for block in blocks:
-        v, w = _block_arrays(block)
-        if v.size == 0:
-            continue
-        # min and max propagate NaN and show infinities: two reductions, no mask over the block.
-        bmin, bmax = float(v.min()), float(v.max())
-        if not (np.isfinite(bmin) and np.isfinite(bmax)):
-            raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
-        lo, hi = min(lo, bmin), max(hi, bmax)
-        n_values += v.size
-        if w is None:
-            n_cells += v.size
-            live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
-        else:
-            wmin, wsum = float(w.min()), float(w.sum())
-            if not (np.isfinite(wsum) and wmin >= 0.0):
-                raise InputError("Cell weights must be finite and not negative.")
-            if wmin > 0.0:
-                n_cells += v.size
-                live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
-            else:
-                live = v[w > 0]
-                n_cells += live.size
-                if live.size:
-                    live_lo, live_hi = min(live_lo, float(live.min())), max(live_hi, float(live.max()))
-        for start in range(0, v.size, _CHUNK):
-            key = keys(v[start : start + _CHUNK])
-            if w is None:
-                slots += np.bincount(key, minlength=keys.n_keys)
-            else:
-                slots += np.bincount(key, weights=w[start : start + _CHUNK], minlength=keys.n_keys)
-    if n_values == 0:
-        raise InputError("No cell values were given; the testing region has no valid cells.")
-    total = float(slots.sum())
-    if total <= 0.0:
-        raise InputError("Cell weights sum to zero; give cell areas.")
-    return SuitabilitySurface(
-        query_values=q,
-        slot_weights=slots,
-        total_weight=total,
-        n_cells=int(n_cells),
-        n_values=int(n_values),
-        value_min=float(lo),
-        value_max=float(hi),
-        live_min=float(live_lo),
-        live_max=float(live_hi),
-    )
-
-
 # ----------------------------------------------------------------------------- tests
-
-
-def partial_roc_from_surface(
-    surface: SuitabilitySurface,
-    presence_scores,
-    omission: float = 0.05,
-    replicates: int = 1000,
-    sample_share: float = 0.5,
-    seed=0,
-) -> PartialROCResult:
-    """Partial ROC from a streamed surface; as :func:`splitter.evaluate.partial_roc` on all cells.
-
-    Parameters
-    ----------
-    surface : SuitabilitySurface
-        Summarised for (at least) every presence score.
-    presence_scores, omission, replicates, sample_share, seed
-        As in :func:`splitter.evaluate.partial_roc`; the same seed draws the same
-        replicates.
-
-    Returns
-    -------
-    PartialROCResult
-
-    Raises
-    ------
-    InputError
-        As :func:`~splitter.evaluate.partial_roc`, or a presence score the surface was
-        not summarised for.
-
-    Examples
-    --------
-    >>> rng = np.random.default_rng(1)
-    >>> cells, presences = rng.random(5000), np.sqrt(rng.random(80))
-    >>> s = summarise_surface([cells[:2500], cells[2500:]], presences)
-    >>> r = partial_roc_from_surface(s, presences, replicates=100, seed=3)
-    >>> bool(r.statistic > 1 and r.pvalue < 0.05)
-    True
-    """
-    omission, replicates, sample_share = _check_options(omission, replicates, sample_share)
-    s = np.asarray(presence_scores, dtype=np.float64).ravel()
-    if s.size == 0:
-        raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
-    if not np.all(np.isfinite(s)):
-        raise InputError("Some evaluation presence scores are missing or infinite; drop those records first.")
-    if surface.live_min == surface.live_max:
-        raise InputError(
-            "All cell values of the testing region are equal, so the prediction does not rank "
-            "the region; check the prediction raster for this fold."
-        )
-    u, inverse = np.unique(s, return_inverse=True)
-    pos = surface._positions(u, "presence score")
-    # Merge the surface's slots into the slots of the presence values alone (below
-    # u_0, at u_0, between u_0 and u_1, ...): segment sums by reduceat, whose
-    # segments are never empty because their bounds alternate in parity.
-    bounds = np.column_stack([2 * pos + 1, 2 * pos + 2]).ravel()
-    mass = np.add.reduceat(surface.slot_weights, np.r_[0, bounds])
-    prep = _prepared_from_mass(u, inverse, mass, surface.n_cells)
-    return _result(prep, s.size, omission, replicates, sample_share, seed)
 
 
 def boyce_from_surface(
@@ -549,7 +220,7 @@ def _nonzero_sum(x: np.ndarray) -> float:
 
 
 def evaluate_surface(
-    blocks,
+    cells,
     presence_scores,
     thresholds=(),
     *,
@@ -566,12 +237,11 @@ def evaluate_surface(
 
     Parameters
     ----------
-    blocks : callable or iterable
-        A zero-argument function returning the cell blocks afresh (e.g.
-        ``lambda: valid_cells(path, region)``), or a list of blocks; see
-        :func:`summarise_surface` for what a block is. Called twice when the Boyce
-        index is asked for without ``value_range`` (a min/max pass, then the
-        summary pass), otherwise once.
+    cells : CellSource, callable or list of blocks
+        The testing region's cells (see :func:`splitter.evaluate.cells.as_cells`),
+        e.g. ``lambda: valid_cells(path, region)``. Streamed once for the value
+        range when the Boyce index is asked for without ``value_range``, once for
+        the summary, and twice more for the partial ROC's null.
     presence_scores : array_like of float
         Predictions at the evaluation presences.
     thresholds : array_like of float
@@ -608,20 +278,20 @@ def evaluate_surface(
     if pres.size == 0:
         raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
     thr = _finite_scores(thresholds, "thresholds", "thresholds")
-    need_range = boyce and value_range is None
-    source = _stream(blocks, 2 if need_range else 1)
+    source = as_cells(cells)
     boyce_range = None
     if boyce:
-        boyce_range = surface_range(source()) if need_range else tuple(value_range)
-        if need_range and boyce_range[0] == boyce_range[1]:
+        boyce_range = surface_range(source) if value_range is None else tuple(value_range)
+        if value_range is None and boyce_range[0] == boyce_range[1]:
             # Same message as the partial ROC gives, rather than the Boyce one about an empty range.
             raise InputError(
                 "All cell values of the testing region are equal, so the prediction does not rank "
                 "the region; check the prediction raster for this fold."
             )
     queries = surface_queries(pres, thr, boyce_range, width_share, step_share)
-    surface = summarise_surface(source(), queries)
-    proc = partial_roc_from_surface(surface, pres, omission, replicates, sample_share, seed)
+    surface = summarise_surface(source, queries)
+    proc = partial_roc(source, pres, omission=omission, replicates=replicates, sample_share=sample_share,
+                       seed=seed, surface=surface)
     shares = np.array([surface.area_share_at(t) for t in thr])
     boyce_result = boyce_from_surface(surface, pres, width_share, step_share, boyce_range) if boyce else None
     return SurfaceEvaluation(thresholds=thr, area_shares=shares, partial_roc=proc, boyce=boyce_result,

@@ -11,7 +11,9 @@ from scipy.stats import rankdata
 from sklearn.metrics import roc_auc_score
 
 from splitter.errors import InputError
-from splitter.evaluate import partial_roc, partial_roc_reference, roc_curve_area
+from splitter.evaluate import partial_roc, roc_curve_area
+
+from reference_partial_roc import partial_roc_reference
 
 
 def _landscape(seed, n_cells=3000, n_pres=60, decimals=2):
@@ -175,7 +177,8 @@ def test_random_model_has_auc_half_and_ratio_one():
     r = partial_roc(cells, presences, omission=0.05, replicates=300, seed=5)
     # AUC standard error for n = 300 is about sqrt(1/(12*300)) = 0.017
     assert abs(r.auc - 0.5) < 0.05  # common practice: AUC 0.5 for no skill
-    assert abs(r.statistic - 1.0) < 0.03  # the bootstrap 95 % interval here is about 0.03 wide
+    # the observed ratio of 300 random presences: the null ratios' spread is about 0.02
+    assert abs(r.statistic - r.null_median) < 0.06  # 3 x the null's spread, measured on this seed family
     assert r.pvalue > 0.05  # common practice: no skill is not significant
 
 
@@ -186,8 +189,12 @@ def test_perfect_model_reaches_the_maximum_two():
         r = partial_roc(cells, presences, omission=omission, replicates=100)
         # analytic: x0 = 0 and y = 1 on (0, 1], so model area 1 over null 1/2
         assert r.auc_ratio == pytest.approx(2.0, abs=1e-12)  # analytic: see above
-        assert r.statistic == pytest.approx(2.0, abs=1e-12)  # analytic: every replicate is perfect too
-        assert r.pvalue == 0.0  # analytic: no replicate has ratio <= 1
+        assert r.bootstrap_mean == pytest.approx(2.0, abs=1e-12)  # analytic: every replicate is perfect too
+        assert r.pvalue_bootstrap == 0.0  # analytic: no bootstrap replicate has ratio <= 1
+        # analytic: presences placed at random are cells, tied with at least their own cell,
+        # so no null ratio reaches 2 and p takes its floor 1 / (B + 1)
+        assert np.all(r.null_ratios < 2.0)
+        assert r.pvalue == pytest.approx(1 / 101)
     assert r.auc == pytest.approx(1.0)  # analytic
 
 
@@ -231,13 +238,17 @@ def test_result_fields_and_determinism():
     r = partial_roc(cells, presences, weights, replicates=200, seed=4)
     assert r.sample_size == 3  # analytic: 0.5 * 5 = 2.5 rounds half up to 3
     assert r.ratios.shape == (200,)  # contract: one ratio per replicate
-    assert r.statistic == pytest.approx(r.ratios.mean())  # analytic: definition
-    assert r.pvalue == pytest.approx(np.mean(r.ratios <= 1))  # analytic: definition
+    assert r.statistic == r.auc_ratio  # contract: the statistic is the observed ratio
+    assert r.bootstrap_mean == pytest.approx(r.ratios.mean())  # analytic: definition
+    assert r.pvalue_bootstrap == pytest.approx(np.mean(r.ratios <= 1))  # analytic: definition
+    assert r.pvalue == pytest.approx((1 + np.sum(r.null_ratios >= r.statistic)) / 201)  # analytic: definition
+    assert r.can_omit is False  # analytic: 3 * 0.05 < 1
     assert (r.ratio_low, r.ratio_high) == tuple(np.percentile(r.ratios, [2.5, 97.5]))  # reference: numpy percentile
     d = r.to_dict()
     assert all(np.isscalar(v) for v in d.values())  # contract: arrays kept out of to_dict
     again = partial_roc(cells, presences, weights, replicates=200, seed=4)
     np.testing.assert_array_equal(r.ratios, again.ratios)  # contract: same seed, same result
+    np.testing.assert_array_equal(r.null_ratios, again.null_ratios)  # contract: same seed, same result
     other = partial_roc(cells, presences, weights, replicates=200, seed=5)
     assert not np.array_equal(r.ratios, other.ratios)  # contract: the seed is used
 
@@ -268,3 +279,20 @@ def test_zero_weight_cells_are_ignored():
 def test_degenerate_input_raises_clear_error(kwargs, message):
     with pytest.raises(InputError, match=message):
         partial_roc(**kwargs)
+
+
+def test_hand_worked_area_weighted_case():
+    # Worked by hand. Cells 0.9, 0.6, 0.3 with areas 1, 2, 1 (area shares 1/4, 1/2, 1/4);
+    # presences 0.9, 0.9, 0.6, 0.3, each tied with a cell, so the curve is three diagonals:
+    # (0, 0) -> (1/4, 1/2) -> (3/4, 3/4) -> (1, 1).
+    # E = 0.5: y reaches 1/2 first at x0 = 1/4. Model area from 1/4 to 1:
+    # (1/2)(1/2 + 3/4)/2 + (1/4)(3/4 + 1)/2 = 5/16 + 7/32 = 17/32; null area (1 - 1/16)/2 = 15/32.
+    # Ratio 17/15. Full AUC = 17/32 + (1/4)(1/2)/2 = 19/32.
+    cells, areas = np.array([0.9, 0.6, 0.3]), np.array([1.0, 2.0, 1.0])
+    presences = np.array([0.9, 0.9, 0.6, 0.3])
+    r = partial_roc(cells, presences, areas, omission=0.5, replicates=10)
+    assert r.auc_ratio == pytest.approx(17 / 15, abs=1e-12)  # analytic: worked above
+    assert r.auc == pytest.approx(19 / 32, abs=1e-12)  # analytic: worked above
+    assert r.auc == pytest.approx(_sklearn_auc(cells, presences, areas), abs=1e-12)  # reference: sklearn roc_auc_score
+    # With equal areas the same records give other shares (1/3 each): the weights are used.
+    assert partial_roc(cells, presences, omission=0.5, replicates=10).auc_ratio != pytest.approx(17 / 15)

@@ -1,0 +1,497 @@
+"""The cells of a testing region, one source for every evaluation kernel.
+
+A fold's testing region is either an array of cell values in memory (with optional
+cell areas) or a prediction raster read in windows (rasters larger than memory).
+:class:`CellSource` puts both behind one small interface, ``blocks()``, which yields
+``(values, weights)`` pairs afresh on every call, so a kernel may pass over the cells
+more than once without holding them.
+
+Kernels never need the cells sorted. What they need is known in advance of a pass:
+
+* :func:`summarise_surface` places every cell among fixed *query values* (presence
+  scores, thresholds, Boyce window edges) in one pass and returns
+  :class:`SuitabilitySurface`, the exact cell weight strictly between and equal to
+  the query values (no binning);
+* :func:`draw_cells` draws cells with probability proportional to their weight
+  (area) in one pass, for the partial ROC's null of presences placed at random.
+
+Cost: O(N) per pass for N cells (a lookup table on a fine monotone bucketing of the
+value range, a binary search only for cells next to a query value), memory one
+block plus O(number of queries).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Iterable, Iterator
+
+import numpy as np
+
+from splitter.errors import InputError
+
+__all__ = ["CellSource", "as_cells", "SuitabilitySurface", "summarise_surface", "surface_range", "draw_cells"]
+
+# Cells keyed at a time inside a block: the lookup's temporaries (bucket numbers,
+# keys) then stay in the CPU caches.
+_CHUNK = 1 << 18
+
+
+# ----------------------------------------------------------------------------- source
+
+
+@dataclass(frozen=True, eq=False)
+class CellSource:
+    """Cells of a testing region, streamed in blocks as often as a kernel asks.
+
+    Parameters
+    ----------
+    open_blocks : callable
+        Returns a fresh iterable of blocks on every call. A block is a ``CellBlock``
+        from :func:`splitter.io.rasters.valid_cells` (values and areas), a
+        ``(values, weights)`` pair (weights None = equal), or a bare array of values.
+
+    Examples
+    --------
+    >>> cells = CellSource.from_array(np.array([0.2, 0.9, 0.5]), block=2)
+    >>> [v.tolist() for v, _ in cells.blocks()]
+    [[0.2, 0.9], [0.5]]
+    """
+
+    open_blocks: Callable[[], Iterable]
+
+    @classmethod
+    def from_array(cls, values, weights=None, block: int = 1 << 20) -> "CellSource":
+        """Cells held in memory, served as views of ``block`` cells (no copy)."""
+        v = np.asarray(values)
+        if v.dtype.kind != "f":
+            v = v.astype(np.float64)
+        v = v.ravel()
+        w = None
+        if weights is not None:
+            w = np.asarray(weights, dtype=np.float64).ravel()
+            if w.shape != v.shape:
+                raise InputError(f"Got {w.size} cell weights for {v.size} cell values; give one weight per cell.")
+        if v.size == 0:
+            raise InputError("No cell values were given; the testing region has no valid cells.")
+
+        def open_blocks():
+            for start in range(0, v.size, block):
+                yield v[start : start + block], (None if w is None else w[start : start + block])
+
+        return cls(open_blocks)
+
+    def blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
+        """``(values, weights)`` of every block, in a fixed order."""
+        for b in self.open_blocks():
+            yield _block_arrays(b)
+
+
+def as_cells(cells, weights=None) -> CellSource:
+    """A :class:`CellSource` from an array of cell values (with optional weights),
+    a source, a function returning blocks, or a list of blocks.
+
+    A one-shot iterator (e.g. a generator) is refused: the partial ROC passes over
+    the cells more than once (its null draws cells at random, then places them).
+    """
+    if isinstance(cells, CellSource):
+        return cells
+    if callable(cells):
+        return CellSource(cells)
+    if isinstance(cells, list) and cells and not np.isscalar(cells[0]):
+        return CellSource(lambda: cells)
+    if not isinstance(cells, (np.ndarray, list, tuple)) and iter(cells) is cells:
+        raise InputError(
+            "The cells can be streamed only once here, but the tests pass over them more than once; "
+            "pass a function that returns the blocks (e.g. lambda: valid_cells(path)) or a list of blocks."
+        )
+    return CellSource.from_array(cells, weights)
+
+
+# ----------------------------------------------------------------------------- lookup
+
+
+def _bucket(x: np.ndarray, low: float, scale: float, buckets: int) -> np.ndarray:
+    """Monotone bucket number in -1..buckets (shifted to 0..buckets+1) of float values.
+
+    Every step (subtract, multiply, clip, floor) is monotone in floating point, so
+    x1 <= x2 implies bucket(x1) <= bucket(x2); that is all the exactness needs.
+    """
+    y = np.subtract(x, low, dtype=np.float64)
+    y *= scale
+    np.clip(y, -1.0, float(buckets), out=y)  # before the cast: huge values stay finite
+    np.floor(y, out=y)
+    return y.astype(np.intp) + 1
+
+
+class _CellKeys:
+    """Places cell values among sorted distinct query values (one lookup per cell).
+
+    Each cell gets key = number of edges <= its value, where the edges interleave
+    the distinct query values u_j with their next float up, u_j+:
+    [u_0, u_0+, u_1, u_1+, ...]. So key = 2j for a cell strictly between u_{j-1}
+    and u_j, 2j + 1 for a cell equal to u_j, and 2d above all of them; one
+    weighted bincount of the keys then gives the area below and tied with every
+    query value.
+
+    A plain binary search per cell costs ~10 mispredicted branches, so the key is
+    found through a lookup table on a fine monotone bucketing of the value range:
+    a cell whose bucket holds no edge takes the table's key exactly (edges in
+    lower buckets are below it, edges in higher buckets above); only cells sharing
+    a bucket with an edge (about d / buckets of them for continuous predictions)
+    are binary-searched. Callers feed the cells in blocks that stay in cache.
+
+    Used by :func:`partial_roc` on cells in memory and by
+    :mod:`splitter.evaluate.surface` on cells streamed from a raster.
+    """
+
+    def __init__(self, u: np.ndarray):
+        # u: ascending distinct finite float64 query values.
+        self.edges = np.column_stack([u, np.nextafter(u, np.inf)]).ravel()
+        self.n_keys = 2 * u.size + 1
+        low = float(self.edges[0])
+        span = float(self.edges[-1]) - low  # > 0: u_0+ > u_0
+        buckets = int(min(1 << 20, max(1 << 16, 64 * self.n_keys)))
+        with np.errstate(over="ignore", divide="ignore"):
+            scale = buckets / span
+        self.use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
+        self.low, self.scale, self.buckets = low, scale, buckets
+        if self.use_table:
+            edge_bucket = _bucket(self.edges, low, scale, buckets)
+            self.table = np.searchsorted(edge_bucket, np.arange(buckets + 2), side="left")  # edges in lower buckets
+            self.shared = np.zeros(buckets + 2, dtype=bool)
+            self.shared[edge_bucket] = True
+
+    def __call__(self, vb: np.ndarray) -> np.ndarray:
+        """Key (0 .. n_keys - 1) of every value of the block ``vb``."""
+        if self.use_table:
+            with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
+                b = _bucket(vb, self.low, self.scale, self.buckets)
+            key = self.table[b]
+            near = np.flatnonzero(self.shared[b])
+            if near.size:
+                key[near] = np.searchsorted(self.edges, vb[near].astype(np.float64), side="right")
+            return key
+        # Query values span less than ~1e-300, or more than the float range:
+        # a plain binary search for every cell.
+        return np.searchsorted(self.edges, vb.astype(np.float64), side="right")
+
+
+
+
+# ----------------------------------------------------------------------------- summary
+
+
+@dataclass(frozen=True, eq=False)
+class SuitabilitySurface:
+    """Exact cell weights of a prediction surface around fixed query values.
+
+    Attributes
+    ----------
+    query_values : numpy.ndarray
+        The ascending distinct values the surface answers about (float64).
+    slot_weights : numpy.ndarray, shape (2 * len(query_values) + 1,)
+        Summed cell weight (e.g. km²) per slot: slot 2j holds the cells strictly
+        between ``query_values[j-1]`` and ``query_values[j]`` (slot 0: below the
+        first, slot 2d: above the last), slot 2j + 1 the cells equal to
+        ``query_values[j]``.
+    total_weight : float
+        Summed weight of all cells.
+    n_cells : int
+        Cells with positive weight.
+    n_values : int
+        All cells streamed (including zero-weight ones).
+    value_min, value_max : float
+        Smallest and largest cell value (all cells).
+    live_min, live_max : float
+        Smallest and largest value of the cells with positive weight.
+
+    Examples
+    --------
+    >>> s = summarise_surface([(np.array([0.1, 0.5, 0.5, 0.9]), np.array([1.0, 1.0, 2.0, 4.0]))], [0.5])
+    >>> s.slot_weights.tolist(), s.area_share_at(0.5)
+    ([1.0, 3.0, 4.0], 0.875)
+    """
+
+    query_values: np.ndarray
+    slot_weights: np.ndarray = field(repr=False)
+    total_weight: float
+    n_cells: int
+    n_values: int
+    value_min: float
+    value_max: float
+    live_min: float
+    live_max: float
+
+    @property
+    def weight_below(self) -> np.ndarray:
+        """Weight of cells strictly below each query value."""
+        return np.cumsum(self.slot_weights)[0:-1:2]
+
+    @property
+    def weight_equal(self) -> np.ndarray:
+        """Weight of cells equal to each query value."""
+        return self.slot_weights[1::2].copy()
+
+    @property
+    def weight_above(self) -> np.ndarray:
+        """Weight of cells strictly above each query value."""
+        # Suffix sums, so a small share above a high value keeps its relative precision.
+        return np.cumsum(self.slot_weights[::-1])[::-1][2::2]
+
+    def _positions(self, values, what: str) -> np.ndarray:
+        q = np.asarray(values, dtype=np.float64).ravel()
+        pos = np.searchsorted(self.query_values, q)
+        found = pos < self.query_values.size
+        found[found] = self.query_values[pos[found]] == q[found]
+        if not np.all(found):
+            missing = q[~found][0]
+            raise InputError(
+                f"The {what} {missing!r} is not one of the values the surface was summarised for; "
+                "pass it to surface_queries (or evaluate_surface) before streaming the cells."
+            )
+        return pos
+
+    def area_share_at(self, threshold: float) -> float:
+        """Weighted share of cells with value >= ``threshold`` (the binomial test's p).
+
+        Equals :func:`splitter.evaluate.area_predicted` on all cells; the threshold
+        must be one of :attr:`query_values`.
+        """
+        j = int(self._positions([threshold], "threshold")[0])
+        return float(np.sum(self.slot_weights[2 * j + 1 :]) / self.total_weight)
+
+    def to_dict(self) -> dict:
+        """Scalars only."""
+        return {
+            "n_queries": int(self.query_values.size),
+            "total_weight": self.total_weight,
+            "n_cells": self.n_cells,
+            "n_values": self.n_values,
+            "value_min": self.value_min,
+            "value_max": self.value_max,
+        }
+
+
+
+
+def _finite_scores(values, what: str, name: str) -> np.ndarray:
+    s = np.asarray(values, dtype=np.float64).ravel()
+    if not np.all(np.isfinite(s)):
+        raise InputError(f"Some {what} are missing or infinite; drop those {name} first.")
+    return s
+
+
+def _block_arrays(block) -> tuple[np.ndarray, np.ndarray | None]:
+    """(values, weights) of one streamed block.
+
+    A block is a ``CellBlock`` from :func:`splitter.io.rasters.valid_cells` (values
+    and areas), a ``(values, weights)`` pair (weights may be None), or a bare array
+    of values (equal weights).
+    """
+    if hasattr(block, "values") and hasattr(block, "areas"):
+        values, weights = block.values, block.areas
+    elif isinstance(block, tuple) and len(block) == 2:
+        values, weights = block
+    else:
+        values, weights = block, None
+    v = np.asarray(values)
+    if v.dtype.kind != "f":
+        v = v.astype(np.float64)
+    v = v.ravel()
+    if weights is None:
+        return v, None
+    w = np.asarray(weights, dtype=np.float64).ravel()
+    if w.shape != v.shape:
+        raise InputError(f"A block has {w.size} cell weights for {v.size} cell values; give one weight per cell.")
+    return v, w
+
+
+
+
+def surface_range(cells) -> tuple[float, float]:
+    """Smallest and largest cell value over streamed blocks (the cheap first pass).
+
+    Parameters
+    ----------
+    cells : CellSource, array_like or list of blocks
+        See :func:`as_cells`.
+
+    Returns
+    -------
+    (float, float)
+
+    Examples
+    --------
+    >>> surface_range([np.array([0.4, 0.2]), np.array([0.9])])
+    (0.2, 0.9)
+    """
+    lo, hi = np.inf, -np.inf
+    for v, _ in as_cells(cells).blocks():
+        if v.size:
+            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
+    if lo > hi:
+        raise InputError("No cell values were given; the testing region has no valid cells.")
+    if not (np.isfinite(lo) and np.isfinite(hi)):
+        raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
+    return lo, hi
+
+
+
+
+def summarise_surface(cells, query_values) -> SuitabilitySurface:
+    """Stream cell blocks once into exact weights around the query values.
+
+    Parameters
+    ----------
+    cells : CellSource, array_like or list of blocks
+        See :func:`as_cells`; a block is a ``CellBlock`` from
+        :func:`splitter.io.rasters.valid_cells` (values and areas), a ``(values,
+        weights)`` pair (weights None = equal), or a bare array of values. Values
+        must be finite (nodata removed), weights finite and not negative.
+    query_values : array_like of float
+        The values to answer about, e.g. from :func:`surface_queries`.
+
+    Returns
+    -------
+    SuitabilitySurface
+
+    Raises
+    ------
+    InputError
+        No cells, non-finite cell values, negative or non-finite weights, weights
+        summing to zero, or no finite query value.
+
+    Notes
+    -----
+    Cost O(N) for N cells (the lookup of :mod:`splitter.evaluate.partial_roc`, with a
+    binary search only for cells near a query value) and memory O(block + queries).
+
+    Examples
+    --------
+    >>> s = summarise_surface([np.array([0.1, 0.4]), np.array([0.4, 0.8])], [0.4])
+    >>> s.weight_below.tolist(), s.weight_equal.tolist(), s.weight_above.tolist()
+    ([1.0], [2.0], [1.0])
+    """
+    q = np.unique(_finite_scores(query_values, "query values", "values"))
+    if q.size == 0:
+        raise InputError("No query values were given; pass the presence scores and thresholds to summarise for.")
+    keys = _CellKeys(q)
+    slots = np.zeros(keys.n_keys)
+    n_values = n_cells = 0
+    lo = live_lo = np.inf
+    hi = live_hi = -np.inf
+    for v, w in as_cells(cells).blocks():
+        if v.size == 0:
+            continue
+        # min and max propagate NaN and show infinities: two reductions, no mask over the block.
+        bmin, bmax = float(v.min()), float(v.max())
+        if not (np.isfinite(bmin) and np.isfinite(bmax)):
+            raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
+        lo, hi = min(lo, bmin), max(hi, bmax)
+        n_values += v.size
+        if w is None:
+            n_cells += v.size
+            live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
+        else:
+            wmin, wsum = float(w.min()), float(w.sum())
+            if not (np.isfinite(wsum) and wmin >= 0.0):
+                raise InputError("Cell weights must be finite and not negative.")
+            if wmin > 0.0:
+                n_cells += v.size
+                live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
+            else:
+                live = v[w > 0]
+                n_cells += live.size
+                if live.size:
+                    live_lo, live_hi = min(live_lo, float(live.min())), max(live_hi, float(live.max()))
+        for start in range(0, v.size, _CHUNK):
+            key = keys(v[start : start + _CHUNK])
+            if w is None:
+                slots += np.bincount(key, minlength=keys.n_keys)
+            else:
+                slots += np.bincount(key, weights=w[start : start + _CHUNK], minlength=keys.n_keys)
+    if n_values == 0:
+        raise InputError("No cell values were given; the testing region has no valid cells.")
+    total = float(slots.sum())
+    if total <= 0.0:
+        raise InputError("Cell weights sum to zero; give cell areas.")
+    return SuitabilitySurface(
+        query_values=q,
+        slot_weights=slots,
+        total_weight=total,
+        n_cells=int(n_cells),
+        n_values=int(n_values),
+        value_min=float(lo),
+        value_max=float(hi),
+        live_min=float(live_lo),
+        live_max=float(live_hi),
+    )
+
+
+
+
+# ----------------------------------------------------------------------------- draws
+
+
+def draw_cells(cells, count: int, total_weight: float, rng: np.random.Generator) -> np.ndarray:
+    """Values of ``count`` cells drawn independently with probability proportional to weight.
+
+    This is where presences of a model with no predictive ability would fall:
+    anywhere in the testing region, each place as likely as its area. One pass
+    over the blocks: ``count`` uniform targets on [0, total weight) are sorted,
+    and each block takes the targets that fall within its own cumulative weight.
+    Zero-weight cells are never drawn.
+
+    Parameters
+    ----------
+    cells : CellSource, array_like or list of blocks
+        See :func:`as_cells`.
+    count : int
+        Draws (with replacement).
+    total_weight : float
+        Summed weight of all cells (e.g. ``SuitabilitySurface.total_weight``).
+    rng : numpy.random.Generator
+        Source of the ``count`` uniform numbers (drawn first, in one call).
+
+    Returns
+    -------
+    numpy.ndarray of float64, shape (count,)
+        The drawn cells' values, in draw order.
+
+    Examples
+    --------
+    >>> values, areas = np.array([0.1, 0.5, 0.9]), np.array([0.0, 1.0, 3.0])
+    >>> draws = draw_cells(CellSource.from_array(values, areas), 4000, 4.0, np.random.default_rng(0))
+    >>> sorted(set(draws.tolist()))  # never 0.1: it has no area
+    [0.5, 0.9]
+    >>> bool(abs(np.mean(draws == 0.9) - 0.75) < 0.03)  # 3 of 4 area units; 0.03 > 4 binomial SE
+    True
+    """
+    targets = rng.random(count) * float(total_weight)
+    order = np.argsort(targets, kind="stable")
+    t = targets[order]
+    out = np.empty(count, dtype=np.float64)
+    done, offset = 0, 0.0
+    last_value = None
+    for v, w in as_cells(cells).blocks():
+        if v.size == 0:
+            continue
+        cum = np.arange(1.0, v.size + 1.0) if w is None else np.cumsum(w)
+        block_total = float(cum[-1])
+        if block_total <= 0.0:
+            continue
+        end = int(np.searchsorted(t, offset + block_total, side="left"))
+        if end > done:
+            # The cell whose cumulative weight first exceeds the target; an empty
+            # (zero-weight) cell has no interval of its own and is never chosen.
+            at = np.searchsorted(cum, t[done:end] - offset, side="right")
+            out[order[done:end]] = v[np.minimum(at, v.size - 1)]
+            done = end
+        offset += block_total
+        last_value = v[np.flatnonzero(cum == block_total)[0]]  # last cell with weight
+    if done < count:
+        # Targets a rounding error above the summed weight: the last weighted cell.
+        if last_value is None:
+            raise InputError("Cell weights sum to zero; give cell areas.")
+        out[order[done:]] = last_value
+    return out
