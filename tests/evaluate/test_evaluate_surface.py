@@ -27,7 +27,6 @@ from splitter.evaluate.boyce import _windows
 from splitter.evaluate.surface import (
     boyce_from_surface,
     evaluate_surface,
-    partial_roc_from_surface,
     summarise_surface,
     surface_queries,
     surface_range,
@@ -80,9 +79,11 @@ def test_streamed_evaluation_equals_in_memory(raster, window_rows, omission):
     # reference: the in-memory path on all cells (cell_values_and_areas)
     want = partial_roc(cells, presences, areas, omission=omission, replicates=300, seed=7)
     proc = got.partial_roc
-    for name in ("statistic", "pvalue", "auc", "auc_ratio", "ratio_low", "ratio_high"):
+    for name in ("statistic", "pvalue", "auc", "auc_ratio", "ratio_low", "ratio_high", "null_median"):
         assert getattr(proc, name) == pytest.approx(getattr(want, name), abs=1e-12), name  # reference: partial_roc in memory
     np.testing.assert_allclose(proc.ratios, want.ratios, rtol=0, atol=1e-12)  # reference: partial_roc in memory
+    # consistency: the null draws cells by area in the same cell order, whatever the windows
+    np.testing.assert_allclose(proc.null_ratios, want.null_ratios, rtol=0, atol=1e-12)
     np.testing.assert_allclose(proc.curve.x, want.curve.x, rtol=0, atol=1e-12)  # reference: partial_roc in memory
     np.testing.assert_allclose(proc.curve.y, want.curve.y, rtol=0, atol=0)  # reference: partial_roc in memory
     counts = (proc.n_cells, proc.sample_size, proc.n_presences)
@@ -98,9 +99,7 @@ def test_streamed_evaluation_equals_in_memory(raster, window_rows, omission):
 
 def test_streamed_full_auc_equals_weighted_sklearn_auc(raster):
     path, cells, areas, presences, _ = raster
-    r = partial_roc_from_surface(
-        summarise_surface(valid_cells(path, window_rows=3), presences), presences, replicates=10
-    )
+    r = partial_roc(_blocks(path, 3), presences, replicates=10)
     y = np.r_[np.ones(presences.size), np.zeros(cells.size)]
     w = np.r_[np.ones(presences.size), areas]
     # reference: sklearn.metrics.roc_auc_score with cell areas as sample weights
@@ -122,7 +121,7 @@ def test_region_and_zero_weight_cells(raster):
     blocks = [(cells[i : i + 100], weights[i : i + 100]) for i in range(0, cells.size, 100)]
     s = summarise_surface(blocks, surface_queries(presences, thresholds))
     want = partial_roc(cells, presences, weights, replicates=50, seed=1)
-    got = partial_roc_from_surface(s, presences, replicates=50, seed=1)
+    got = partial_roc(blocks, presences, replicates=50, seed=1, surface=s)
     np.testing.assert_allclose(got.ratios, want.ratios, rtol=0, atol=1e-12)  # reference: partial_roc in memory
     assert got.n_cells == want.n_cells == np.count_nonzero(weights)  # reference: numpy count_nonzero
     assert s.area_share_at(thresholds[0]) == pytest.approx(area_predicted(cells, weights, thresholds[0]), abs=1e-12)  # reference: area_predicted
@@ -149,16 +148,16 @@ def test_unweighted_blocks_and_one_shot_iterator():
     rng = np.random.default_rng(11)
     cells = np.round(rng.random(6000), 3)
     presences = np.round(np.sqrt(rng.random(50)), 3)
-    # A one-shot generator serves one pass: fine when the Boyce range is given.
-    got = evaluate_surface((cells[i : i + 500] for i in range(0, 6000, 500)), presences, [0.4],
+    got = evaluate_surface([cells[i : i + 500] for i in range(0, 6000, 500)], presences, [0.4],
                            replicates=80, seed=2, value_range=(0.0, 1.0))
     want = partial_roc(cells, presences, replicates=80, seed=2)
     np.testing.assert_allclose(got.partial_roc.ratios, want.ratios, rtol=0, atol=1e-12)  # reference: partial_roc in memory
     assert got.area_shares[0] == pytest.approx(area_predicted(cells, None, 0.4), abs=1e-12)  # reference: area_predicted
     b_want = boyce_index(presences, cells, value_range=(0.0, 1.0))
     assert got.boyce.statistic == pytest.approx(b_want.statistic, abs=1e-12)  # reference: boyce_index in memory
+    # A one-shot generator cannot serve the null's extra passes.
     with pytest.raises(InputError, match="streamed only once"):
-        evaluate_surface((cells[i : i + 500] for i in range(0, 6000, 500)), presences)
+        evaluate_surface((cells[i : i + 500] for i in range(0, 6000, 500)), presences, value_range=(0.0, 1.0))
 
 
 def test_boyce_ties_are_ties_whatever_the_summation_order():
@@ -188,7 +187,7 @@ def test_bad_input_raises_clear_errors():
     with pytest.raises(InputError, match="not one of the values"):
         s.area_share_at(0.31)
     with pytest.raises(InputError, match="not one of the values"):
-        partial_roc_from_surface(s, [0.5, 0.71])
+        partial_roc([cells], [0.5, 0.71], surface=s)
     with pytest.raises(InputError, match="not one of the values"):
         boyce_from_surface(s, [0.5])  # summarised without the Boyce windows
     with pytest.raises(InputError, match="all cell values of the testing region are equal".capitalize()):
