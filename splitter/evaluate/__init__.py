@@ -9,7 +9,15 @@ from splitter.evaluate.baseline import fit_baseline, predict_suitability
 from splitter.evaluate.binomial import BinomialResult, area_predicted, binomial_test
 from splitter.evaluate.cells import CellSource, SuitabilitySurface, as_cells
 from splitter.evaluate.boyce import BoyceResult, boyce_index
-from splitter.evaluate.combine import CombinedPValue, FoldSummary, combine_pvalues_fisher, summarise_folds
+from splitter.evaluate.combine import (
+    CombinedPValue,
+    FoldSummary,
+    JackknifeResult,
+    combine_pvalues_fisher,
+    holm_adjust,
+    jackknife_test,
+    summarise_folds,
+)
 from splitter.evaluate.measures import Measures, confusion_measures
 from splitter.evaluate.partial_roc import (
     PartialROCResult,
@@ -25,6 +33,7 @@ __all__ = [
     "CellSource",
     "CombinedPValue",
     "FoldSummary",
+    "JackknifeResult",
     "Measures",
     "PartialROCResult",
     "ROCCurve",
@@ -40,6 +49,8 @@ __all__ = [
     "combine_pvalues_fisher",
     "confusion_measures",
     "fit_baseline",
+    "holm_adjust",
+    "jackknife_test",
     "partial_roc",
     "predict_suitability",
     "roc_curve_area",
