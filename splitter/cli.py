@@ -196,29 +196,32 @@ def _print_design(assignment, paths):
         out.print(f"{role}: {path}")
 
 
-def _fmt_p(p, replicates=None) -> str:
+def _fmt_p(p) -> str:
     import math
 
     if p is None or (isinstance(p, float) and math.isnan(p)):
         return "-"
-    if replicates and p == 0:
-        return f"<{1 / replicates:.0e}"
     return f"{p:.2g}" if p >= 1e-3 else f"{p:.0e}"
 
 
 def evaluation_table(result, title: str) -> Table:
-    t = Table(title=title, title_justify="left")
-    for c in ("fold", "verdict", "binom p", "pROC p", "ratio", "95% CI", "AUC", "omis.", "TSS", "Boyce"):
+    from rich import box
+
+    t = Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, padding=(0, 1))
+    for c in ("fold", "verdict", "p adj.", "binom p", "pROC p", "ratio", "null", "AUC", "TSS"):
         t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
-    rows = [f.row for f in result.folds] + [result.summary]
+    rows = [f.row for f in result.folds] + [result.summary.to_row()]
     for r in rows:
-        sig = "significant" if r["significant"] else "DO NOT INTERPRET"
-        perf = r["significant"] or r["fold"] == "all"
+        perf = bool(r["significant"])
         num = (lambda v: f"{v:.3f}") if perf else (lambda v: "-")
-        ci = f"{r['auc_ratio_low']:.2f}-{r['auc_ratio_high']:.2f}" if r["fold"] != "all" and perf else "-"
-        t.add_row(str(r["fold"]), sig, _fmt_p(r["binomial_p"]), _fmt_p(r["partial_roc_p"], r.get("replicates") if r["fold"] != "all" else None),
-                  num(r["auc_ratio_mean"]), ci, num(r["auc"]), num(r["omission_rate"]), num(r["tss"]), num(r["boyce"]))
-    t.caption = "performance shown only for significant folds; 'all' = fold means, Fisher-combined p"
+        null = f"{r['auc_ratio_null_median']:.3f}" if r["fold"] != "all" else ""
+        t.add_row(str(r["fold"]), r["interpretation"], _fmt_p(r["p_adjusted"]), _fmt_p(r["binomial_p"]),
+                  _fmt_p(r["partial_roc_p"]), f"{r['auc_ratio']:.3f}" if r["fold"] != "all" else num(r["auc_ratio"]),
+                  null, num(r["auc"]), num(r["tss"]))
+    summary = result.summary
+    test = "jackknife test" if summary.combined_test == "jackknife" else "smallest Holm-adjusted p"
+    t.caption = (f"ratio = observed AUC ratio, null = median for random presences; 'all': {test}, "
+                 f"means over {summary.n_interpretable} interpretable fold(s)")
     return t
 
 
@@ -233,14 +236,15 @@ def evaluate(
     fold_column: str = typer.Option("fold", "--fold-column", help="Column holding the folds."),
     threshold: str = typer.Option("quantile:0.1", "--threshold", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
     omission: float = typer.Option(0.05, "--omission", help="Partial ROC omission tolerance E."),
-    replicates: int = typer.Option(1000, "--replicates", help="Bootstrap replicates for the partial ROC."),
+    replicates: int = typer.Option(1000, "--replicates", help="Partial ROC replicates: bootstrap and null of random presences."),
     alpha: float = typer.Option(0.05, "--alpha", help="Significance level."),
+    adjust: str = typer.Option("holm", "--adjust", help="'holm': adjust fold p-values across folds (Holm); 'none'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for the bootstrap."),
+    seed: int = typer.Option(0, "--seed", help="Seed for the bootstrap and the null."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'not-significant': exit 1 when any fold is not significant."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),
 ):
@@ -253,6 +257,8 @@ def evaluate(
         raise InputError(f"--fail-on {fail_on}: the only choice is 'not-significant'.")
     if model is not None and model != "baseline":
         raise InputError(f"--model {model}: the built-in model is 'baseline' (pass other estimators from Python).")
+    if adjust not in ("holm", "none"):
+        raise InputError(f"--adjust {adjust}: use 'holm' (Holm's adjustment across folds) or 'none'.")
     _, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
                                            id_column=id_column, kind_column=kind_column)
     with progress() as bar:
@@ -261,7 +267,7 @@ def evaluate(
         result = run_evaluate(
             assignment, predictions=predictions, prediction_table=prediction_table, model=model, env=env,
             region=region, threshold=threshold, omission=omission, replicates=replicates, alpha=alpha,
-            seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
+            adjust=adjust, seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
             progress=lambda: bar.advance(task),
         )
         paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table), "command": command_line()})
@@ -426,7 +432,7 @@ def demo_summary(run) -> Table:
             row = e.folds[i].row
             nn = a.to_frame()["nn_median_km"].iloc[i]
             cells += [a.verdicts[i], f"{nn:.1f}", "significant" if row["significant"] else "do not interpret",
-                      f"{row['auc_ratio_mean']:.3f}" if row["significant"] else "-"]
+                      f"{row['auc_ratio']:.3f}" if row["significant"] else "-"]
         t.add_row(*cells)
     t.caption = "NN km: median distance from evaluation presences to the nearest calibration presence"
     return t

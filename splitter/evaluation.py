@@ -8,7 +8,7 @@ significant when both tests reject the null of no predictive ability at
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 
 import numpy as np
@@ -16,6 +16,11 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.evaluate import (
+    BinomialResult,
+    JackknifeResult,
+    Measures,
+    PartialROCResult,
+    Threshold,
     ThresholdRule,
     binomial_test,
     boyce_index,
@@ -23,6 +28,8 @@ from splitter.evaluate import (
     combine_pvalues_fisher,
     confusion_measures,
     fit_baseline,
+    holm_adjust,
+    jackknife_test,
     partial_roc,
     predict_suitability,
 )
@@ -40,24 +47,206 @@ EXTENT_RATIO = 2.0
 MIN_PRESENCES = 5
 
 COLUMNS = [
-    "fold", "significant", "interpretation", "n_evaluation", "threshold_rule", "threshold",
-    "area_predicted", "successes", "binomial_p", "auc", "auc_ratio", "auc_ratio_mean",
-    "auc_ratio_low", "auc_ratio_high", "partial_roc_p", "omission", "replicates",
+    "fold", "significant", "interpretation", "p_adjusted", "p_fold", "n_evaluation", "threshold_rule", "threshold",
+    "area_predicted", "successes", "binomial_p", "auc", "auc_ratio", "auc_ratio_null_median", "partial_roc_p",
+    "auc_ratio_mean", "auc_ratio_low", "auc_ratio_high", "partial_roc_p_bootstrap", "partial_roc_note",
+    "omission", "replicates",
     "omission_rate", "sensitivity", "specificity", "commission_rate",
     "correct_classification_rate", "tss", "kappa", "boyce", "n_other", "other_kind",
     "area_source", "dropped_no_prediction", "warnings",
 ]
+SUMMARY_COLUMNS = [
+    "combined_test", "n_interpretable", "n_significant_folds", "jackknife_successes", "jackknife_n", "jackknife_p",
+]
+ADJUSTMENTS = ("holm", "none")
+# One note for every fold whose bootstrap samples cannot omit a presence.
+CANNOT_OMIT = "cannot omit any presence (round(0.5 n) x E < 1): bootstrap ratios exceed 1 for any model"
 
 
 @dataclass(frozen=True)
 class FoldEvaluation:
-    """Everything measured on one fold (arrays kept for the figures)."""
+    """Everything measured on one fold: significance first, then performance.
 
-    row: dict
-    curve_x: np.ndarray = field(repr=False)
-    curve_y: np.ndarray = field(repr=False)
-    ratios: np.ndarray = field(repr=False)
+    Attributes
+    ----------
+    fold : str
+        Fold label.
+    n_evaluation : int
+        Evaluation presences with a prediction.
+    threshold : Threshold
+        From calibration presences (never evaluation data).
+    area_predicted : float
+        Share of the testing region (or of evaluation background/absences)
+        predicted present: the binomial test's p.
+    binomial : BinomialResult
+    partial_roc : PartialROCResult
+    p_fold : float
+        The larger of the binomial and partial-ROC p-values (both must reject).
+    p_adjusted : float
+        ``p_fold`` adjusted across the split's folds (Holm), or equal to it with
+        ``adjust="none"``.
+    significant : bool
+        ``p_adjusted < alpha``.
+    measures : Measures or None
+        Confusion-matrix measures (None without evaluation background/absences).
+    boyce : float
+        Continuous Boyce index.
+    n_other, other_kind, area_source, dropped_no_prediction, warnings
+        What the tests compared presences with, and what was left out.
+    scores : pandas.DataFrame
+        Every record the fold's tests looked at, with its prediction.
+    """
+
+    fold: str
+    n_evaluation: int
+    threshold: Threshold
+    area_predicted: float
+    binomial: BinomialResult
+    partial_roc: PartialROCResult = field(repr=False)
+    p_fold: float
+    p_adjusted: float
+    significant: bool
+    measures: Measures | None
+    boyce: float
+    n_other: int
+    other_kind: str
+    area_source: str
+    dropped_no_prediction: int
+    warnings: tuple = ()
     scores: pd.DataFrame | None = field(default=None, repr=False)
+
+    @property
+    def interpretation(self) -> str:
+        return "interpret" if self.significant else "do not interpret"
+
+    @property
+    def curve_x(self) -> np.ndarray:
+        return self.partial_roc.curve.x
+
+    @property
+    def curve_y(self) -> np.ndarray:
+        return self.partial_roc.curve.y
+
+    @property
+    def ratios(self) -> np.ndarray:
+        return self.partial_roc.ratios
+
+    def to_row(self) -> dict:
+        """One row of ``evaluation.csv``."""
+        proc = self.partial_roc
+        meas = self.measures.to_dict() if self.measures is not None else {}
+        return {
+            "fold": self.fold,
+            "significant": self.significant,
+            "interpretation": self.interpretation,
+            "p_adjusted": self.p_adjusted,
+            "p_fold": self.p_fold,
+            "n_evaluation": self.n_evaluation,
+            "threshold_rule": self.threshold.rule,
+            "threshold": self.threshold.value,
+            "area_predicted": self.area_predicted,
+            "successes": self.binomial.statistic,
+            "binomial_p": self.binomial.pvalue,
+            "auc": proc.auc,
+            "auc_ratio": proc.auc_ratio,
+            "auc_ratio_null_median": proc.null_median,
+            "partial_roc_p": proc.pvalue,
+            "auc_ratio_mean": proc.bootstrap_mean,
+            "auc_ratio_low": proc.ratio_low,
+            "auc_ratio_high": proc.ratio_high,
+            "partial_roc_p_bootstrap": proc.pvalue_bootstrap,
+            "partial_roc_note": "" if proc.can_omit else CANNOT_OMIT,
+            "omission": proc.omission,
+            "replicates": proc.replicates,
+            **{k: meas.get(k, np.nan) for k in ("omission_rate", "sensitivity", "specificity", "commission_rate",
+                                                 "correct_classification_rate", "tss", "kappa")},
+            "boyce": self.boyce,
+            "n_other": self.n_other,
+            "other_kind": self.other_kind,
+            "area_source": self.area_source,
+            "dropped_no_prediction": self.dropped_no_prediction,
+            "warnings": "; ".join(self.warnings),
+        }
+
+    @property
+    def row(self) -> dict:
+        return self.to_row()
+
+
+@dataclass(frozen=True)
+class SplitSummary:
+    """The ``all`` row: one verdict for the split, from a stated combined test.
+
+    Attributes
+    ----------
+    combined_test : str
+        ``"holm"``: the split is significant when at least one fold is after Holm's
+        adjustment (p = the smallest adjusted p, a test of "no fold has skill" that
+        holds its size); ``"jackknife"``: every fold holds exactly one evaluation
+        presence, and the jackknife test decides.
+    pvalue : float
+        The combined test's p-value.
+    significant : bool
+    n_folds, n_significant_folds, n_interpretable : int
+        Folds, folds significant on their own rule, and folds whose measures enter
+        the means (the significant ones).
+    n_evaluation, successes : int
+        Summed over folds.
+    means, sds : dict
+        Performance means and standard deviations over interpretable folds only.
+    binomial_fisher_p, partial_roc_fisher_p : float
+        Fisher-combined p-values of the folds' tests, as a description (the folds
+        are not fully independent).
+    jackknife : JackknifeResult or None
+    """
+
+    combined_test: str
+    pvalue: float
+    significant: bool
+    n_folds: int
+    n_significant_folds: int
+    n_interpretable: int
+    n_evaluation: int
+    successes: int
+    means: dict
+    sds: dict
+    binomial_fisher_p: float
+    partial_roc_fisher_p: float
+    threshold_rule: str
+    omission: float
+    replicates: int
+    jackknife: JackknifeResult | None = None
+
+    def to_row(self) -> dict:
+        """The ``all`` row of ``evaluation.csv``."""
+        row = {
+            "fold": "all",
+            "significant": self.significant,
+            "interpretation": "interpret" if self.significant else "do not interpret",
+            "p_adjusted": self.pvalue,
+            "n_evaluation": self.n_evaluation,
+            "successes": self.successes,
+            "binomial_p": self.binomial_fisher_p,
+            "partial_roc_p": self.partial_roc_fisher_p,
+            "threshold_rule": self.threshold_rule,
+            "omission": self.omission,
+            "replicates": self.replicates,
+            "combined_test": self.combined_test,
+            "n_interpretable": self.n_interpretable,
+            "n_significant_folds": self.n_significant_folds,
+            "jackknife_successes": self.jackknife.statistic if self.jackknife else np.nan,
+            "jackknife_n": self.jackknife.n if self.jackknife else np.nan,
+            "jackknife_p": self.jackknife.pvalue if self.jackknife else np.nan,
+        }
+        for m in MEASURES:
+            row[m] = self.means.get(m, np.nan)
+            row[f"{m}_sd"] = self.sds.get(m, np.nan)
+        test = ("jackknife test over the one-presence folds" if self.combined_test == "jackknife"
+                else "Holm's adjustment across folds (smallest adjusted p)")
+        row["warnings"] = (f"verdict from {test}; measures are means over the {self.n_interpretable} "
+                           f"interpretable fold(s) (SD in *_sd); binomial_p and partial_roc_p here are "
+                           "Fisher-combined, a description only")
+        return row
 
 
 @dataclass(frozen=True)
@@ -66,35 +255,44 @@ class EvaluationResult:
 
     Attributes
     ----------
-    folds : list of FoldEvaluation
-    summary : dict
-        The ``all`` row: means (and SDs) of the measures, Fisher-combined p-values.
+    folds : tuple of FoldEvaluation
+    summary : SplitSummary
     parameters : dict
-    warnings : list of str
+    warnings : tuple of str
     """
 
-    folds: list
-    summary: dict
+    folds: tuple
+    summary: SplitSummary
     parameters: dict
-    warnings: list
+    warnings: tuple
 
     def to_frame(self) -> pd.DataFrame:
-        rows = [f.row for f in self.folds] + [self.summary]
+        rows = [f.to_row() for f in self.folds] + [self.summary.to_row()]
         df = pd.DataFrame(rows)
         cols = COLUMNS + [c for c in df.columns if c not in COLUMNS]
         return df.reindex(columns=cols)
 
     def to_dict(self) -> dict:
-        from splitter.io.foldtable import to_json
-        import json
+        def clean(v):
+            if isinstance(v, (np.floating, float)):
+                return None if not np.isfinite(v) else float(v)
+            if isinstance(v, np.integer):
+                return int(v)
+            if isinstance(v, np.bool_):
+                return bool(v)
+            if isinstance(v, dict):
+                return {k: clean(x) for k, x in v.items()}
+            if isinstance(v, (list, tuple)):
+                return [clean(x) for x in v]
+            return v
 
-        return json.loads(to_json({
+        return clean({
             "parameters": self.parameters,
-            "warnings": self.warnings,
-            "folds": [f.row for f in self.folds],
-            "all": self.summary,
-            "curves": {str(f.row["fold"]): {"x": f.curve_x.tolist(), "y": f.curve_y.tolist()} for f in self.folds},
-        }))
+            "warnings": list(self.warnings),
+            "folds": [f.to_row() for f in self.folds],
+            "all": self.summary.to_row(),
+            "curves": {f.fold: {"x": f.curve_x.tolist(), "y": f.curve_y.tolist()} for f in self.folds},
+        })
 
 
 def _kind_rows(assignment, rows, kind):
@@ -113,6 +311,7 @@ def evaluate(
     omission: float = 0.05,
     replicates: int = 1000,
     alpha: float = 0.05,
+    adjust: str = "holm",
     seed: int = 0,
     prediction_dir=None,
     fold_names: dict | None = None,
@@ -136,7 +335,11 @@ def evaluate(
     threshold : str
         ``lowest``, ``quantile:Q``, ``value:V`` or ``max-tss``; always from calibration data.
     omission, replicates, alpha, seed
-        Partial ROC omission tolerance E, bootstrap replicates, significance level, seed.
+        Partial ROC omission tolerance E, bootstrap and null replicates B,
+        significance level, seed.
+    adjust : {"holm", "none"}
+        How a fold's p (the larger of its binomial and partial-ROC p) is adjusted
+        for testing k folds: Holm's step-down adjustment (default), or none.
 
     Returns
     -------
@@ -144,7 +347,9 @@ def evaluate(
     """
     rule = ThresholdRule.parse(threshold)
     if not 0 < alpha < 1:
-        raise InputError(f"--alpha {alpha}: give a level between 0 and 1 (e.g. 0.05).")
+        raise InputError(f"alpha={alpha}: give a level between 0 and 1 (e.g. 0.05).")
+    if adjust not in ADJUSTMENTS:
+        raise InputError(f"adjust={adjust!r}: use 'holm' (Holm's adjustment across folds) or 'none'.")
     if predictions is None and prediction_table is None and model is None:
         raise InputError("give predictions: --predictions 'PATTERN_{fold}.tif', --prediction-table FILE or --model baseline --env RASTER.")
     if assignment.records is None:
@@ -169,10 +374,19 @@ def evaluate(
     for i in assignment.folds:
         label = names.get(i, str(i))
         fe = _evaluate_fold(assignment, i, label, predictions, table, region_geom, rule, omission,
-                            replicates, alpha, seed, warnings, notes)
+                            replicates, seed, warnings, notes)
         folds_out.append(fe)
         if progress is not None:
             progress()
+    folds_out = _decide(folds_out, alpha, adjust)
+    k = len(folds_out) if adjust == "holm" else 1
+    if k / (int(replicates) + 1) >= alpha:
+        # The partial ROC's p is at least 1 / (B + 1); Holm multiplies the smallest by k.
+        warnings.append(
+            f"with {int(replicates)} replicates the partial ROC's p is at least 1/{int(replicates) + 1}"
+            + (f", which Holm's adjustment over {k} folds raises to {k}/{int(replicates) + 1}" if k > 1 else "")
+            + f"; no fold can reach alpha {alpha:g}: use at least {int(np.ceil(k / alpha))} replicates"
+        )
     summary = _summarise(folds_out, alpha)
     if predictions is not None:
         _extent_check(assignment, predictions, names, region_geom, warnings)
@@ -181,11 +395,16 @@ def evaluate(
         "alpha": alpha, "seed": int(seed), "model": model_label,
         "predictions": str(predictions) if predictions is not None else None,
         "prediction_table": str(prediction_table) if isinstance(prediction_table, (str, Path)) else None,
-        "significance_rule": "binomial p < alpha and partial ROC p < alpha",
+        "adjust": adjust,
+        "significance_rule": (
+            "p_fold = max(binomial p, partial ROC p); significant when "
+            + ("Holm-adjusted p_fold < alpha" if adjust == "holm" else "p_fold < alpha")
+        ),
+        "combined_test": summary.combined_test,
         "notes": notes,
         "extent_check": {"buffer_km": EXTENT_BUFFER_KM, "ratio": EXTENT_RATIO},
     }
-    return EvaluationResult(folds_out, summary, params, warnings)
+    return EvaluationResult(tuple(folds_out), summary, params, tuple(warnings))
 
 
 def _read_prediction_table(table, assignment) -> pd.DataFrame:
@@ -224,7 +443,7 @@ def _fold_raster(pattern, label) -> Path:
 
 
 def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission, replicates,
-                   alpha, seed, warnings, notes) -> FoldEvaluation:
+                   seed, warnings, notes) -> FoldEvaluation:
     ev = assignment.evaluation(i)
     cal = assignment.calibration(i)
     ev_p = _kind_rows(assignment, ev, "presence")
@@ -276,8 +495,9 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
 
     try:
         if path is not None:
-            # The testing region is the raster's valid cells, read in windows: one
-            # min/max pass and one summary pass, whatever the raster's size.
+            # The testing region is the raster's valid cells, read in windows (a
+            # min/max pass, a summary pass and the partial ROC null's two passes),
+            # whatever the raster's size.
             from splitter.io.rasters import valid_cells
 
             surf = evaluate_surface(lambda: valid_cells(path, region), s_ev_p, [thr.value], omission=omission,
@@ -305,47 +525,30 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
     successes = int(np.sum(s_ev_p >= thr.value))
     binom = binomial_test(successes, s_ev_p.size, area_share)
     if s_ev_o.size:
-        meas = confusion_measures(s_ev_p, s_ev_o, thr.value, other_kind=other_kind).to_dict()
+        meas = confusion_measures(s_ev_p, s_ev_o, thr.value, other_kind=other_kind)
     else:
-        meas = {}
+        meas = None
         fold_warn.append(f"fold {label} has no evaluation background or absences: confusion-matrix measures not computed")
-    significant = bool(binom.pvalue < alpha and proc.pvalue < alpha)
-    row = {
-        "fold": str(label),
-        "significant": significant,
-        "interpretation": "interpret" if significant else "do not interpret",
-        "n_evaluation": int(s_ev_p.size),
-        "threshold_rule": str(rule),
-        "threshold": thr.value,
-        "area_predicted": area_share,
-        "successes": successes,
-        "binomial_p": binom.pvalue,
-        "auc": proc.auc,
-        "auc_ratio": proc.auc_ratio,
-        "auc_ratio_mean": proc.statistic,
-        "auc_ratio_low": proc.ratio_low,
-        "auc_ratio_high": proc.ratio_high,
-        "partial_roc_p": proc.pvalue,
-        "omission": omission,
-        "replicates": int(replicates),
-        "omission_rate": meas.get("omission_rate", np.nan),
-        "sensitivity": meas.get("sensitivity", np.nan),
-        "specificity": meas.get("specificity", np.nan),
-        "commission_rate": meas.get("commission_rate", np.nan),
-        "correct_classification_rate": meas.get("correct_classification_rate", np.nan),
-        "tss": meas.get("tss", np.nan),
-        "kappa": meas.get("kappa", np.nan),
-        "boyce": boyce,
-        "n_other": int(s_ev_o.size),
-        "other_kind": other_kind,
-        "area_source": area_source,
-        "dropped_no_prediction": no_pred,
-        "warnings": "; ".join(fold_warn),
-    }
+    if not proc.can_omit:
+        fold_warn.append(f"fold {label}: the partial ROC {CANNOT_OMIT}; its significance comes from the null of "
+                         "presences placed at random, not from the bootstrap")
     warnings.extend(fold_warn)
     used = np.isfinite(scores["prediction"].to_numpy(float))
     scores["predicted_present"] = np.where(used, (scores["prediction"].to_numpy(float) >= thr.value), None)
-    return FoldEvaluation(row, proc.curve.x, proc.curve.y, proc.ratios, scores)
+    p_fold = max(binom.pvalue, proc.pvalue)
+    return FoldEvaluation(
+        fold=str(label), n_evaluation=int(s_ev_p.size), threshold=thr, area_predicted=area_share,
+        binomial=binom, partial_roc=proc, p_fold=p_fold, p_adjusted=p_fold, significant=False,
+        measures=meas, boyce=float(boyce), n_other=int(s_ev_o.size), other_kind=other_kind,
+        area_source=area_source, dropped_no_prediction=no_pred, warnings=tuple(fold_warn), scores=scores,
+    )
+
+
+def _decide(folds, alpha, adjust) -> list:
+    """Each fold's verdict: p_fold, adjusted across folds (Holm) unless asked not to."""
+    p = np.array([f.p_fold for f in folds], float)
+    adjusted = holm_adjust(p) if adjust == "holm" else p
+    return [replace(f, p_adjusted=float(a), significant=bool(a < alpha)) for f, a in zip(folds, adjusted)]
 
 
 def _score_table(assignment, label, parts) -> pd.DataFrame:
@@ -371,27 +574,47 @@ MEASURES = ["area_predicted", "auc", "auc_ratio", "auc_ratio_mean", "omission_ra
             "specificity", "commission_rate", "correct_classification_rate", "tss", "kappa", "boyce"]
 
 
-def _summarise(folds, alpha) -> dict:
-    rows = [f.row for f in folds]
-    out = {"fold": "all", "n_evaluation": int(sum(r["n_evaluation"] for r in rows)),
-           "successes": int(sum(r["successes"] for r in rows))}
+def _summarise(folds, alpha) -> SplitSummary:
+    """The ``all`` row: a stated combined test, means over interpretable folds only."""
+    rows = [f.to_row() for f in folds]
+    good = [r for r, f in zip(rows, folds) if f.significant]
+    means, sds = {}, {}
     for m in MEASURES:
-        v = np.array([r[m] for r in rows], float)
+        v = np.array([r[m] for r in good], float)
         ok = np.isfinite(v)
-        out[m] = float(v[ok].mean()) if ok.any() else np.nan
-        out[f"{m}_sd"] = float(v[ok].std(ddof=1)) if ok.sum() > 1 else np.nan
-    for p in ("binomial_p", "partial_roc_p"):
-        # A bootstrap p of 0 means "below 1/B"; Fisher's method needs p > 0.
-        vals = [max(r[p], 1.0 / (r["replicates"] + 1)) if p == "partial_roc_p" else r[p] for r in rows]
-        out[p] = combine_pvalues_fisher(vals).pvalue
-    out["significant"] = bool(out["binomial_p"] < alpha and out["partial_roc_p"] < alpha)
-    out["interpretation"] = "interpret" if out["significant"] else "do not interpret"
-    out["n_significant_folds"] = int(sum(r["significant"] for r in rows))
-    out["threshold_rule"] = rows[0]["threshold_rule"] if rows else ""
-    out["omission"] = rows[0]["omission"] if rows else np.nan
-    out["replicates"] = rows[0]["replicates"] if rows else 0
-    out["warnings"] = "p-values combined with Fisher's method; measures are fold means (SD in *_sd columns)"
-    return out
+        means[m] = float(v[ok].mean()) if ok.any() else np.nan
+        sds[m] = float(v[ok].std(ddof=1)) if ok.sum() > 1 else np.nan
+    jack = None
+    if folds and all(f.n_evaluation == 1 for f in folds):
+        # Every fold holds one evaluation presence (leave-one-out): the jackknife test
+        # ("Predicting species distributions from small numbers of occurrence records",
+        # Journal of Biogeography 2007) decides for the split.
+        jack = jackknife_test([f.binomial.statistic == 1 for f in folds], [f.area_predicted for f in folds])
+        combined, pvalue = "jackknife", jack.pvalue
+    else:
+        # Holm's adjusted p-values: the split has skill when any fold is significant
+        # after adjustment, so its p is the smallest adjusted p (a Bonferroni test of
+        # "no fold has skill", which holds its size).
+        combined = "holm"
+        pvalue = float(np.min(holm_adjust([f.p_fold for f in folds]))) if folds else np.nan
+    return SplitSummary(
+        combined_test=combined,
+        pvalue=pvalue,
+        significant=bool(pvalue < alpha),
+        n_folds=len(folds),
+        n_significant_folds=int(sum(f.significant for f in folds)),
+        n_interpretable=len(good),
+        n_evaluation=int(sum(f.n_evaluation for f in folds)),
+        successes=int(sum(f.binomial.statistic for f in folds)),
+        means=means,
+        sds=sds,
+        binomial_fisher_p=combine_pvalues_fisher([f.binomial.pvalue for f in folds]).pvalue,
+        partial_roc_fisher_p=combine_pvalues_fisher([f.partial_roc.pvalue for f in folds]).pvalue,
+        threshold_rule=folds[0].threshold.rule if folds else "",
+        omission=folds[0].partial_roc.omission if folds else np.nan,
+        replicates=folds[0].partial_roc.replicates if folds else 0,
+        jackknife=jack,
+    )
 
 
 def _extent_check(assignment, pattern, names, region, warnings):
