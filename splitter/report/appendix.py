@@ -230,7 +230,7 @@ def _fold_counts_frame(split: SplitRun) -> pd.DataFrame:
 
 
 AUDIT_FIRST = ["fold", "verdict", "reasons"]
-EVAL_FIRST = ["fold", "significant", "interpretation", "binomial_p", "partial_roc_p", "n_evaluation", "successes",
+EVAL_FIRST = ["fold", "significant", "interpretation", "p_adjusted", "binomial_p", "partial_roc_p", "n_evaluation", "successes",
               "area_predicted", "threshold_rule", "threshold"]
 
 
@@ -309,7 +309,8 @@ def _display_audit(split: SplitRun, source: str) -> Table:
                  element_id=f"audit-{_safe(split.name)}", notes=tuple(notes), source=source)
 
 
-PERFORMANCE = [("auc_ratio_mean", "partial AUC ratio (mean)"), ("auc_ratio_interval", "95% interval"),
+PERFORMANCE = [("auc_ratio", "partial AUC ratio (observed)"), ("auc_ratio_null_median", "ratio of random presences (median)"),
+               ("auc_ratio_interval", "bootstrap 95% interval"),
                ("auc", "full AUC"), ("omission_rate", "omission rate"), ("sensitivity", "sensitivity"),
                ("specificity", "specificity"), ("tss", "TSS"), ("kappa", "kappa"), ("boyce", "Boyce index")]
 
@@ -331,6 +332,7 @@ def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> tu
         interp = str(r.get("interpretation", ""))
         sig_rows.append((
             label, "yes" if sig else "no", interp,
+            P.fmt_p(_num(r.get("p_adjusted"))),
             P.fmt_p(_num(r.get("binomial_p"))),
             P.fmt_p(_num(r.get("partial_roc_p"))),
             P.fmt_count(_num(r.get("n_evaluation"))) if math.isfinite(_num(r.get("n_evaluation"))) else "",
@@ -338,7 +340,7 @@ def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> tu
             P.fmt_share(_num(r.get("area_predicted"))),
         ))
         cells = [label, interp]
-        show = sig and (not is_all or all_sig)
+        show = sig and (not is_all or _num(r.get("n_interpretable", 0)) > 0)
         for k, _ in perf:
             if not show:
                 cells.append("—")
@@ -354,19 +356,27 @@ def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> tu
     sig_table = Table(
         caption=f"Per-fold significance, split `{split.name}` (threshold `{par.get('threshold_rule')}`, chosen from "
                 f"calibration presences).",
-        columns=("fold", "significant", "interpretation", "binomial p", "partial ROC p", "evaluation presences",
+        columns=("fold", "significant", "interpretation", "adjusted p", "binomial p", "partial ROC p", "evaluation presences",
                  "predicted present", "area predicted present"),
         rows=tuple(sig_rows), css_class="evaluation significance", element_id=f"significance-{tag}",
         row_classes=tuple(classes),
         notes=(f"Binomial test: evaluation presences predicted present against the share of area predicted present. "
-               f"Partial ROC: omission tolerance E = {P.fmt_level(par.get('omission'))}, "
-               f"{P.fmt_count(par.get('replicates', 0))} bootstrap replicates. Significant when "
-               f"{par.get('significance_rule', 'both tests reject the null')}, alpha = {P.fmt_level(par.get('alpha'))}.",
-               "\"all folds\": p-values combined with Fisher's method."),
+               f"Partial ROC: omission tolerance E = {P.fmt_level(par.get('omission'))}, the observed AUC ratio against "
+               f"{P.fmt_count(par.get('replicates', 0))} sets of as many presences placed at random in the testing region; "
+               f"p = (1 + random ratios at least as large) / (1 + {P.fmt_count(par.get('replicates', 0))}), never 0. "
+               f"Adjusted p: {par.get('significance_rule', 'both tests reject the null')}, alpha = "
+               f"{P.fmt_level(par.get('alpha'))}.",
+               "\"all folds\": " + ("the jackknife test over the one-presence folds (its p in the adjusted column)."
+                                     if par.get("combined_test") == "jackknife" else
+                                     "the smallest Holm-adjusted p decides; binomial and partial ROC p here are "
+                                     "Fisher-combined, a description only.")),
         source=source)
     notes = ["A fold that is not significant is marked \"do not interpret\": its performance figures are withheld "
              "here (they stay in the CSV, flagged).",
-             "\"all folds\": fold means, shown only when every fold is significant."]
+             "\"all folds\": means over the interpretable (significant) folds only.",
+             "Partial AUC ratio (observed): on all evaluation presences. Ratio of random presences: the median "
+             "ratio of as many presences placed at random, what a model of no skill scores here (above 1 when "
+             "presences are few). Bootstrap interval: 50% of the presences resampled, a description only."]
     if other == "background":
         notes.append("Specificity is computed against background points, not true absences (pseudo-specificity).")
     perf_table = Table(
@@ -398,7 +408,7 @@ def _comparison_frame(splits) -> pd.DataFrame:
             f = s.evaluation.get("folds", [])
             good = [r for r in f if r.get("significant")]
             row["significant_folds"] = len(good)
-            v = np.array([_num(r.get("auc_ratio_mean")) for r in good], float)
+            v = np.array([_num(r.get("auc_ratio")) for r in good], float)
             if np.isfinite(v).any():
                 row["auc_ratio_mean_significant"] = float(np.nanmean(v))
         rows.append(row)
@@ -490,7 +500,7 @@ def _ratio_frames(splits) -> dict:
         if s.evaluation is None or not s.evaluation.get("folds"):
             continue
         df = pd.DataFrame(s.evaluation["folds"])
-        if {"auc_ratio_mean", "auc_ratio_low", "auc_ratio_high", "significant"} <= set(df.columns):
+        if {"auc_ratio", "auc_ratio_low", "auc_ratio_high", "significant"} <= set(df.columns):
             frames[s.name] = df.astype({"significant": str})
     return frames
 

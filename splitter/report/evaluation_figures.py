@@ -44,11 +44,16 @@ def plot_ratio_intervals(frames: dict, alpha: float = 0.05):
     for s, (name, df) in enumerate(frames.items()):
         df = df[df["fold"].astype(str) != "all"]
         pos = np.arange(len(df)) + (s - (n_series - 1) / 2) * width
-        mean = df["auc_ratio_mean"].astype(float).to_numpy()
+        mean = df["auc_ratio"].astype(float).to_numpy()  # observed, on all presences
+        null = (df["auc_ratio_null_median"].astype(float).to_numpy() if "auc_ratio_null_median" in df.columns
+                else np.full(len(df), np.nan))
         lo = df["auc_ratio_low"].astype(float).to_numpy()
         hi = df["auc_ratio_high"].astype(float).to_numpy()
         sig = df["significant"].astype(str).str.lower().isin(["true", "1"]).to_numpy()
-        ax.errorbar(pos, mean, yerr=[mean - lo, hi - mean], fmt="none", ecolor=colour(s), lw=1.4, capsize=3)
+        ax.errorbar(pos, mean, yerr=[np.maximum(mean - lo, 0), np.maximum(hi - mean, 0)], fmt="none",
+                    ecolor=colour(s), lw=1.4, capsize=3)
+        ax.scatter(pos, null, color=GREY, marker="_", s=80, zorder=3,
+                   label="median ratio of random presences" if s == 0 else None)
         ax.scatter(pos[sig], mean[sig], color=colour(s), marker="o", s=28, zorder=3,
                    label=f"{name}: significant (p < {alpha:g})")
         ax.scatter(pos[~sig], mean[~sig], facecolor="white", edgecolor=colour(s), marker="o", s=28, zorder=3,
@@ -58,7 +63,7 @@ def plot_ratio_intervals(frames: dict, alpha: float = 0.05):
     ax.set_xticks(np.arange(len(labels)))
     ax.set_xticklabels(labels)
     ax.set_xlabel("fold")
-    ax.set_ylabel("partial AUC ratio\n(bootstrap mean, 95% interval)")
+    ax.set_ylabel("partial AUC ratio (observed;\nbars: bootstrap 95% interval)")
     lo, hi = ax.get_ylim()
     ax.set_ylim(min(lo, 0.95), hi)  # keep the null line in view
     # Legend under the axes, so it never sits on the null line or an interval.

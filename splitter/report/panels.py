@@ -29,7 +29,7 @@ def plot_roc_panels(curves: dict, rows: list, omission: float, title: str = ""):
     curves : dict
         Fold label -> {"x": [...], "y": [...]} as stored in evaluation.json.
     rows : list of dict
-        The evaluation's fold rows (fold, significant, auc, auc_ratio_mean).
+        The evaluation's fold rows (fold, significant, auc, auc_ratio).
     omission : float
         The omission tolerance E; the cut-off line is drawn at 1 - E.
     title : str
@@ -41,7 +41,7 @@ def plot_roc_panels(curves: dict, rows: list, omission: float, title: str = ""):
     Examples
     --------
     >>> fig = plot_roc_panels({"1": {"x": [0, 0.2, 1], "y": [0, 0.9, 1]}},
-    ...                       [{"fold": "1", "significant": True, "auc": 0.8, "auc_ratio_mean": 1.3}], 0.05)
+    ...                       [{"fold": "1", "significant": True, "auc": 0.8, "auc_ratio": 1.3}], 0.05)
     >>> len(fig.axes)
     1
     """
@@ -94,7 +94,7 @@ def plot_roc_panels(curves: dict, rows: list, omission: float, title: str = ""):
         ax.set_ylim(0, 1.02)
         if sig:
             ax.set_title(f"fold {lab}: significant", fontsize=8.5)
-            ax.text(0.97, 0.05, f"AUC {float(row.get('auc')):.3f}\nAUC ratio {float(row.get('auc_ratio_mean')):.3f}",
+            ax.text(0.97, 0.05, f"AUC {float(row.get('auc')):.3f}\nAUC ratio (observed) {float(row.get('auc_ratio')):.3f}",
                     ha="right", va="bottom", fontsize=7, transform=ax.transAxes)
         else:
             ax.set_title(f"fold {lab}: not significant", fontsize=8.5, color=colour(5))
