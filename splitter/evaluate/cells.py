@@ -150,16 +150,20 @@ class _CellKeys:
         self.n_keys = 2 * u.size + 1
         low = float(self.edges[0])
         span = float(self.edges[-1]) - low  # > 0: u_0+ > u_0
-        buckets = int(min(1 << 20, max(1 << 16, 64 * self.n_keys)))
+        # About 16 buckets per key, so that few cells share a bucket with a key even
+        # when there are many keys (the partial ROC's null places ~B n values).
+        buckets = int(min(1 << 24, max(1 << 16, 16 * self.n_keys)))
         with np.errstate(over="ignore", divide="ignore"):
             scale = buckets / span
         self.use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
         self.low, self.scale, self.buckets = low, scale, buckets
         if self.use_table:
             edge_bucket = _bucket(self.edges, low, scale, buckets)
-            self.table = np.searchsorted(edge_bucket, np.arange(buckets + 2), side="left")  # edges in lower buckets
-            self.shared = np.zeros(buckets + 2, dtype=bool)
-            self.shared[edge_bucket] = True
+            # Keys of cells in buckets without an edge: the number of edges in lower buckets.
+            per_bucket = np.bincount(edge_bucket, minlength=buckets + 2)
+            below = np.cumsum(per_bucket) - per_bucket  # edges in lower buckets
+            self.table = below.astype(np.int32) if self.n_keys < 2**31 else below
+            self.shared = per_bucket > 0
 
     def __call__(self, vb: np.ndarray) -> np.ndarray:
         """Key (0 .. n_keys - 1) of every value of the block ``vb``."""
