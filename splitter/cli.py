@@ -54,8 +54,19 @@ def guarded(fn):
 
     @functools.wraps(fn)
     def wrapper(*args, **kwargs):
+        import signal
+
+        from splitter.io.lock import output_lock
+
+        # SIGTERM (e.g. a job scheduler stopping the run) cleans up like Ctrl-C:
+        # the exception unwinds through every atomic writer, which removes its temp file.
+        signal.signal(signal.SIGTERM, _interrupt)
         try:
-            return fn(*args, **kwargs)
+            target = kwargs.get("out_dir") or kwargs.get("out_path")
+            if target is None:
+                return fn(*args, **kwargs)
+            with output_lock(target, folder="out_dir" in kwargs):
+                return fn(*args, **kwargs)
         except InputError as e:
             _fail(str(e))
         except FileNotFoundError as e:
@@ -72,6 +83,10 @@ def guarded(fn):
                   "with the command; set SPLITTER_DEBUG=1 to see the traceback.", code=3)
 
     return wrapper
+
+
+def _interrupt(signum, frame):
+    raise KeyboardInterrupt
 
 
 def command_line() -> str:
