@@ -55,8 +55,14 @@ def output_lock(target, folder: bool) -> Iterator[Path]:
         lock_path, fd = target, _open(target, os.O_RDONLY)
     else:
         parent = target.parent if str(target.parent) else Path(".")
-        if not parent.is_dir():
-            raise InputError(f"{parent}: the folder for --out does not exist; create it first.")
+        if parent.exists() and not parent.is_dir():
+            raise InputError(f"{parent}: --out must be inside a folder, and a file has that name; choose another path.")
+        if not parent.exists():
+            try:
+                parent.mkdir(parents=True)
+            except OSError as e:
+                raise InputError(f"{parent}: cannot create the folder for --out ({e.strerror}); choose a writable --out.") from None
+            created = True
         lock_path = parent / f".{target.name}.lock"
         fd = _open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
     try:
@@ -73,8 +79,9 @@ def output_lock(target, folder: bool) -> Iterator[Path]:
                     lock_path.unlink()
                 except FileNotFoundError:
                     pass
-            elif created and not any(target.iterdir()):
-                target.rmdir()
+            made = target if folder else target.parent
+            if created and made.is_dir() and not any(made.iterdir()):
+                made.rmdir()  # a folder this run made and left empty
     finally:
         os.close(fd)
 
