@@ -324,22 +324,20 @@ def range_command(
         out.print(f"{role}: {p}")
 
 
-def _rule_names(reasons) -> str:
-    """'distance: 99% ...; collection method: ...' -> 'distance, collection method'."""
-    if not reasons or reasons != reasons:
-        return ""
-    return ", ".join(part.split(":")[0].strip() for part in str(reasons).split(";") if part.strip())
-
-
 def audit_table(result) -> Table:
     t = Table(title=f"residual dependence per fold: {result.verdict}", title_justify="left")
-    for c in ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D", "outside env.", "shared method", "verdict", "why"):
+    cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D", "D null share", "outside env.",
+            "shared method", "method null share", "verdict", "why")
+    for c in cols:
         t.add_column(c, justify="left" if c in ("fold", "verdict", "why") else "right")
     f = result.to_frame()
     num = lambda v, d=2: "-" if v is None or v != v else f"{v:.{d}f}"
-    for r in f.itertuples():
+    for i, r in enumerate(f.itertuples()):
         t.add_row(str(r.fold), str(r.n_evaluation), num(r.nn_median_km, 1), num(r.share_within_range), num(r.wasserstein_km, 1),
-                  num(r.schoener_d), num(r.share_outside_envelope), num(r.shared_method_share), r.verdict, _rule_names(r.reasons))
+                  num(r.schoener_d), num(r.schoener_d_null_share), num(r.share_outside_envelope), num(r.shared_method_share),
+                  num(r.shared_method_null_share), r.verdict, ", ".join(result.fired(i)) or (result.notes[i] if r.verdict == "insufficient" else ""))
+    t.caption = ("null share: share of random re-splits of the fold's records at least as dependent as the split; "
+                 "the split is better than random when it is at least the threshold")
     return t
 
 
@@ -358,7 +356,8 @@ def audit(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample."),
+    seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample and the random re-splits."),
+    null_splits: int = typer.Option(199, "--null-splits", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'dependent': exit 1 when any fold is flagged."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),
 ):
@@ -369,18 +368,21 @@ def audit(
 
     if fail_on not in (None, "dependent"):
         raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
+    if null_splits < 19:
+        raise InputError(f"--null-splits {null_splits}: give at least 19 random re-splits (199 is the default).")
     _, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
                                            x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
         result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,
-                                    group_column=group_column, region=region, seed=seed, fold_names=names)
+                                    group_column=group_column, region=region, seed=seed, fold_names=names,
+                                    null_splits=null_splits)
         context["command"] = command_line()
         paths = write_audit(result, context, out_dir)
     out.print(audit_table(result))
-    out.print("rules (conventions; a fold is dependent when any applicable rule fires):")
+    out.print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
-        out.print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']})")
+        out.print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")
     rk = context.get("range_km")
     out.print(f"autocorrelation range: {'not given' if rk is None else f'{rk:.1f} km'} ({context.get('range_source') or 'no range: distance rule not applied'})")
     for n in context.get("notes", []):

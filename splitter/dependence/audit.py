@@ -24,8 +24,16 @@ report prints it):
     it, so no fixed level of D separates a designed split from a random one;
     the fold's own re-splits do. Fires when fewer than 95 % of the re-splits
     have a D at least as high as the designed split's (the designed split
-    separates environments no better than chance). Applied only when
-    covariates are given.
+    separates environments no better than chance). Applied when covariates are
+    given and no autocorrelation range is: environmental likeness stands in
+    for closeness only when closeness cannot be measured. With a range the
+    distance rule decides, because evaluation records beyond the range of
+    every calibration record are not dependent on them through place however
+    alike their environments (spatial blocks typically sample the same
+    environments as a random split: that makes the evaluation one of
+    interpolation, not a dependent one); D and its null are reported all the
+    same, so a reader can see whether a fold tests transfer to new
+    environments.
 (iii) **collection method** — the share of evaluation records whose survey
     method/source also occurs among the fold's calibration records, against
     the same re-splits; fires when fewer than 95 % of them share at least as
@@ -83,8 +91,8 @@ def rule_table(null_splits: int = NULL_SPLITS) -> list[dict]:
         {
             "name": "environment",
             "rule": "dependent when fewer than the threshold share of " + resplit + " have a Schoener's D "
-            "(calibration vs evaluation, first two principal components) at least as high as the split's: "
-            "it separates environments no better than chance",
+            "(calibration vs evaluation, first two principal components) at least as high as the split's "
+            "(it separates environments no better than chance); applied when no autocorrelation range is given",
             "threshold": NULL_SHARE,
         },
         {
@@ -472,7 +480,7 @@ def audit_split(
         if np.isfinite(s):
             applied.append(RuleOutcome(rule="distance", measure="share_within_range", value=float(s),
                                        fired=bool(s > DISTANCE_SHARE), threshold=DISTANCE_SHARE, range_km=float(range_km)))
-        if d_null[i] is not None and np.isfinite(d_null[i].share):
+        if d_null[i] is not None and np.isfinite(d_null[i].share) and not np.isfinite(s):
             applied.append(_null_outcome("environment", "schoener_d", d_null[i]))
         if m_null[i] is not None and np.isfinite(m_null[i].share):
             applied.append(_null_outcome("collection method", "shared_method_share", m_null[i]))

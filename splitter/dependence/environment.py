@@ -288,6 +288,8 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
     if ref.shape[0] < ncomp + 1:
         raise InputError("The reference sample has too few complete records to standardise on.")
     mu, sd = ref.mean(axis=0), ref.std(axis=0)
+    if not (sd > 0).any():
+        raise InputError("The covariates do not vary over the reference records; D is undefined.")
     sd = np.where(sd > 0, sd, 1.0)
     pca = PCA(n_components=ncomp, svd_solver="full").fit((ref - mu) / sd)
     pc = pca.transform((x - mu) / sd)
