@@ -51,8 +51,10 @@ def test_random_split_is_dependent_and_blocks_beyond_the_range_are_not(tmp_path,
     assert run("design", recs, "--method", "random", "--folds", 5, "--seed", 1, "--out", tmp_path / "r.csv").exit_code == 0
     res = run("design", recs, "--method", "blocks", "--folds", 5, "--block-size", rng_km, "--buffer", rng_km, "--seed", 1, "--out", tmp_path / "b.csv")
     assert res.exit_code == 0, res.output
-    res_r = run("audit", tmp_path / "r.csv", *env_args(), "--range-from", demo_range, "--out", tmp_path / "ar")
-    res_b = run("audit", tmp_path / "b.csv", *env_args(), "--range-from", demo_range, "--out", tmp_path / "ab")
+    res_r = run("audit", tmp_path / "r.csv", *env_args(), "--range-from", demo_range, "--group-column", "method",
+                "--out", tmp_path / "ar")
+    res_b = run("audit", tmp_path / "b.csv", *env_args(), "--range-from", demo_range, "--group-column", "method",
+                "--out", tmp_path / "ab")
     assert res_r.exit_code == 0 and res_b.exit_code == 0, res_r.output + res_b.output
     ar = pd.read_csv(tmp_path / "ar" / "audit.csv")
     ab = pd.read_csv(tmp_path / "ab" / "audit.csv")
@@ -63,7 +65,19 @@ def test_random_split_is_dependent_and_blocks_beyond_the_range_are_not(tmp_path,
     for col in ("fold", "n_evaluation", "n_calibration", "nn_median_km", "nn_p10_km", "share_within_range", "range_km",
                 "wasserstein_km", "schoener_d", "share_outside_envelope", "shared_method_share", "verdict"):
         assert col in ar.columns
+    for col in ("schoener_d_null_median", "schoener_d_null_share", "shared_method_null_median",
+                "shared_method_null_share"):
+        assert col in ar.columns and ar[col].notna().all()
+    # Both survey methods occur in every fold of both splits, as in any split of these records:
+    # the collection-method rule stays quiet (ties with every re-split are not held against a split).
+    assert (ab.shared_method_share == 1.0).all() and (ab.shared_method_null_share == 1.0).all()
+    assert not ab.reasons.str.contains("collection method").any()
+    assert ar.reasons.str.contains("distance").all()
     assert "distance" in res_r.output and "threshold 0.5" in res_r.output  # the rule is printed
+    assert "199 random re-splits" in res_r.output and "threshold 0.95" in res_r.output
+    doc = json.loads((tmp_path / "ab" / "audit.json").read_text())
+    assert doc["null_splits"] == 199
+    assert [o["rule"] for o in doc["folds"][0]["outcomes"]] == ["distance", "collection method"]
     assert run("audit", tmp_path / "r.csv", "--range-from", demo_range, "--fail-on", "dependent", "--out", tmp_path / "ar2").exit_code == 1
     assert (tmp_path / "ab" / "distance_ecdf.png").exists()
 
@@ -103,6 +117,8 @@ def test_audit_bad_input(tmp_path):
     df.to_csv(src, index=False)
     assert_one_line_error(run("audit", src, "--fold-column", "one", "--out", tmp_path / "a"), "one value")
     assert_one_line_error(run("audit", src, "--role-column", "role", "--out", tmp_path / "a"), "row 4", "holdout")
+    assert_one_line_error(run("audit", src, "--fold-column", "tiny", "--null-splits", 5, "--out", tmp_path / "a"),
+                          "--null-splits 5")
     res = run("audit", src, "--fold-column", "tiny", "--range-km", 20, "--out", tmp_path / "t")
     assert res.exit_code == 0, res.output
     tiny = pd.read_csv(tmp_path / "t" / "audit.csv")
