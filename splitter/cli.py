@@ -299,20 +299,49 @@ def evaluate(
 
 @guarded
 def range_command(
-    env: List[Path] = typer.Option(..., "--env", help="Covariate GeoTIFF (repeatable)."),
-    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file limiting the sample."),
-    sample: int = typer.Option(2000, "--sample", help="Cells sampled (by area) for the variograms."),
-    seed: int = typer.Option(0, "--seed", help="Seed for the cell sample."),
+    records: Optional[Path] = typer.Argument(None, help="Records table whose own columns give the variograms (instead of --env rasters)."),
+    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", help="Numeric covariate column of RECORDS (repeatable)."),
+    response: bool = typer.Option(False, "--response", help="Also the indicator variogram of RECORDS' presence/absence (0/1) response."),
+    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file limiting the raster cell sample."),
+    sample: int = typer.Option(2000, "--sample", help="Cells (or records) sampled for the variograms."),
+    x: Optional[str] = X_OPTION,
+    y: Optional[str] = Y_OPTION,
+    crs: Optional[str] = CRS_OPTION,
+    id_column: Optional[str] = ID_OPTION,
+    kind_column: Optional[str] = KIND_OPTION,
+    seed: int = typer.Option(0, "--seed", help="Seed for the cell or record sample."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),
 ):
-    """Estimate the covariates' autocorrelation range and suggest a block size."""
+    """Estimate the autocorrelation range (from rasters or the records' own columns) and suggest a block size."""
     from splitter.io.results import write_range
-    from splitter.rangefinder import estimate_range_from_rasters
+    from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records
 
+    if records is None and (covariate_column or response):
+        raise InputError("--covariate-column and --response read a records table: give RECORDS before the options.")
+    if records is not None and env:
+        raise InputError("give --env rasters or a RECORDS table with --covariate-column/--response, not both.")
+    if records is None and not env:
+        raise InputError("give --env RASTER (repeatable), or a RECORDS table with --covariate-column COL or --response.")
+    if records is not None and not (covariate_column or response):
+        raise InputError(f"{records}: name its covariates with --covariate-column COL (repeatable) or use --response.")
+    if records is not None and not 50 <= sample <= 10_000:
+        raise InputError(f"--sample {sample}: give a number of records between 50 and 10000.")
+    if records is None and sample < 50:
+        raise InputError(f"--sample {sample}: a variogram needs at least 50 cells (2000 is a good default).")
     with progress() as bar:
-        bar.add_task("sampling cells and fitting variograms", total=None)
-        est = estimate_range_from_rasters(env, sample=sample, seed=seed, region=region)
-        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, "env": [str(p) for p in env], "command": command_line()})
+        if records is None:
+            bar.add_task("sampling cells and fitting variograms", total=None)
+            est = estimate_range_from_rasters(env, sample=sample, seed=seed, region=region)
+            source = {"env": [str(p) for p in env]}
+        else:
+            from splitter.io.records import read_records
+
+            bar.add_task("reading records and fitting variograms", total=None)
+            recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+            est = estimate_range_from_records(recs, covariates=covariate_column, response=response, sample=sample, seed=seed)
+            source = {"records": str(records), "covariate_columns": list(covariate_column), "response": bool(response)}
+        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, **source, "command": command_line()})
     t = Table(title="autocorrelation range per covariate", title_justify="left")
     for c in ("covariate", "model", "range km", "sill", "nugget", "r2", "chosen"):
         t.add_column(c, justify="left" if c in ("covariate", "model") else "right")
@@ -320,6 +349,8 @@ def range_command(
         t.add_row(r.covariate, r.model, f"{r.range_km:.1f}", f"{r.sill:.3g}", f"{r.nugget:.3g}", f"{r.r2:.3f}", "yes" if r.chosen else "")
     out.print(t)
     out.print(f"suggested block size: {est.suggested_block_km:.1f} km ({est.summary_rule})")
+    for n in est.notes:
+        out.print(f"note: {n}")
     for role, p in paths.items():
         out.print(f"{role}: {p}")
 
