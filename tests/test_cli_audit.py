@@ -129,3 +129,46 @@ def test_audit_bad_input(tmp_path):
 
     gpd.GeoDataFrame(geometry=[box(100, -10, 101, -9)], crs=4326).to_file(region)
     assert_one_line_error(run("audit", src, "--fold-column", "tiny", "--region", region, "--out", tmp_path / "r"), "region")
+
+
+def test_range_from_the_records_own_columns_and_auto_blocks(tmp_path):
+    from tests.dependence.test_range_records import RANGE_KM, _survey
+
+    _, df = _survey(tmp_path, seed=3)
+    src = tmp_path / "survey.csv"
+    df.to_csv(src, index=False)
+    rec = ["--x", "easting", "--y", "northing", "--crs", "EPSG:3035"]
+    res = run("range", src, "--covariate-column", "soil", "--response", *rec, "--out", tmp_path / "range")
+    assert res.exit_code == 0, res.output
+    table = pd.read_csv(tmp_path / "range" / "range.csv")
+    assert set(table.covariate) == {"soil", "presence"}
+    doc = json.loads((tmp_path / "range" / "range.json").read_text())
+    soil = next(f for f in doc["fits"] if f["covariate"] == "soil" and f["model"] == "exponential")
+    # reference: the simulated field's 40 km effective range (splitter.synthetic); one field, so a
+    # loose factor: single-field estimates spread 35-62 km over 20 fields of this size (see
+    # tests/dependence/test_range_records.py for the tight check on five fields)
+    assert RANGE_KM / 1.6 < soil["range_km"] < RANGE_KM * 1.6
+    res = run("design", src, "--method", "blocks", "--folds", 4, "--block-size", "auto", "--covariate-column", "soil",
+              *rec, "--out", tmp_path / "folds.csv")
+    assert res.exit_code == 0, res.output
+    side = json.loads((tmp_path / "folds.design.json").read_text())
+    params = side.get("parameters", side)
+    assert params["block_size_rule"] == "auto"
+    # The block size is the records' own range estimate (same records, same seed, same fit).
+    suggested = json.loads((tmp_path / "range" / "range.json").read_text())["suggested_block_km"]
+    single = run("range", src, "--covariate-column", "soil", *rec, "--out", tmp_path / "range_soil")
+    assert single.exit_code == 0, single.output
+    expected = json.loads((tmp_path / "range_soil" / "range.json").read_text())["suggested_block_km"]
+    assert params["block_size_km"] == pytest.approx(expected)
+    assert suggested > 0
+
+
+def test_range_bad_input(tmp_path):
+    src = write_records_csv(tmp_path / "mine.csv", n_presence=80, n_background=0)
+    assert_one_line_error(run("range", "--out", tmp_path / "r"), "--env")
+    assert_one_line_error(run("range", src, "--out", tmp_path / "r"), "--covariate-column")
+    assert_one_line_error(run("range", "--covariate-column", "x", "--out", tmp_path / "r"), "RECORDS")
+    assert_one_line_error(run("range", src, "--covariate-column", "depth", "--out", tmp_path / "r"), "depth")
+    assert_one_line_error(run("range", src, "--response", "--out", tmp_path / "r"), "absences")
+    assert_one_line_error(run("range", src, "--covariate-column", "longitude", "--sample", 10, "--out", tmp_path / "r"),
+                          "--sample 10")
