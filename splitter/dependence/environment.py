@@ -263,7 +263,7 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
     >>> bool(res.statistic < res.null.min()), res.share
     (True, 1.0)
     """
-    from splitter.dependence.resplit import check_null_splits, random_subsets
+    from splitter.dependence.resplit import NullComparison, check_null_splits, resplit_counts
 
     x = _matrix(env, "env")
     ev = np.asarray(evaluation, dtype=bool)
@@ -312,28 +312,25 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
     shape = (grid,) * d
     k_e = [_kernel_matrix(axes[j], h_e[j]) for j in range(d)]
     k_c = [_kernel_matrix(axes[j], h_c[j]) for j in range(d)]
-    pooled = np.bincount(cell, minlength=n_cells).astype(float)
+    occupied, cell_code = np.unique(cell, return_inverse=True)  # only cells holding records
+    pooled = np.bincount(cell_code, minlength=occupied.size)
 
-    def d_of(idx: np.ndarray) -> np.ndarray:
-        c = idx.shape[0]
-        rows = np.repeat(np.arange(c), idx.shape[1])
-        ce = np.bincount(rows * n_cells + cell[idx].ravel(), minlength=c * n_cells).reshape(c, n_cells).astype(float)
-        cc = pooled[None, :] - ce
+    def d_of(ev_counts: np.ndarray) -> np.ndarray:
+        c = ev_counts.shape[0]
+        ce = np.zeros((c, n_cells))
+        ce[:, occupied] = ev_counts
+        cc = np.zeros((c, n_cells))
+        cc[:, occupied] = pooled[None, :] - ev_counts
         pe = _densities(ce.reshape((c,) + shape), k_e)
         pcl = _densities(cc.reshape((c,) + shape), k_c)
         dist = np.abs(pe - pcl).reshape(c, -1).sum(axis=1)
         return np.clip(1.0 - 0.5 * dist, 0.0, 1.0)
 
-    rng = np.random.default_rng(seed)
-    from splitter.dependence.resplit import NullComparison
-
-    observed = float(d_of(np.flatnonzero(ev)[None, :])[0])
+    observed = float(d_of(np.bincount(cell_code[ev], minlength=occupied.size)[None, :])[0])
+    draws = resplit_counts(np.random.default_rng(seed), pooled, n_e, null_splits)
     chunk = max(1, 2_000_000 // n_cells)  # bounds the (c, grid, grid) work arrays
-    null = []
-    for idx in random_subsets(rng, ev.size, n_e, null_splits):
-        for s in range(0, idx.shape[0], chunk):
-            null.append(d_of(idx[s:s + chunk]))
-    return NullComparison(observed, np.concatenate(null))
+    null = np.concatenate([d_of(draws[s:s + chunk]) for s in range(0, null_splits, chunk)])
+    return NullComparison(observed, null)
 
 
 def mess(reference, query) -> np.ndarray:

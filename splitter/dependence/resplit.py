@@ -10,10 +10,14 @@ evaluation records are pooled and dealt again, at random, into sets of the same
 two sizes. The designed split is better than random when nearly every re-split
 is at least as dependent as it is.
 
-Each re-split is a uniformly random subset of ``size`` of the ``n`` pooled
-records: the ``size`` smallest of ``n`` independent uniform keys (one row of
-keys per re-split, ``numpy.argpartition``), drawn in chunks so that at most
-``_MAX_KEYS`` keys are held at once.
+Each re-split's evaluation set is a uniformly random subset of ``size`` of the
+``n`` pooled records. The measures depend on it only through how many
+evaluation records fall in each category (a survey method, a cell of the
+environmental grid), and the category counts of a uniformly random subset
+follow the multivariate hypergeometric distribution of the pooled counts; so
+the re-splits are drawn as such counts
+(``numpy.random.Generator.multivariate_hypergeometric``), at a cost that grows
+with the number of categories, not of records.
 """
 
 from __future__ import annotations
@@ -34,7 +38,6 @@ MIN_NULL_SPLITS = 19
 #: Rule level: the designed split must beat all but this share of re-splits.
 NULL_LEVEL = 0.05
 
-_MAX_KEYS = 4_000_000  # uniform keys held at once (32 MB)
 _TIE = 1e-9  # relative tolerance under which two measures count as equal
 
 
@@ -48,30 +51,34 @@ def check_null_splits(null_splits) -> int:
     return int(null_splits)
 
 
-def random_subsets(rng: np.random.Generator, n: int, size: int, count: int):
-    """Yield index arrays ``(c, size)`` of uniformly random ``size``-subsets of ``range(n)``.
+def resplit_counts(rng: np.random.Generator, counts, size: int, splits: int) -> np.ndarray:
+    """Category counts of the evaluation sets of ``splits`` random re-splits.
 
-    ``count`` subsets in all, in chunks of ``c`` rows. Each row is a subset drawn
-    without replacement, every subset equally likely (the ``size`` smallest of
-    ``n`` independent uniform keys; ties have probability 0).
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+    counts : array_like of int, shape (m,)
+        Pooled records per category (calibration and evaluation together).
+    size : int
+        Evaluation records per re-split.
+    splits : int
+
+    Returns
+    -------
+    ndarray of int, shape (splits, m)
+        Row ``b``: evaluation records per category in re-split ``b``; the
+        calibration set holds ``counts - row``.
 
     Examples
     --------
-    >>> rng = np.random.default_rng(0)
-    >>> rows = np.vstack(list(random_subsets(rng, 10, 3, 5)))
-    >>> rows.shape, bool((np.sort(rows, axis=1)[:, 1:] > np.sort(rows, axis=1)[:, :-1]).all())
-    ((5, 3), True)
+    >>> draws = resplit_counts(np.random.default_rng(0), [5, 0, 3], 4, 6)
+    >>> draws.shape, bool((draws.sum(axis=1) == 4).all()), bool((draws[:, 1] == 0).all())
+    ((6, 3), True, True)
     """
-    if not 0 <= size <= n:
-        raise InputError(f"size={size} must lie between 0 and n={n}.")
-    chunk = max(1, _MAX_KEYS // max(n, 1))
-    for start in range(0, count, chunk):
-        c = min(chunk, count - start)
-        if size == 0:
-            yield np.zeros((c, 0), dtype=np.intp)
-            continue
-        keys = rng.random((c, n))
-        yield np.argpartition(keys, size - 1, axis=1)[:, :size]
+    counts = np.asarray(counts, dtype=np.int64)
+    if not 0 <= size <= counts.sum():
+        raise InputError(f"size={size} must lie between 0 and the {int(counts.sum())} pooled records.")
+    return rng.multivariate_hypergeometric(counts, int(size), size=int(splits))
 
 
 @dataclass(frozen=True, eq=False)
@@ -161,18 +168,15 @@ def shared_group_resplit(codes, evaluation, null_splits: int = NULL_SPLITS, seed
     rng = np.random.default_rng(seed)
     known = codes >= 0
     m = int(codes.max()) + 1 if known.any() else 1
-    code = np.where(known, codes, m)  # unknown -> an extra slot that is never counted
-    total = np.bincount(code, minlength=m + 1)[:m]
+    code = np.where(known, codes, m)  # unknown -> an extra category that is never counted
+    total = np.bincount(code, minlength=m + 1)
 
-    def shares(idx: np.ndarray) -> np.ndarray:
-        c = idx.shape[0]
-        rows = np.repeat(np.arange(c), idx.shape[1])
-        ev_counts = np.bincount(rows * (m + 1) + code[idx].ravel(), minlength=c * (m + 1)).reshape(c, m + 1)[:, :m]
-        in_cal = (total[None, :] - ev_counts) > 0
-        n_known = ev_counts.sum(axis=1)
+    def shares(ev_counts: np.ndarray) -> np.ndarray:
+        in_cal = (total[None, :m] - ev_counts[:, :m]) > 0
+        n_known = ev_counts[:, :m].sum(axis=1)
         with np.errstate(invalid="ignore", divide="ignore"):
-            return np.where(n_known > 0, (ev_counts * in_cal).sum(axis=1) / n_known, np.nan)
+            return np.where(n_known > 0, (ev_counts[:, :m] * in_cal).sum(axis=1) / n_known, np.nan)
 
-    observed = float(shares(np.flatnonzero(ev)[None, :])[0])
-    null = np.concatenate([shares(idx) for idx in random_subsets(rng, ev.size, int(ev.sum()), null_splits)])
+    observed = float(shares(np.bincount(code[ev], minlength=m + 1)[None, :])[0])
+    null = shares(resplit_counts(rng, total, int(ev.sum()), null_splits))
     return NullComparison(observed, null)

@@ -4,26 +4,50 @@ import math
 
 import numpy as np
 import pytest
-from scipy.stats import norm
+from scipy.stats import hypergeom, norm
 from sklearn.decomposition import PCA
 
 from splitter.dependence.environment import schoener_d_resplit
-from splitter.dependence.resplit import NullComparison, random_subsets, shared_group_resplit
+from splitter.dependence.resplit import NullComparison, resplit_counts, shared_group_resplit
 from splitter.errors import InputError
 
 
-def test_random_subsets_are_uniform():
-    rng = np.random.default_rng(0)
-    rows = np.vstack(list(random_subsets(rng, 12, 4, 6000)))
-    assert rows.shape == (6000, 4)
-    assert all(len(set(r)) == 4 for r in rows[:200])  # without replacement
-    freq = np.bincount(rows.ravel(), minlength=12) / 6000
-    # reference: analytic, each of n records is in a uniformly random size-k subset with
-    # probability k / n = 1/3; binomial standard error sqrt(p (1 - p) / 6000) = 0.0061
-    np.testing.assert_allclose(freq, 1 / 3, atol=4 * 0.0061)
-    pairs = np.mean([(0 in r) and (1 in r) for r in rows])
-    # reference: analytic, a given pair is in the subset with probability C(10, 2) / C(12, 4) = 1/11
-    assert pairs == pytest.approx(1 / 11, abs=4 * math.sqrt(1 / 11 * 10 / 11 / 6000))
+def test_resplit_counts_are_those_of_random_subsets():
+    counts = np.array([30, 5, 0, 65])
+    draws = resplit_counts(np.random.default_rng(0), counts, 20, 20000)
+    assert (draws.sum(axis=1) == 20).all() and (draws <= counts).all()
+    # reference: scipy.stats.hypergeom, the count of a category in a uniformly random 20-subset of
+    # 100 records (mean and variance; Monte Carlo standard errors of 20000 draws, four of them)
+    assert (draws[:, 2] == 0).all()  # an empty category stays empty
+    for j, c in enumerate(counts):
+        if c == 0:
+            continue
+        h = hypergeom(100, c, 20)
+        assert draws[:, j].mean() == pytest.approx(h.mean(), abs=4 * math.sqrt(h.var() / 20000) + 1e-12)
+        assert draws[:, j].var() == pytest.approx(h.var(), rel=0.05, abs=1e-12)  # 4 x sqrt(2 / 20000) = 0.04
+    # The same counts as re-splitting records one by one (numpy permutations, a different path).
+    labels = np.repeat(np.arange(4), counts)
+    rng = np.random.default_rng(1)
+    by_hand = np.array([np.bincount(rng.permutation(labels)[:20], minlength=4) for _ in range(4000)])
+    np.testing.assert_allclose(by_hand.mean(axis=0), draws.mean(axis=0), atol=4 * math.sqrt(4.0 / 4000))
+
+
+def test_shared_method_null_matches_record_by_record_resplits():
+    rng = np.random.default_rng(3)
+    codes = rng.choice([0, 1, 2, 3, 4, -1], size=60, p=[0.5, 0.3, 0.1, 0.04, 0.03, 0.03])
+    ev = np.zeros(60, bool)
+    ev[:15] = True
+    res = shared_group_resplit(codes, ev, null_splits=4999, seed=2)
+    # reference: the share computed record by record over numpy permutations of the same records
+    shares = []
+    for _ in range(4000):
+        e = rng.permutation(ev)
+        known = codes[e][codes[e] >= 0]
+        shares.append(np.isin(known, codes[~e][codes[~e] >= 0]).mean())
+    shares = np.array(shares)
+    se = math.sqrt(shares.var() / 4000 + res.null.var() / 4999)
+    assert res.null.mean() == pytest.approx(shares.mean(), abs=4 * se)
+    assert res.statistic == pytest.approx(np.isin(codes[:15][codes[:15] >= 0], codes[15:][codes[15:] >= 0]).mean())
 
 
 def test_null_comparison_counts_ties_as_dependent():
