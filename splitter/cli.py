@@ -357,18 +357,20 @@ def range_command(
 
 def audit_table(result) -> Table:
     t = Table(title=f"residual dependence per fold: {result.verdict}", title_justify="left")
-    cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D", "D null share", "outside env.",
-            "shared method", "method null share", "verdict", "why")
+    cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D (null share)", "outside env.",
+            "shared method (null share)", "verdict", "why")
     for c in cols:
         t.add_column(c, justify="left" if c in ("fold", "verdict", "why") else "right")
     f = result.to_frame()
     num = lambda v, d=2: "-" if v is None or v != v else f"{v:.{d}f}"
+    with_null = lambda v, share: num(v) if share != share else f"{num(v)} ({num(share)})"
     for i, r in enumerate(f.itertuples()):
+        why = ", ".join(result.fired(i)) or (result.notes[i] if r.verdict == "insufficient" else "")
         t.add_row(str(r.fold), str(r.n_evaluation), num(r.nn_median_km, 1), num(r.share_within_range), num(r.wasserstein_km, 1),
-                  num(r.schoener_d), num(r.schoener_d_null_share), num(r.share_outside_envelope), num(r.shared_method_share),
-                  num(r.shared_method_null_share), r.verdict, ", ".join(result.fired(i)) or (result.notes[i] if r.verdict == "insufficient" else ""))
-    t.caption = ("null share: share of random re-splits of the fold's records at least as dependent as the split; "
-                 "the split is better than random when it is at least the threshold")
+                  with_null(r.schoener_d, r.schoener_d_null_share), num(r.share_outside_envelope),
+                  with_null(r.shared_method_share, r.shared_method_null_share), r.verdict, why)
+    t.caption = ("null share: share of random re-splits of the fold's records at least as dependent as the split "
+                 "(better than random when at least the rule's threshold)")
     return t
 
 

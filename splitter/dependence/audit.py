@@ -79,27 +79,24 @@ NULL_SHARE = 1.0 - NULL_LEVEL
 
 def rule_table(null_splits: int = NULL_SPLITS) -> list[dict]:
     """``{name, rule, threshold}`` of every rule; ``rule`` is its one-line statement."""
-    resplit = (f"{null_splits} random re-splits of the fold's records into sets of the same sizes (seeded)")
+    resplit = f"{null_splits} random re-splits of the fold's records (same sizes, seeded)"
     return [
         {
             "name": "distance",
-            "rule": "dependent when more than the threshold share of evaluation records lie closer than the "
-            "autocorrelation range to a calibration record (physical threshold; common practice: blocks larger "
-            "than the range)",
+            "rule": "dependent when more than the threshold share of evaluation records lie within the "
+            "autocorrelation range of a calibration record (a physical threshold)",
             "threshold": DISTANCE_SHARE,
         },
         {
             "name": "environment",
-            "rule": "dependent when fewer than the threshold share of " + resplit + " have a Schoener's D "
-            "(calibration vs evaluation, first two principal components) at least as high as the split's "
-            "(it separates environments no better than chance); applied when no autocorrelation range is given",
+            "rule": f"used when no range is given: dependent when fewer than the threshold share of {resplit} "
+            "have a Schoener's D at least as high (environments separated no better than chance)",
             "threshold": NULL_SHARE,
         },
         {
             "name": "collection method",
-            "rule": "dependent when fewer than the threshold share of " + resplit + " share survey methods/sources "
-            "between calibration and evaluation at least as much as the split (share of evaluation records "
-            "whose method occurs in calibration; ties count as at least as much)",
+            "rule": f"dependent when fewer than the threshold share of {resplit} share survey methods between "
+            "calibration and evaluation at least as much (ties count as at least as much)",
             "threshold": NULL_SHARE,
         },
     ]
