@@ -38,8 +38,8 @@ report prints it):
     method/source also occurs among the fold's calibration records, against
     the same re-splits; fires when fewer than 95 % of them share at least as
     much. Records collected the same way share detection and sampling biases;
-    the rule asks whether the split lets them be shared more than chance
-    would. Ties count as at least as dependent, so a split whose sharing no
+    the rule asks whether the split keeps methods apart better than chance.
+    Ties count as at least as dependent, so a split whose sharing no
     re-split could lower (two methods mixed over the whole region: every
     fold, whatever its records, holds both) is not blamed for it, and a
     holdout by method (share 0) never fires. Applied only when groups are
