@@ -170,4 +170,6 @@ def estimate_range_from_records(records, *, covariates=(), response: bool = Fals
     crs = equal_area_crs(pts) if pts.crs.is_geographic else pts.crs
     x, y = planar_km(pts, crs)
     est = fit_ranges(x, y, {n: v[idx] for n, v in values.items()}, n_lags=n_lags, max_lag_km=max_lag_km)
-    return replace(est, notes=tuple(notes))
+    where = (f"semivariograms over {idx.size} records' own locations"
+             + (" (presence-absence response as an indicator)" if response else ""))
+    return replace(est, notes=tuple(notes), summary_rule=f"{est.summary_rule}; {where}")
