@@ -134,3 +134,19 @@ def test_shared_group_resplit_bad_input():
         schoener_d_resplit(np.ones((10, 2)), np.r_[np.ones(5, bool), np.zeros(5, bool)], null_splits=19)
     with pytest.raises(InputError):
         schoener_d_resplit(np.random.default_rng(0).normal(size=(10, 2)), np.r_[np.ones(2, bool), np.zeros(8, bool)])
+
+
+def test_one_covariate_and_missing_values():
+    rng = np.random.default_rng(0)
+    x = rng.normal(size=500)
+    res = schoener_d_resplit(x, x > 1.0, null_splits=19)
+    # reference: analytic, the upper tail of a normal cut at 1 sd shares little density with the rest
+    # (both densities smoothed by a kernel, so not 0); every random set of its size overlaps more
+    assert res.statistic < 0.5 and res.share == 1.0
+    x2 = np.column_stack([x, np.where(rng.random(500) < 0.1, np.nan, rng.normal(size=500))])
+    keep = np.isfinite(x2).all(axis=1)
+    with_nan = schoener_d_resplit(x2, x > 0.5, null_splits=19, seed=3)
+    complete = schoener_d_resplit(x2[keep], (x > 0.5)[keep], null_splits=19, seed=3)
+    # reference: the same records without the rows that miss a covariate
+    assert with_nan.statistic == complete.statistic
+    np.testing.assert_array_equal(with_nan.null, complete.null)
