@@ -155,10 +155,10 @@ def shared_group_resplit(codes, evaluation, null_splits: int = NULL_SPLITS, seed
 
     Examples
     --------
-    >>> codes = np.array([0, 0, 1, 1, 0, 1])
-    >>> res = shared_group_resplit(codes, [False, False, False, True, True, True], null_splits=19)
-    >>> res.statistic, res.share   # both groups on both sides, whatever the split
-    (1.0, 1.0)
+    >>> codes = np.tile([0, 1], 20)            # two methods, 20 records each
+    >>> res = shared_group_resplit(codes, np.arange(40) < 10, null_splits=19)
+    >>> res.statistic, res.share, res.degenerate   # 10 evaluation records never hold all 20 of a method
+    (1.0, 1.0, True)
     """
     codes = np.asarray(codes)
     ev = np.asarray(evaluation, dtype=bool)
