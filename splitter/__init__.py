@@ -23,7 +23,7 @@ from splitter.geo import Points
 from splitter.io.foldtable import read_fold_table, write_design
 from splitter.io.records import Records, read_records
 from splitter.partition import FoldAssignment
-from splitter.rangefinder import estimate_range_from_rasters as estimate_range
+from splitter.rangefinder import estimate_range
 
 __all__ = [
     "design", "add_background", "audit", "evaluate", "estimate_range", "build_appendix", "run_demo",

@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from splitter.dependence.audit import AuditResult, audit_split
+from splitter.dependence.resplit import NULL_SPLITS
 from splitter.errors import InputError
 from splitter.partition.assignment import FoldAssignment
 
@@ -24,6 +25,7 @@ def audit(
     seed: int = 0,
     fold_names: dict | None = None,
     min_evaluation: int = 5,
+    null_splits: int = NULL_SPLITS,
 ) -> tuple[AuditResult, dict]:
     """Measure how independent each fold's evaluation presences are.
 
@@ -32,7 +34,9 @@ def audit(
     range comes from ``range_km``, from ``range_from`` (a ``splitter range``
     output folder), or is estimated from the ``env`` rasters. Prediction
     locations, for the Wasserstein-1 comparison, are a seeded sample over the
-    rasters' valid cells (or the ``region`` polygon).
+    rasters' valid cells (or the ``region`` polygon). The environment and
+    collection-method rules compare each fold with ``null_splits`` random
+    re-splits of its presences (seeded with ``seed``).
 
     Returns
     -------
@@ -109,7 +113,9 @@ def audit(
         recs.points, cal, ev, fold_labels=labels, env=env_matrix, env_names=env_names,
         env_reference=env_reference, groups=groups, range_km=range_km,
         prediction_points=prediction_points, min_evaluation=min_evaluation,
+        null_splits=null_splits, seed=seed,
     )
+    context["null_splits"] = int(null_splits)
     return result, context
 
 

@@ -299,20 +299,49 @@ def evaluate(
 
 @guarded
 def range_command(
-    env: List[Path] = typer.Option(..., "--env", help="Covariate GeoTIFF (repeatable)."),
-    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file limiting the sample."),
-    sample: int = typer.Option(2000, "--sample", help="Cells sampled (by area) for the variograms."),
-    seed: int = typer.Option(0, "--seed", help="Seed for the cell sample."),
+    records: Optional[Path] = typer.Argument(None, help="Records table whose own columns give the variograms (instead of --env rasters)."),
+    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", help="Numeric covariate column of RECORDS (repeatable)."),
+    response: bool = typer.Option(False, "--response", help="Also the indicator variogram of RECORDS' presence/absence (0/1) response."),
+    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file limiting the raster cell sample."),
+    sample: int = typer.Option(2000, "--sample", help="Cells (or records) sampled for the variograms."),
+    x: Optional[str] = X_OPTION,
+    y: Optional[str] = Y_OPTION,
+    crs: Optional[str] = CRS_OPTION,
+    id_column: Optional[str] = ID_OPTION,
+    kind_column: Optional[str] = KIND_OPTION,
+    seed: int = typer.Option(0, "--seed", help="Seed for the cell or record sample."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),
 ):
-    """Estimate the covariates' autocorrelation range and suggest a block size."""
+    """Estimate the autocorrelation range (from rasters or the records' own columns) and suggest a block size."""
     from splitter.io.results import write_range
-    from splitter.rangefinder import estimate_range_from_rasters
+    from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records
 
+    if records is None and (covariate_column or response):
+        raise InputError("--covariate-column and --response read a records table: give RECORDS before the options.")
+    if records is not None and env:
+        raise InputError("give --env rasters or a RECORDS table with --covariate-column/--response, not both.")
+    if records is None and not env:
+        raise InputError("give --env RASTER (repeatable), or a RECORDS table with --covariate-column COL or --response.")
+    if records is not None and not (covariate_column or response):
+        raise InputError(f"{records}: name its covariates with --covariate-column COL (repeatable) or use --response.")
+    if records is not None and not 50 <= sample <= 10_000:
+        raise InputError(f"--sample {sample}: give a number of records between 50 and 10000.")
+    if records is None and sample < 50:
+        raise InputError(f"--sample {sample}: a variogram needs at least 50 cells (2000 is a good default).")
     with progress() as bar:
-        bar.add_task("sampling cells and fitting variograms", total=None)
-        est = estimate_range_from_rasters(env, sample=sample, seed=seed, region=region)
-        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, "env": [str(p) for p in env], "command": command_line()})
+        if records is None:
+            bar.add_task("sampling cells and fitting variograms", total=None)
+            est = estimate_range_from_rasters(env, sample=sample, seed=seed, region=region)
+            source = {"env": [str(p) for p in env]}
+        else:
+            from splitter.io.records import read_records
+
+            bar.add_task("reading records and fitting variograms", total=None)
+            recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+            est = estimate_range_from_records(recs, covariates=covariate_column, response=response, sample=sample, seed=seed)
+            source = {"records": str(records), "covariate_columns": list(covariate_column), "response": bool(response)}
+        paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, **source, "command": command_line()})
     t = Table(title="autocorrelation range per covariate", title_justify="left")
     for c in ("covariate", "model", "range km", "sill", "nugget", "r2", "chosen"):
         t.add_column(c, justify="left" if c in ("covariate", "model") else "right")
@@ -320,26 +349,28 @@ def range_command(
         t.add_row(r.covariate, r.model, f"{r.range_km:.1f}", f"{r.sill:.3g}", f"{r.nugget:.3g}", f"{r.r2:.3f}", "yes" if r.chosen else "")
     out.print(t)
     out.print(f"suggested block size: {est.suggested_block_km:.1f} km ({est.summary_rule})")
+    for n in est.notes:
+        out.print(f"note: {n}")
     for role, p in paths.items():
         out.print(f"{role}: {p}")
 
 
-def _rule_names(reasons) -> str:
-    """'distance: 99% ...; collection method: ...' -> 'distance, collection method'."""
-    if not reasons or reasons != reasons:
-        return ""
-    return ", ".join(part.split(":")[0].strip() for part in str(reasons).split(";") if part.strip())
-
-
 def audit_table(result) -> Table:
     t = Table(title=f"residual dependence per fold: {result.verdict}", title_justify="left")
-    for c in ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D", "outside env.", "shared method", "verdict", "why"):
+    cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D (null share)", "outside env.",
+            "shared method (null share)", "verdict", "why")
+    for c in cols:
         t.add_column(c, justify="left" if c in ("fold", "verdict", "why") else "right")
     f = result.to_frame()
     num = lambda v, d=2: "-" if v is None or v != v else f"{v:.{d}f}"
-    for r in f.itertuples():
+    with_null = lambda v, share: num(v) if share != share else f"{num(v)} ({num(share)})"
+    for i, r in enumerate(f.itertuples()):
+        why = ", ".join(result.fired(i)) or (result.notes[i] if r.verdict == "insufficient" else "")
         t.add_row(str(r.fold), str(r.n_evaluation), num(r.nn_median_km, 1), num(r.share_within_range), num(r.wasserstein_km, 1),
-                  num(r.schoener_d), num(r.share_outside_envelope), num(r.shared_method_share), r.verdict, _rule_names(r.reasons))
+                  with_null(r.schoener_d, r.schoener_d_null_share), num(r.share_outside_envelope),
+                  with_null(r.shared_method_share, r.shared_method_null_share), r.verdict, why)
+    t.caption = ("null share: share of random re-splits of the fold's records at least as dependent as the split "
+                 "(better than random when at least the rule's threshold)")
     return t
 
 
@@ -358,7 +389,8 @@ def audit(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample."),
+    seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample and the random re-splits."),
+    null_splits: int = typer.Option(199, "--null-splits", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'dependent': exit 1 when any fold is flagged."),
     out_dir: Path = typer.Option(..., "--out", help="Output folder."),
 ):
@@ -369,18 +401,21 @@ def audit(
 
     if fail_on not in (None, "dependent"):
         raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
+    if null_splits < 19:
+        raise InputError(f"--null-splits {null_splits}: give at least 19 random re-splits (199 is the default).")
     _, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
                                            x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
         result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,
-                                    group_column=group_column, region=region, seed=seed, fold_names=names)
+                                    group_column=group_column, region=region, seed=seed, fold_names=names,
+                                    null_splits=null_splits)
         context["command"] = command_line()
         paths = write_audit(result, context, out_dir)
     out.print(audit_table(result))
-    out.print("rules (conventions; a fold is dependent when any applicable rule fires):")
+    out.print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
-        out.print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']})")
+        out.print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")
     rk = context.get("range_km")
     out.print(f"autocorrelation range: {'not given' if rk is None else f'{rk:.1f} km'} ({context.get('range_source') or 'no range: distance rule not applied'})")
     for n in context.get("notes", []):

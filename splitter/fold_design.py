@@ -166,7 +166,7 @@ def design(
         geometry_crs = recs.points.crs if not recs.points.geographic else equal_area_crs(pts)
         x_km, y_km = planar_km(pts, geometry_crs)
         size, size_info = _block_size(block_size, recs, idx, x_km, y_km, is_pres, folds, seed,
-                                      method, env, random_offset, range_sample)
+                                      method, env, random_offset, range_sample, covariates=covariates)
         params.update(size_info)
         params["block_size_km"] = size
         if method == "checkerboard":
@@ -263,17 +263,21 @@ def design(
     return replace(assignment, parameters=params, records=recs, covariates=env_matrix, covariate_names=tuple(env_names))
 
 
-def _block_size(block_size, recs, idx, x_km, y_km, is_pres, folds, seed, method, env, random_offset, range_sample):
+def _block_size(block_size, recs, idx, x_km, y_km, is_pres, folds, seed, method, env, random_offset, range_sample,
+                covariates=()):
     """Resolve the cell size in km, and say how it was chosen."""
     if block_size is None:
         raise InputError(f"--method {method} needs --block-size KM (a number, 'auto' or 'match').")
     text = str(block_size).strip().lower()
     if text == "auto":
-        if not env:
-            raise InputError("--block-size auto needs covariate rasters: give --env RASTER (repeatable).")
-        from splitter.rangefinder import estimate_range_from_rasters
+        if not env and not covariates:
+            raise InputError("--block-size auto needs covariates: give --env RASTER or --covariate-column COL (repeatable).")
+        from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records
 
-        est = estimate_range_from_rasters(env, sample=range_sample, seed=seed)
+        if env:
+            est = estimate_range_from_rasters(env, sample=range_sample, seed=seed)
+        else:  # the records' own covariate columns
+            est = estimate_range_from_records(recs, covariates=covariates, sample=range_sample, seed=seed)
         size = float(est.suggested_block_km)
         return size, {"block_size_rule": "auto", "range_km": size, "range_summary": est.to_dict()}
     if text == "match":

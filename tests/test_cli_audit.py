@@ -51,8 +51,10 @@ def test_random_split_is_dependent_and_blocks_beyond_the_range_are_not(tmp_path,
     assert run("design", recs, "--method", "random", "--folds", 5, "--seed", 1, "--out", tmp_path / "r.csv").exit_code == 0
     res = run("design", recs, "--method", "blocks", "--folds", 5, "--block-size", rng_km, "--buffer", rng_km, "--seed", 1, "--out", tmp_path / "b.csv")
     assert res.exit_code == 0, res.output
-    res_r = run("audit", tmp_path / "r.csv", *env_args(), "--range-from", demo_range, "--out", tmp_path / "ar")
-    res_b = run("audit", tmp_path / "b.csv", *env_args(), "--range-from", demo_range, "--out", tmp_path / "ab")
+    res_r = run("audit", tmp_path / "r.csv", *env_args(), "--range-from", demo_range, "--group-column", "method",
+                "--out", tmp_path / "ar")
+    res_b = run("audit", tmp_path / "b.csv", *env_args(), "--range-from", demo_range, "--group-column", "method",
+                "--out", tmp_path / "ab")
     assert res_r.exit_code == 0 and res_b.exit_code == 0, res_r.output + res_b.output
     ar = pd.read_csv(tmp_path / "ar" / "audit.csv")
     ab = pd.read_csv(tmp_path / "ab" / "audit.csv")
@@ -63,7 +65,19 @@ def test_random_split_is_dependent_and_blocks_beyond_the_range_are_not(tmp_path,
     for col in ("fold", "n_evaluation", "n_calibration", "nn_median_km", "nn_p10_km", "share_within_range", "range_km",
                 "wasserstein_km", "schoener_d", "share_outside_envelope", "shared_method_share", "verdict"):
         assert col in ar.columns
+    for col in ("schoener_d_null_median", "schoener_d_null_share", "shared_method_null_median",
+                "shared_method_null_share"):
+        assert col in ar.columns and ar[col].notna().all()
+    # Both survey methods occur in every fold of both splits, as in any split of these records:
+    # the collection-method rule stays quiet (ties with every re-split are not held against a split).
+    assert (ab.shared_method_share == 1.0).all() and (ab.shared_method_null_share == 1.0).all()
+    assert not ab.reasons.str.contains("collection method").any()
+    assert ar.reasons.str.contains("distance").all()
     assert "distance" in res_r.output and "threshold 0.5" in res_r.output  # the rule is printed
+    assert "199 random re-splits" in res_r.output and "threshold 0.95" in res_r.output
+    doc = json.loads((tmp_path / "ab" / "audit.json").read_text())
+    assert doc["null_splits"] == 199
+    assert [o["rule"] for o in doc["folds"][0]["outcomes"]] == ["distance", "collection method"]
     assert run("audit", tmp_path / "r.csv", "--range-from", demo_range, "--fail-on", "dependent", "--out", tmp_path / "ar2").exit_code == 1
     assert (tmp_path / "ab" / "distance_ecdf.png").exists()
 
@@ -103,6 +117,8 @@ def test_audit_bad_input(tmp_path):
     df.to_csv(src, index=False)
     assert_one_line_error(run("audit", src, "--fold-column", "one", "--out", tmp_path / "a"), "one value")
     assert_one_line_error(run("audit", src, "--role-column", "role", "--out", tmp_path / "a"), "row 4", "holdout")
+    assert_one_line_error(run("audit", src, "--fold-column", "tiny", "--null-splits", 5, "--out", tmp_path / "a"),
+                          "--null-splits 5")
     res = run("audit", src, "--fold-column", "tiny", "--range-km", 20, "--out", tmp_path / "t")
     assert res.exit_code == 0, res.output
     tiny = pd.read_csv(tmp_path / "t" / "audit.csv")
@@ -113,3 +129,46 @@ def test_audit_bad_input(tmp_path):
 
     gpd.GeoDataFrame(geometry=[box(100, -10, 101, -9)], crs=4326).to_file(region)
     assert_one_line_error(run("audit", src, "--fold-column", "tiny", "--region", region, "--out", tmp_path / "r"), "region")
+
+
+def test_range_from_the_records_own_columns_and_auto_blocks(tmp_path):
+    from tests.dependence.test_range_records import RANGE_KM, _survey
+
+    _, df = _survey(tmp_path, seed=3)
+    src = tmp_path / "survey.csv"
+    df.to_csv(src, index=False)
+    rec = ["--x", "easting", "--y", "northing", "--crs", "EPSG:3035"]
+    res = run("range", src, "--covariate-column", "soil", "--response", *rec, "--out", tmp_path / "range")
+    assert res.exit_code == 0, res.output
+    table = pd.read_csv(tmp_path / "range" / "range.csv")
+    assert set(table.covariate) == {"soil", "presence"}
+    doc = json.loads((tmp_path / "range" / "range.json").read_text())
+    soil = next(f for f in doc["fits"] if f["covariate"] == "soil" and f["model"] == "exponential")
+    # reference: the simulated field's 40 km effective range (splitter.synthetic); one field, so a
+    # loose factor: single-field estimates spread 35-62 km over 20 fields of this size (see
+    # tests/dependence/test_range_records.py for the tight check on five fields)
+    assert RANGE_KM / 1.6 < soil["range_km"] < RANGE_KM * 1.6
+    res = run("design", src, "--method", "blocks", "--folds", 4, "--block-size", "auto", "--covariate-column", "soil",
+              *rec, "--out", tmp_path / "folds.csv")
+    assert res.exit_code == 0, res.output
+    side = json.loads((tmp_path / "folds.design.json").read_text())
+    params = side.get("parameters", side)
+    assert params["block_size_rule"] == "auto"
+    # The block size is the records' own range estimate (same records, same seed, same fit).
+    suggested = json.loads((tmp_path / "range" / "range.json").read_text())["suggested_block_km"]
+    single = run("range", src, "--covariate-column", "soil", *rec, "--out", tmp_path / "range_soil")
+    assert single.exit_code == 0, single.output
+    expected = json.loads((tmp_path / "range_soil" / "range.json").read_text())["suggested_block_km"]
+    assert params["block_size_km"] == pytest.approx(expected)
+    assert suggested > 0
+
+
+def test_range_bad_input(tmp_path):
+    src = write_records_csv(tmp_path / "mine.csv", n_presence=80, n_background=0)
+    assert_one_line_error(run("range", "--out", tmp_path / "r"), "--env")
+    assert_one_line_error(run("range", src, "--out", tmp_path / "r"), "--covariate-column")
+    assert_one_line_error(run("range", "--covariate-column", "x", "--out", tmp_path / "r"), "RECORDS")
+    assert_one_line_error(run("range", src, "--covariate-column", "depth", "--out", tmp_path / "r"), "depth")
+    assert_one_line_error(run("range", src, "--response", "--out", tmp_path / "r"), "absences")
+    assert_one_line_error(run("range", src, "--covariate-column", "longitude", "--sample", 10, "--out", tmp_path / "r"),
+                          "--sample 10")

@@ -21,7 +21,7 @@ from splitter.dependence.variogram import (
     Semivariogram,
     VariogramFit,
     empirical_semivariogram,
-    estimate_range,
+    fit_ranges,
     fit_variogram,
 )
 
@@ -39,7 +39,7 @@ __all__ = [
     "covariate_ranges",
     "distance_diagnostics",
     "empirical_semivariogram",
-    "estimate_range",
+    "fit_ranges",
     "fit_variogram",
     "mess",
     "nearest_other_km",

@@ -8,29 +8,48 @@ Each fold gets one verdict:
 * ``dependent`` — at least one rule fires;
 * ``independent`` — every rule that could be applied stays quiet.
 
-Rules (thresholds are conventions, not laws; ``AuditResult.rules`` carries
-them so every report prints them):
+Rules (``AuditResult.rules`` carries each one's one-line statement, so every
+report prints it):
 
-(i) **distance** — share of evaluation records closer than the
-    autocorrelation range to a calibration record > 0.5. Common practice asks
-    for blocks larger than the range, so that evaluation records lie beyond it;
-    when most of them lie within it, most evaluation residuals are correlated
-    with calibration residuals. Applied only when a range is given.
-(ii) **environment** — Schoener's D between calibration and evaluation
-    records > 0.9 *and* fewer than 5 % of evaluation records outside the
-    calibration envelope (MESS < 0). The two sets then sample the same
-    environments and the evaluation tests interpolation only, which says little
-    about transfer. D estimated from kernel densities falls below 1 by sampling
-    noise alone (two random halves of a few hundred records give about
-    0.8–0.95), so 0.9 fires only when the sets are demonstrably alike; requiring
-    no extrapolation as well keeps environmentally blocked folds, whose
-    evaluation records sit at the edge of the calibrated space, out of it.
-    Applied only when covariates are given.
-(iii) **collection method** — share of evaluation records whose survey
-    method/source also occurs among the fold's calibration records > 0.5. Records
-    collected the same way share the same detection and sampling biases, so
-    the model can score well by learning the bias. A holdout by method has
-    share 0 and never fires. Applied only when groups are given.
+(i) **distance** — a physical threshold: the share of evaluation records
+    closer than the autocorrelation range to a calibration record > 0.5.
+    Common practice asks for blocks larger than the range, so that evaluation
+    records lie beyond it; when most of them lie within it, most evaluation
+    residuals are correlated with calibration residuals. Applied only when a
+    range is given.
+(ii) **environment** — Schoener's D between the calibration and evaluation
+    records' densities in environmental space, against random re-splits of the
+    same records (``splitter.dependence.resplit``). Kernel-smoothed D of two
+    random halves of a large sample is near 1 and of small samples well below
+    it, so no fixed level of D separates a designed split from a random one;
+    the fold's own re-splits do. Fires when fewer than 95 % of the re-splits
+    have a D at least as high as the designed split's (the designed split
+    separates environments no better than chance). Applied when covariates are
+    given and no autocorrelation range is: environmental likeness stands in
+    for closeness only when closeness cannot be measured. With a range the
+    distance rule decides, because evaluation records beyond the range of
+    every calibration record are not dependent on them through place however
+    alike their environments (spatial blocks typically sample the same
+    environments as a random split: that makes the evaluation one of
+    interpolation, not a dependent one); D and its null are reported all the
+    same, so a reader can see whether a fold tests transfer to new
+    environments.
+(iii) **collection method** — the share of evaluation records whose survey
+    method/source also occurs among the fold's calibration records, against
+    the same re-splits; fires when fewer than 95 % of them share at least as
+    much. Records collected the same way share detection and sampling biases;
+    the rule asks whether the split keeps methods apart better than chance.
+    Ties count as at least as dependent, so a split whose sharing no
+    re-split could lower (two methods mixed over the whole region: every
+    fold, whatever its records, holds both) is not blamed for it, and a
+    holdout by method (share 0) never fires. Applied only when groups are
+    given.
+
+Level of the re-split rules: when the designed split is itself a random split
+of the fold's records (exchangeable with the re-splits) and the measure has no
+ties, the number of re-splits at least as dependent is uniform on 0..B, so the
+rule calls it independent with probability ``(B + 1 - ceil(0.95 B)) / (B + 1)``
+= 5 % for B = 19, 99 or 199 (the default).
 """
 
 from __future__ import annotations
@@ -41,37 +60,49 @@ import numpy as np
 import pandas as pd
 
 from splitter.dependence.distance import DistanceDiagnostics, _num, check_folds, distance_diagnostics
-from splitter.dependence.environment import covariate_ranges, mess, schoener_d
+from splitter.dependence.environment import covariate_ranges, mess, schoener_d_resplit
+from splitter.dependence.resplit import (
+    NULL_LEVEL,
+    NULL_SPLITS,
+    NullComparison,
+    check_null_splits,
+    shared_group_resplit,
+)
 from splitter.errors import InputError
 from splitter.geo import Points
 
 #: Rule (i): share of evaluation records within the range above which a fold is dependent.
 DISTANCE_SHARE = 0.5
-#: Rule (ii): Schoener's D above which (with little extrapolation) a fold is dependent.
-OVERLAP_D = 0.9
-#: Rule (ii): share of evaluation records outside the calibration envelope below which ...
-OUTSIDE_SHARE = 0.05
-#: Rule (iii): share of evaluation records sharing a method with calibration above which ...
-METHOD_SHARE = 0.5
+#: Rules (ii) and (iii): share of re-splits at least as dependent needed for ``independent``.
+NULL_SHARE = 1.0 - NULL_LEVEL
 
-RULES = (
-    {
-        "name": "distance",
-        "rule": "share of evaluation records closer than the autocorrelation range to a calibration record > threshold",
-        "threshold": DISTANCE_SHARE,
-    },
-    {
-        "name": "environment",
-        "rule": "Schoener's D (calibration vs evaluation, first two principal components) > threshold "
-        f"and share of evaluation records outside the calibration envelope (MESS < 0) < {OUTSIDE_SHARE}",
-        "threshold": OVERLAP_D,
-    },
-    {
-        "name": "collection method",
-        "rule": "share of evaluation records whose survey method/source also occurs in the calibration set > threshold",
-        "threshold": METHOD_SHARE,
-    },
-)
+
+def rule_table(null_splits: int = NULL_SPLITS) -> list[dict]:
+    """``{name, rule, threshold}`` of every rule; ``rule`` is its one-line statement."""
+    resplit = f"{null_splits} random re-splits of the fold's records (same sizes, seeded)"
+    return [
+        {
+            "name": "distance",
+            "rule": "dependent when more than the threshold share of evaluation records lie within the "
+            "autocorrelation range of a calibration record (a physical threshold)",
+            "threshold": DISTANCE_SHARE,
+        },
+        {
+            "name": "environment",
+            "rule": f"used when no range is given: dependent when fewer than the threshold share of {resplit} "
+            "have a Schoener's D at least as high (environments separated no better than chance)",
+            "threshold": NULL_SHARE,
+        },
+        {
+            "name": "collection method",
+            "rule": f"dependent when fewer than the threshold share of {resplit} share survey methods between "
+            "calibration and evaluation at least as much (ties count as at least as much)",
+            "threshold": NULL_SHARE,
+        },
+    ]
+
+
+RULES = tuple(rule_table())
 
 COLUMNS = [
     "fold",
@@ -87,7 +118,72 @@ COLUMNS = [
     "shared_method_share",
     "verdict",
     "reasons",
+    "schoener_d_null_median",
+    "schoener_d_null_share",
+    "shared_method_null_median",
+    "shared_method_null_share",
 ]
+
+
+@dataclass(frozen=True)
+class RuleOutcome:
+    """One rule applied to one fold.
+
+    Attributes
+    ----------
+    rule : str
+        ``distance``, ``environment`` or ``collection method``.
+    measure : str
+        Column of the measured value (``share_within_range``, ``schoener_d``,
+        ``shared_method_share``).
+    value : float
+        The measured value for the designed split.
+    fired : bool
+        True when the rule marks the fold dependent.
+    threshold : float
+        Distance rule: the share of evaluation records within the range above
+        which it fires. Re-split rules: the share of re-splits at least as
+        dependent below which it fires.
+    range_km : float or None
+        Distance rule: the autocorrelation range.
+    null_median, null_share : float or None
+        Re-split rules: the re-splits' median and the share of them at least as
+        dependent as the split.
+    null_splits : int
+        Re-splits the null rests on (0 for the distance rule).
+    degenerate : bool
+        Every re-split gave the split's own value: the measure cannot tell
+        splits of these records apart.
+    """
+
+    rule: str
+    measure: str
+    value: float
+    fired: bool
+    threshold: float
+    range_km: float | None = None
+    null_median: float | None = None
+    null_share: float | None = None
+    null_splits: int = 0
+    degenerate: bool = False
+
+    def describe(self) -> str:
+        """One line, e.g. ``environment: Schoener's D 0.97, 41% of 199 random re-splits at least as high < 95%``."""
+        if self.rule == "distance":
+            rel = ">" if self.fired else "<="
+            return (f"distance: {self.value:.0%} of evaluation records within {self.range_km:g} km "
+                    f"{rel} {self.threshold:.0%}")
+        what = {"schoener_d": f"Schoener's D {self.value:.2f}",
+                "shared_method_share": f"{self.value:.0%} of evaluation records share a method with calibration"}[self.measure]
+        rel = "<" if self.fired else ">="
+        text = (f"{self.rule}: {what}; {self.null_share:.0%} of {self.null_splits} random re-splits at least as "
+                f"dependent (median {self.null_median:.2f}) {rel} {self.threshold:.0%}")
+        if self.degenerate:
+            text += ", every re-split gives the same value"
+        return text
+
+    def to_dict(self) -> dict:
+        return {k: _num(getattr(self, k)) for k in self.__dataclass_fields__}
 
 
 @dataclass(frozen=True, eq=False)
@@ -99,10 +195,15 @@ class AuditResult:
     fold_labels : tuple[str, ...]
     schoener_d, share_outside_envelope, shared_method_share : ndarray
         NaN where not computed.
+    schoener_d_null, shared_method_null : tuple[NullComparison or None, ...]
+        Per fold, the measure against random re-splits of the fold's records.
     verdicts : tuple[str, ...]
         ``independent``, ``dependent`` or ``insufficient`` per fold.
-    reasons : tuple[str, ...]
-        Which rule(s) flagged the fold, with the values, or why it is insufficient.
+    outcomes : tuple[tuple[RuleOutcome, ...], ...]
+        Per fold, every rule that was applied, with its value and threshold or
+        null summary.
+    notes : tuple[str, ...]
+        Per fold, why it is ``insufficient`` ("" otherwise).
     verdict : str
         Overall: ``dependent`` if any fold is, else ``independent`` if any fold
         is, else ``insufficient``.
@@ -113,23 +214,51 @@ class AuditResult:
     ranges : tuple[CovariateRanges or None, ...]
         Per fold covariate extremes of calibration and evaluation records.
     min_evaluation : int
+    null_splits : int
+    seed : int
     """
 
     fold_labels: tuple
     schoener_d: np.ndarray
     share_outside_envelope: np.ndarray
     shared_method_share: np.ndarray
+    schoener_d_null: tuple
+    shared_method_null: tuple
     verdicts: tuple
-    reasons: tuple
+    outcomes: tuple
+    notes: tuple
     verdict: str
     rules: list
     distance: DistanceDiagnostics
     ranges: tuple
     min_evaluation: int
+    null_splits: int
+    seed: int
+
+    def fired(self, i: int) -> tuple:
+        """Names of the rules that flag fold ``i`` (position, not label)."""
+        return tuple(o.rule for o in self.outcomes[i] if o.fired)
+
+    @property
+    def reasons(self) -> tuple:
+        """Per fold, one line: the rules that fired with their values, or why the fold is insufficient."""
+        out = []
+        for verdict, outs, note in zip(self.verdicts, self.outcomes, self.notes):
+            if verdict == "insufficient":
+                out.append(note)
+            elif verdict == "dependent":
+                out.append("; ".join(o.describe() for o in outs if o.fired))
+            else:
+                out.append("no rule fired")
+        return tuple(out)
 
     def to_frame(self) -> pd.DataFrame:
         """One row per fold; columns as in ``COLUMNS``."""
         d = self.distance
+
+        def summary(nulls, attr):
+            return [getattr(c, attr) if c is not None else np.nan for c in nulls]
+
         return pd.DataFrame(
             {
                 "fold": list(self.fold_labels),
@@ -145,6 +274,10 @@ class AuditResult:
                 "shared_method_share": self.shared_method_share,
                 "verdict": list(self.verdicts),
                 "reasons": list(self.reasons),
+                "schoener_d_null_median": summary(self.schoener_d_null, "median"),
+                "schoener_d_null_share": summary(self.schoener_d_null, "share"),
+                "shared_method_null_median": summary(self.shared_method_null, "median"),
+                "shared_method_null_share": summary(self.shared_method_null, "share"),
             },
             columns=COLUMNS,
         )
@@ -152,9 +285,13 @@ class AuditResult:
     def to_dict(self) -> dict:
         """JSON-ready: plain floats/ints/strings, NaN as None."""
         folds = [{k: _num(v) for k, v in row.items()} for row in self.to_frame().to_dict(orient="records")]
+        for row, outs in zip(folds, self.outcomes):
+            row["outcomes"] = [o.to_dict() for o in outs]
         return {
             "verdict": self.verdict,
             "min_evaluation": int(self.min_evaluation),
+            "null_splits": int(self.null_splits),
+            "seed": int(self.seed),
             "rules": [{k: _num(v) for k, v in r.items()} for r in self.rules],
             "range_km": _num(self.distance.range_km),
             "prediction_median_km": _num(self.distance.prediction_median_km),
@@ -186,6 +323,14 @@ def _shared_share(codes: np.ndarray, cal: np.ndarray, ev: np.ndarray) -> float:
     return float(np.isin(ge, gc).mean())
 
 
+def _null_outcome(rule: str, measure: str, comp: NullComparison) -> RuleOutcome:
+    return RuleOutcome(
+        rule=rule, measure=measure, value=float(comp.statistic), fired=not comp.better_than_random(NULL_LEVEL),
+        threshold=NULL_SHARE, null_median=comp.median, null_share=comp.share, null_splits=comp.null_splits,
+        degenerate=comp.degenerate,
+    )
+
+
 def audit_split(
     points: Points,
     calibration,
@@ -198,6 +343,8 @@ def audit_split(
     range_km: float | None = None,
     prediction_points: Points | None = None,
     min_evaluation: int = 5,
+    null_splits: int = NULL_SPLITS,
+    seed: int = 0,
 ) -> AuditResult:
     """Measure residual dependence between the calibration and evaluation sets of each fold.
 
@@ -218,11 +365,17 @@ def audit_split(
     groups : array_like, shape (n,), optional
         Survey method or data source per record (None/NaN/"" = unknown).
     range_km : float, optional
-        Autocorrelation range (e.g. ``estimate_range(...).suggested_block_km``).
+        Autocorrelation range (e.g. ``splitter.estimate_range(...).suggested_block_km``).
     prediction_points : Points, optional
         Sample of prediction locations over the region.
     min_evaluation : int, default 5
         Fewer evaluation records than this makes a fold ``insufficient``.
+    null_splits : int, default 199
+        Random re-splits per fold for the environment and collection-method
+        rules (at least 19).
+    seed : int, default 0
+        Seed of the re-splits (fold ``i`` and rule draw from
+        ``numpy.random.default_rng([seed, i, rule])``).
 
     Returns
     -------
@@ -234,8 +387,8 @@ def audit_split(
     >>> p = Points.lonlat(rng.uniform(0, 1, 200), rng.uniform(0, 1, 200))
     >>> fold = rng.integers(0, 2, 200)
     >>> res = audit_split(p, [fold != 0, fold != 1], [fold == 0, fold == 1], range_km=50.0)
-    >>> res.verdict
-    'dependent'
+    >>> res.verdict, res.fired(0)
+    ('dependent', ('distance',))
     """
     if not isinstance(points, Points):
         raise InputError("points must be a splitter.geo.Points object.")
@@ -249,6 +402,9 @@ def audit_split(
         raise InputError(f"There are {len(fold_labels)} fold labels for {k} folds.")
     if not isinstance(min_evaluation, (int, np.integer)) or min_evaluation < 1:
         raise InputError(f"min_evaluation must be a positive integer, got {min_evaluation!r}.")
+    null_splits = check_null_splits(null_splits)
+    if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise InputError(f"seed must be a non-negative integer, got {seed!r}.")
 
     env_m = None
     if env is not None:
@@ -276,17 +432,24 @@ def audit_split(
     d_stat = np.full(k, np.nan)
     outside = np.full(k, np.nan)
     shared = np.full(k, np.nan)
+    d_null: list = [None] * k
+    m_null: list = [None] * k
     ranges = []
-    verdicts, reasons = [], []
-    for i in range(k):  # loop over folds (a handful), records are vectorised inside
+    verdicts, outcomes, notes = [], [], []
+    for i in range(k):  # loop over folds (a handful), records and re-splits are vectorised inside
         n_ev, n_cal = ev[i].size, cal[i].size
         enough = n_ev >= min_evaluation and n_cal > 0
+        pool = np.concatenate([cal[i], ev[i]])
+        is_ev = np.zeros(pool.size, dtype=bool)
+        is_ev[n_cal:] = True
         if env_m is not None:
             a, b = env_m[cal[i]], env_m[ev[i]]
             ranges.append(covariate_ranges(a, b, env_names) if n_cal and n_ev else None)
             if enough:
                 try:
-                    d_stat[i] = schoener_d(a, b, reference=env_reference).statistic
+                    d_null[i] = schoener_d_resplit(env_m[pool], is_ev, reference=env_reference,
+                                                   null_splits=null_splits, seed=[seed, i, 0])
+                    d_stat[i] = d_null[i].statistic
                 except InputError:
                     pass  # too few complete records or no variation: D stays NaN
                 a_ok = a[np.isfinite(a).all(axis=1)]
@@ -299,41 +462,35 @@ def audit_split(
             ranges.append(None)
         if codes is not None:
             shared[i] = _shared_share(codes, cal[i], ev[i])
+            if enough and np.isfinite(shared[i]):
+                m_null[i] = shared_group_resplit(codes[pool], is_ev, null_splits=null_splits, seed=[seed, i, 1])
 
         if not enough:
             verdicts.append("insufficient")
-            reasons.append(
+            outcomes.append(())
+            notes.append(
                 f"{n_ev} evaluation record(s) < {min_evaluation}" if n_ev < min_evaluation else "no calibration records"
             )
             continue
-        fired, applied = [], 0
+        applied = []
         s = dist.share_within_range[i]
         if np.isfinite(s):
-            applied += 1
-            if s > DISTANCE_SHARE:
-                fired.append(f"distance: {s:.0%} of evaluation records within {range_km:g} km > {DISTANCE_SHARE:.0%}")
-        if np.isfinite(d_stat[i]) and np.isfinite(outside[i]):
-            applied += 1
-            if d_stat[i] > OVERLAP_D and outside[i] < OUTSIDE_SHARE:
-                fired.append(
-                    f"environment: Schoener's D {d_stat[i]:.2f} > {OVERLAP_D} with {outside[i]:.0%} outside the "
-                    f"calibration envelope < {OUTSIDE_SHARE:.0%}"
-                )
-        if np.isfinite(shared[i]):
-            applied += 1
-            if shared[i] > METHOD_SHARE:
-                fired.append(
-                    f"collection method: {shared[i]:.0%} of evaluation records share a method with calibration > {METHOD_SHARE:.0%}"
-                )
-        if fired:
+            applied.append(RuleOutcome(rule="distance", measure="share_within_range", value=float(s),
+                                       fired=bool(s > DISTANCE_SHARE), threshold=DISTANCE_SHARE, range_km=float(range_km)))
+        if d_null[i] is not None and np.isfinite(d_null[i].share) and not np.isfinite(s):
+            applied.append(_null_outcome("environment", "schoener_d", d_null[i]))
+        if m_null[i] is not None and np.isfinite(m_null[i].share):
+            applied.append(_null_outcome("collection method", "shared_method_share", m_null[i]))
+        outcomes.append(tuple(applied))
+        if any(o.fired for o in applied):
             verdicts.append("dependent")
-            reasons.append("; ".join(fired))
+            notes.append("")
         elif applied:
             verdicts.append("independent")
-            reasons.append("no rule fired")
+            notes.append("")
         else:
             verdicts.append("insufficient")
-            reasons.append("no rule could be applied: give a range, covariates or groups")
+            notes.append("no rule could be applied: give a range, covariates or groups")
 
     if "dependent" in verdicts:
         overall = "dependent"
@@ -346,11 +503,16 @@ def audit_split(
         schoener_d=d_stat,
         share_outside_envelope=outside,
         shared_method_share=shared,
+        schoener_d_null=tuple(d_null),
+        shared_method_null=tuple(m_null),
         verdicts=tuple(verdicts),
-        reasons=tuple(reasons),
+        outcomes=tuple(outcomes),
+        notes=tuple(notes),
         verdict=overall,
-        rules=[dict(r) for r in RULES],
+        rules=rule_table(null_splits),
         distance=dist,
         ranges=tuple(ranges),
         min_evaluation=int(min_evaluation),
+        null_splits=null_splits,
+        seed=int(seed),
     )

@@ -181,6 +181,9 @@ class RangeEstimate:
         Median of the chosen effective ranges (see the module docstring).
     summary_rule : str
         One sentence saying how ``suggested_block_km`` was obtained.
+    notes : tuple[str, ...]
+        What the caller decided that a user should know (values left out, a
+        subsample drawn).
     """
 
     semivariograms: dict
@@ -188,6 +191,7 @@ class RangeEstimate:
     best: dict
     suggested_block_km: float
     summary_rule: str = field(default="")
+    notes: tuple = ()
 
     @property
     def covariates(self) -> list[str]:
@@ -217,6 +221,7 @@ class RangeEstimate:
         return {
             "suggested_block_km": _jsonable(self.suggested_block_km),
             "summary_rule": self.summary_rule,
+            "notes": list(self.notes),
             "fits": [dict(f.to_dict(), chosen=self.best[f.covariate] is f) for f in self.fits],
             "semivariograms": {
                 name: {
@@ -412,14 +417,17 @@ def fit_variogram(sv: Semivariogram, model: str = "spherical", covariate: str = 
     )
 
 
-def estimate_range(
+def fit_ranges(
     coords_x_km,
     coords_y_km,
     covariate_values: dict,
     n_lags: int = 15,
     max_lag_km: float | None = None,
 ) -> RangeEstimate:
-    """Autocorrelation range of each covariate and a suggested block size.
+    """Autocorrelation range of each variable sampled at given points, and a suggested block size.
+
+    The array core under ``splitter.estimate_range`` (which samples raster
+    cells or reads records first).
 
     Parameters
     ----------
@@ -440,7 +448,7 @@ def estimate_range(
     --------
     >>> rng = np.random.default_rng(2)
     >>> x, y = rng.uniform(0, 200, (2, 500))
-    >>> est = estimate_range(x, y, {"a": np.sin(x / 20), "b": np.cos(y / 30)})
+    >>> est = fit_ranges(x, y, {"a": np.sin(x / 20), "b": np.cos(y / 30)})
     >>> list(est.to_frame().columns)[:3]
     ['covariate', 'model', 'range_km']
     """

@@ -17,7 +17,7 @@ import numpy as np
 
 sys.path.insert(0, os.path.abspath(os.path.join(os.path.dirname(__file__), "..", "..")))
 
-from splitter.dependence import distance_diagnostics, estimate_range  # noqa: E402
+from splitter.dependence import distance_diagnostics, fit_ranges  # noqa: E402
 from splitter.geo import Points  # noqa: E402
 
 
@@ -57,7 +57,7 @@ def bench_range(cells=10_000_000, sample=2000, seed=0):
     pick = np.random.default_rng(seed + 1).choice(ny * nx, size=sample, replace=False)
     sy, sx = np.divmod(pick, nx)
     values = {name: a[pick].astype(float) for name, a in arrays.items()}
-    est = estimate_range(sx.astype(float), sy.astype(float), values, n_lags=15)
+    est = fit_ranges(sx.astype(float), sy.astype(float), values, n_lags=15)
     t = time.perf_counter() - t0
     print(f"range estimation: 3 covariates x {ny * nx:,} cells, sample {sample}: {t:.2f} s (target < 20 s)")
     print(est.to_frame().round(3).to_string(index=False))

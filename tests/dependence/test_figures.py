@@ -9,7 +9,7 @@ from matplotlib.figure import Figure
 
 from splitter.dependence.distance import distance_diagnostics
 from splitter.dependence.figures import OKABE_ITO, plot_distance_ecdf, plot_variogram
-from splitter.dependence.variogram import estimate_range
+from splitter.dependence.variogram import fit_ranges
 from splitter.errors import InputError
 from splitter.geo import Points
 
@@ -24,7 +24,7 @@ def range_estimate():
         "soil": np.sin((x + y) / 20) + 0.1 * rng.standard_normal(400),
         "slope": rng.standard_normal(400) + x / 50,
     }
-    return estimate_range(x, y, covs, n_lags=10)
+    return fit_ranges(x, y, covs, n_lags=10)
 
 
 def test_variogram_figure(range_estimate):

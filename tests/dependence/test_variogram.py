@@ -11,7 +11,7 @@ from scipy.spatial.distance import cdist, pdist
 from splitter.dependence.variogram import (
     Semivariogram,
     empirical_semivariogram,
-    estimate_range,
+    fit_ranges,
     fit_variogram,
 )
 from splitter.errors import InputError
@@ -123,7 +123,7 @@ def test_exponential_effective_range_is_95_percent_of_partial_sill():
 def test_estimate_range_chooses_and_summarises():
     xy, z = _gaussian_fields("spherical", 25.0, n=900, reps=3, seed=7)
     covs = {"short": z[:, 0], "also_short": z[:, 1], "noise_plus": z[:, 2] + 0.1}
-    est = estimate_range(xy[:, 0], xy[:, 1], covs, n_lags=12)
+    est = fit_ranges(xy[:, 0], xy[:, 1], covs, n_lags=12)
     frame = est.to_frame()
     assert list(frame.columns) == ["covariate", "model", "range_km", "sill", "nugget", "rmse", "r2", "chosen"]
     assert len(frame) == 6  # reference: 3 covariates x 2 models
@@ -154,4 +154,4 @@ def test_bad_input_raises_input_error():
     with pytest.raises(InputError):
         fit_variogram(empirical_semivariogram(x, x, x, n_lags=3), "gaussian")
     with pytest.raises(InputError):
-        estimate_range(x, x, {"a": np.ones(3)})
+        fit_ranges(x, x, {"a": np.ones(3)})
