@@ -202,8 +202,7 @@ def _score_fold(assignment, i, X, model, rule, omission, replicates, seed, split
         raise InputError(f"split {split}, fold {label}: its calibration set needs presences and background or "
                          "absences to fit the model.")
     est = clone(model)
-    rows = np.concatenate([cal_p, cal_o])
-    est.fit(X[rows], np.r_[np.ones(cal_p.size), np.zeros(cal_o.size)])
+    est.fit(X[cal], (kind[cal] == "presence").astype(float))  # rows in table order
     thr = choose_threshold(rule, est.predict_proba(X[cal_p])[:, 1]).value
     nan = float("nan")
     if ev_p.size == 0 or ev_o.size == 0:
