@@ -19,6 +19,7 @@ from splitter.evaluate.combine import (
     summarise_folds,
 )
 from splitter.evaluate.measures import Measures, confusion_measures
+from splitter.evaluate.optimism import OptimismFold, OptimismResult, split_optimism
 from splitter.evaluate.partial_roc import (
     PartialROCResult,
     ROCCurve,
@@ -35,6 +36,8 @@ __all__ = [
     "FoldSummary",
     "JackknifeResult",
     "Measures",
+    "OptimismFold",
+    "OptimismResult",
     "PartialROCResult",
     "ROCCurve",
     "SuitabilitySurface",
@@ -54,5 +57,6 @@ __all__ = [
     "partial_roc",
     "predict_suitability",
     "roc_curve_area",
+    "split_optimism",
     "summarise_folds",
 ]

@@ -81,3 +81,14 @@ def write_audit(result, context: dict, out_dir) -> dict:
     if context.get("range_estimate") is not None:
         paths["range"] = write_range(context["range_estimate"], out_dir / "range")["json"]
     return paths
+
+
+def write_optimism(result, out_dir, extra: dict | None = None) -> dict:
+    """optimism.csv (per fold and split, the means and the difference row) and optimism.json."""
+    out_dir = Path(out_dir)
+    paths = {"table": write_csv(result.to_frame(), out_dir / "optimism.csv")}
+    doc = result.to_dict()
+    if extra:
+        doc.update(extra)
+    paths["json"] = write_json(doc, out_dir / "optimism.json")
+    return paths

@@ -676,6 +676,12 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         src = w.table(df, "comparison")
         blocks.append(_display_comparison(df, src))
 
+    # 6b. The same flexible model under both splits: what the less separated split claims
+    if len(splits) > 1 and same_records:
+        from splitter.report.optimism import load_optimism, optimism_section
+
+        blocks += optimism_section(load_optimism(run.folder), w.table)
+
     # 7. Reproducibility
     blocks += _reproducibility(run, splits)
 
@@ -727,6 +733,7 @@ def _reproducibility(run: Run, splits) -> list:
         files.append(run.range_path)
     for s in splits:
         files += list(s.files)
+    files += [p for p in (base / "optimism.csv", base / "optimism.json") if p.exists()]
     rows = tuple((f"`{p.relative_to(base).as_posix()}`", sha256_file(p)) for p in files)
     out.append(Table(caption="SHA-256 of the run's files this appendix was built from.",
                      columns=("file", "SHA-256"), rows=rows, css_class="run-files"))

@@ -38,7 +38,7 @@ def built(demo_run, tmp_path_factory):
 
 def expected_files() -> set:
     tables = {f"tables/{s}_{t}.csv" for s in SPLITS for t in ("records", "fold_counts", "audit", "evaluation")}
-    tables |= {"tables/range_fits.csv", "tables/audit_rules.csv", "tables/comparison.csv"}
+    tables |= {"tables/range_fits.csv", "tables/audit_rules.csv", "tables/comparison.csv", "tables/optimism.csv"}
     stems = [f"map_{s}" for s in SPLITS] + [f"distance_ecdf_{s}" for s in SPLITS] + [f"roc_{s}" for s in SPLITS]
     stems += ["variogram", "auc_ratio_intervals"]
     figures = {f"figures/{s}.{ext}" for s in stems for ext in ("png", "svg")}
@@ -327,3 +327,34 @@ def test_missing_audit_and_evaluation_are_said(run_copy, demo_run):
     assert {p.name for p in app.tables} == {"random_records.csv", "random_fold_counts.csv"}
     # No range in a single random split: said, not invented.
     assert "No autocorrelation range was estimated" in md
+
+
+# --- the same model under both splits ------------------------------------------------------------
+
+def test_optimism_section_prints_the_run_s_figures(demo_run):
+    md = (demo_run / "appendix" / "appendix.md").read_text(encoding="utf-8")
+    section = md.split("\n## The same model under both splits\n", 1)[1].split("\n## ", 1)[0]
+    df = pd.read_csv(demo_run / "optimism.csv", dtype={"fold": str})
+    mean = df[df["fold"] == "mean"].set_index("split")
+    rows = {r[0]: r[1:] for r in (line.strip("| ").split(" | ") for line in section.splitlines()
+                                  if line.startswith("| ") and "---" not in line)}
+    for label, m in (("AUC (full ROC)", "auc"), ("partial AUC ratio", "auc_ratio"), ("omission rate", "omission_rate")):
+        # reference: the values in the run's optimism.csv, rounded to three decimals
+        assert rows[label] == [f"{mean.loc['blocks', m]:.3f}", f"{mean.loc['random', m]:.3f}",
+                               f"{mean.loc['random - blocks', m]:+.3f}"]
+    d = mean.loc["random - blocks", "auc"]
+    word = "higher" if d > 0 else "lower"
+    assert f"split `random` reports an AUC {abs(d):.3f} {word} than split `blocks`" in section
+    assert "HistGradientBoostingClassifier(max_iter=100, early_stopping=False, random_state=1)" in section
+    # The run files the section was built from are hashed with the others.
+    assert "`optimism.csv`" in md.split("## Reproducibility", 1)[1]
+
+
+def test_without_optimism_file_the_section_says_so(run_copy, tmp_path):
+    (run_copy / "optimism.csv").unlink()
+    (run_copy / "optimism.json").unlink()
+    app = build_appendix(run_copy, tmp_path / "appendix")
+    md = app.markdown.read_text(encoding="utf-8")
+    section = md.split("\n## The same model under both splits\n", 1)[1].split("\n## ", 1)[0]
+    assert "No `optimism.csv` in the run folder" in section
+    assert "tables/optimism.csv" not in {p.relative_to(app.markdown.parent).as_posix() for p in app.tables}
