@@ -112,7 +112,7 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
     Returns the paths written, by role.
     """
     out = Path(out)
-    frame = assignment.to_frame()
+    frame = assignment.to_frame(text=True)
     pts = assignment.records.points if assignment.records is not None else None
     if out.suffix.lower() == ".csv" and pts is not None and assignment.records.x_column is None:
         # Vector input written as CSV: carry the coordinates as plain columns.
