@@ -225,7 +225,7 @@ def test_an_unexpected_error_is_one_line_and_exit_3(tmp_path, monkeypatch):
     def boom(*a, **k):
         raise ZeroDivisionError("division by zero")
 
-    monkeypatch.setattr(design_module, "design", boom)
+    monkeypatch.setattr(design_module, "assign_records", boom)
     src = write_records_csv(tmp_path / "r.csv")
     res = run("design", src, "--block-size", 50, "--out", tmp_path / "f.csv")
     assert res.exit_code == 3

@@ -50,12 +50,12 @@ class EnvironmentClusters(FoldRule):
     --------
     >>> import pandas as pd
     >>> pts = pd.DataFrame({"x": range(8), "y": [0] * 8,
-    ...                     "temp": [1, 2, 1, 2, 20, 21, 20, 21]})
+    ...                     "temp": [1, 2, 1, 2, 1, 20, 21, 20]})
     >>> rule = EnvironmentClusters(folds=2, covariates=["temp"])
     >>> rule
     EnvironmentClusters(folds=2, covariates=('temp',))
     >>> rule.assign(pts, crs="EPSG:3035").fold.tolist()
-    [1, 1, 1, 1, 2, 2, 2, 2]
+    [1, 1, 1, 1, 1, 2, 2, 2]
     """
 
     method = "clusters"

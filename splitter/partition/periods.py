@@ -21,7 +21,7 @@ def decimal_years(values, parameter: str = "time_column") -> np.ndarray:
     Examples
     --------
     >>> decimal_years(["2016", "", "2020.5", "2021-07-02"]).round(3).tolist()
-    [2016.0, nan, 2020.5, 2021.5]
+    [2016.0, nan, 2020.5, 2021.499]
     """
     import pandas as pd
 
@@ -59,7 +59,7 @@ def time_windows(times, is_presence, k: int) -> tuple[np.ndarray, np.ndarray]:
     --------
     >>> w, edges = time_windows([2001, 2001, 2002, 2003, 2003, 2004], [True] * 6, 3)
     >>> w.tolist(), edges.tolist()
-    ([1, 1, 2, 2, 2, 3], [2002.0, 2004.0])
+    ([1, 1, 2, 3, 3, 3], [2002.0, 2003.0])
     """
     t = np.asarray(times, float)
     pres = np.asarray(is_presence, bool)
@@ -75,7 +75,7 @@ def time_windows(times, is_presence, k: int) -> tuple[np.ndarray, np.ndarray]:
     edges = []
     lo = 1  # the first window must keep at least one distinct value
     for j, target in enumerate(targets):
-        hi = distinct.size - (k - 1 - j)  # leave a distinct value for every later window
+        hi = distinct.size - (k - 2 - j)  # leave a distinct value for every later window
         cand = np.arange(lo, hi)
         best = cand[np.argmin(np.abs(before[cand] - target))]
         edges.append(distinct[best])
@@ -99,13 +99,13 @@ class Periods(FoldRule):
     --------
     >>> import pandas as pd
     >>> pts = pd.DataFrame({"x": range(6), "y": [0] * 6,
-    ...                     "year": [2001, 2001, 2002, 2003, 2003, 2004]})
+    ...                     "year": [2001, 2001, 2002, 2003, 2004, 2004]})
     >>> rule = Periods(time_column="year", periods=3)
     >>> rule
-    Periods(time_column='year', periods=3)
+    Periods(periods=3)
     >>> a = rule.assign(pts, crs="EPSG:3035")
     >>> a.fold.tolist(), a.parameters.fold_periods
-    ([1, 1, 2, 2, 2, 3], {'1': [2001.0, 2001.0], '2': [2002.0, 2003.0], '3': [2004.0, 2004.0]})
+    ([1, 1, 2, 2, 3, 3], {'1': [2001.0, 2001.0], '2': [2002.0, 2003.0], '3': [2004.0, 2004.0]})
     """
 
     method = "period"
