@@ -25,8 +25,9 @@ def decimal_years(values, parameter: str = "time_column") -> np.ndarray:
     """
     import pandas as pd
 
-    s = pd.Series(np.asarray(values, object)).astype(str).str.strip()
-    blank = s.isin(["", "nan", "NaN", "None", "<NA>", "NaT"])
+    raw = pd.Series(np.asarray(values, object))
+    s = raw.astype(str).str.strip()
+    blank = raw.isna() | s.isna() | s.isin(["", "nan", "NaN", "None", "<NA>", "NaT"])
     num = pd.to_numeric(s.where(~blank), errors="coerce")
     bad = num.isna() & ~blank
     if bad.any():
@@ -125,7 +126,7 @@ class Periods(FoldRule):
         return self.periods
 
     def _folds(self, data: RuleInput) -> RuleFolds:
-        t = decimal_years(data.column(self.time_column, "time_column"))
+        t = decimal_years(data.column(self.time_column, "time_column"), f"time_column={self.time_column!r}")
         window, edges = time_windows(t, data.is_presence, self.periods)
         blank = np.flatnonzero(~np.isfinite(t))
         window[blank] = _deal(blank.size, self.periods, self.seed)
@@ -172,7 +173,7 @@ class HoldoutPeriod(FoldRule):
         self._common(buffer, seed, env, covariates)
 
     def _folds(self, data: RuleInput) -> RuleFolds:
-        t = decimal_years(data.column(self.time_column, "time_column"))
+        t = decimal_years(data.column(self.time_column, "time_column"), f"time_column={self.time_column!r}")
         fold = np.where(t < self._cut, 0, 1).astype(np.int64)
         blank = np.flatnonzero(~np.isfinite(t))
         fold[blank] = _deal(blank.size, 2, self.seed) - 1
@@ -228,7 +229,7 @@ class LaterPeriod(FoldRule):
 
     def _folds(self, data: RuleInput) -> RuleFolds:
         inner = self.rule._folds(data)
-        t = decimal_years(data.column(self.time_column, "time_column"))
+        t = decimal_years(data.column(self.time_column, "time_column"), f"time_column={self.time_column!r}")
         dated = np.isfinite(t)
         later = dated & (t >= self._time._cut)
         earlier = dated & ~later
