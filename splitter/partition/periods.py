@@ -48,8 +48,8 @@ def time_windows(times, is_presence, k: int) -> tuple[np.ndarray, np.ndarray]:
     """Cut times into ``k`` contiguous windows with presence counts as even as possible.
 
     Cuts fall between distinct time values (records of one year share a
-    window): the cut after the j-th window is the first distinct presence time
-    at or beyond the j/k quantile of the presences' ranks.
+    window), placed so the presence counts per window are as even as possible
+    (see ``_even_cuts``).
 
     Returns
     -------
@@ -58,9 +58,9 @@ def time_windows(times, is_presence, k: int) -> tuple[np.ndarray, np.ndarray]:
 
     Examples
     --------
-    >>> w, edges = time_windows([2001, 2001, 2002, 2003, 2003, 2004], [True] * 6, 3)
+    >>> w, edges = time_windows([2001, 2001, 2002, 2002, 2004, 2004, np.nan], [True] * 7, 3)
     >>> w.tolist(), edges.tolist()
-    ([1, 1, 2, 3, 3, 3], [2002.0, 2003.0])
+    ([1, 1, 2, 2, 3, 3, 0], [2002.0, 2004.0])
     """
     t = np.asarray(times, float)
     pres = np.asarray(is_presence, bool)
@@ -72,19 +72,39 @@ def time_windows(times, is_presence, k: int) -> tuple[np.ndarray, np.ndarray]:
                          "use fewer periods.")
     # For each candidate cut (a distinct value), how many presences fall before it.
     before = np.searchsorted(tp, distinct, side="left")
-    targets = tp.size * np.arange(1, k) / k
-    edges = []
-    lo = 1  # the first window must keep at least one distinct value
-    for j, target in enumerate(targets):
-        hi = distinct.size - (k - 2 - j)  # leave a distinct value for every later window
-        cand = np.arange(lo, hi)
-        best = cand[np.argmin(np.abs(before[cand] - target))]
-        edges.append(distinct[best])
-        lo = best + 1
+    edges = _even_cuts(before, tp.size, k)
+    edges = distinct[edges]
     edges = np.asarray(edges, float)
     window = np.zeros(t.size, np.int64)
     window[known] = np.searchsorted(edges, t[known], side="right") + 1
     return window, edges
+
+
+def _even_cuts(before: np.ndarray, n: int, k: int, exhaustive: int = 20_000) -> np.ndarray:
+    """Indices (into the distinct times) where windows 2..k start.
+
+    Every choice is tried when there are few (up to ``exhaustive``), keeping the
+    one with the smallest spread of presence counts (then the smallest sum of
+    squared deviations); otherwise each cut goes to the distinct time nearest
+    the j/k share of presences.
+    """
+    from itertools import combinations
+    from math import comb
+
+    m = before.size
+    if comb(m - 1, k - 1) <= exhaustive:
+        cuts = np.array(list(combinations(range(1, m), k - 1)), np.int64)
+        bounds = np.column_stack([np.zeros(len(cuts), np.int64), before[cuts], np.full(len(cuts), n)])
+        counts = np.diff(bounds, axis=1)
+        score = np.lexsort((((counts - n / k) ** 2).sum(axis=1), counts.max(axis=1) - counts.min(axis=1)))
+        return cuts[score[0]]
+    out, lo = [], 1
+    for j, target in enumerate(n * np.arange(1, k) / k):
+        cand = np.arange(lo, m - (k - 2 - j))  # leave a distinct value for every later window
+        best = int(cand[np.argmin(np.abs(before[cand] - target))])
+        out.append(best)
+        lo = best + 1
+    return np.asarray(out, np.int64)
 
 
 def _deal(n: int, k: int, seed: int) -> np.ndarray:
@@ -245,6 +265,7 @@ class LaterPeriod(FoldRule):
             out = np.flatnonzero((earlier & (home == q)) | (later & (fold >= 1) & (fold != q)))
             rows.append(out)
             folds_.append(np.full(out.size, q, np.int64))
-        measured = {**inner.measured, "time_column": self.time_column, "calibrate_before": self._time._cut}
+        measured = {k: v for k, v in inner.measured.items() if not k.endswith("_imbalance")}  # re-measured on the final folds
+        measured.update(time_column=self.time_column, calibrate_before=self._time._cut)
         return RuleFolds(fold, inner.n_folds, reason=inner.reason, measured=measured, geometry_crs=inner.geometry_crs,
                          gap_rows=np.concatenate(rows).astype(np.int64), gap_folds=np.concatenate(folds_).astype(np.int64))
