@@ -237,6 +237,11 @@ def _print_design(assignment, paths):
         out.print(f"block size: {p['block_size_km']:.4g} km ({p.get('block_size_rule', 'given')})")
     if "presence_imbalance" in p:
         out.print(f"fold imbalance (max-min)/mean: presences {p['presence_imbalance']:.3f}, background {p['background_imbalance']:.3f}")
+    if p.get("fold_periods"):
+        out.print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p["fold_periods"].items() if len(v) == 2))
+    if p.get("calibrate_before") is not None:
+        out.print(f"time: evaluation on records dated from {p['calibrate_before']:g} on, calibration on earlier ones"
+                  + ("" if assignment.method == "holdout-period" else " outside the fold (the rest counts as gap)"))
     if "ladder" in p:
         lad = p["ladder"]
         out.print("block-size ladder (W1 = distance-distribution mismatch, km): " + ", ".join(
