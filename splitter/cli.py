@@ -197,7 +197,7 @@ FLAGS = {
     "method": "--method", "folds": "--folds", "block_size": "--block-size", "buffer": "--buffer", "env": "--env",
     "covariates": "--covariate-column", "group_column": "--group-column", "calibrate_on": "--calibrate-on",
     "evaluate_on": "--evaluate-on", "time_column": "--time-column", "periods": "--periods",
-    "calibrate_before": "--calibrate-before", "seed": "--seed", "count": "--background-count",
+    "calibrate_before": "--calibrate-before", "seed": "--seed", "count": "--background-count", "region": "--region",
 }
 
 

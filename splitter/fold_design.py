@@ -256,7 +256,7 @@ def add_background(records: Records, count: int, *, env=(), region=None, seed: i
     from splitter.io.records import append_points
 
     if count <= 0:
-        raise InputError(f"--background-count {count}: give a positive number.")
+        raise InputError(f"count={count}: give a positive number of background points.")
     if env:
         from splitter.io.rasters import read_region, sample_valid_locations
 
@@ -265,7 +265,7 @@ def add_background(records: Records, count: int, *, env=(), region=None, seed: i
     elif region:
         pts = sample_in_polygon(region, count, seed)
     else:
-        raise InputError("--background-count needs --env RASTER or --region POLYGON to know where to sample.")
+        raise InputError(f"count={count}: give `env` (rasters) or `region` (a polygon file) to say where background is sampled.")
     return append_points(records, pts, "background")
 
 

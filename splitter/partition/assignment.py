@@ -186,8 +186,9 @@ class FoldSplitter:
 
     Examples
     --------
-    >>> from sklearn.model_selection import cross_val_score  # doctest: +SKIP
-    >>> cross_val_score(model, X, y, cv=assignment.as_cv())  # doctest: +SKIP
+    >>> a = FoldAssignment.from_folds(["a", "b", "c", "d"], ["presence"] * 4, [1, 2, 1, -1])
+    >>> [(cal.tolist(), ev.tolist()) for cal, ev in a.as_cv().split(None)]
+    [([1], [0, 2]), ([0, 2], [1])]
     """
 
     def __init__(self, assignment: FoldAssignment):
