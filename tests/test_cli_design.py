@@ -266,6 +266,14 @@ def test_time_splits_from_the_command_line(tmp_path):
               "--out", tmp_path / "st.csv")
     assert res.exit_code == 0, res.output
     assert json.loads((tmp_path / "st.design.json").read_text())["parameters"]["calibrate_before"] == 2012.0
+    from splitter.io.foldtable import read_fold_table
+
+    recs, back, _ = read_fold_table(tmp_path / "st.csv")  # the gaps file carries the time exclusions
+    year = pd.to_numeric(recs.table["year"], errors="coerce").to_numpy()
+    pres = recs.kind == "presence"
+    for i in back.folds:
+        cal, ev = back.calibration(i), back.evaluation(i)
+        assert (year[cal][pres[cal]] < 2012).all() and (year[ev][pres[ev]] >= 2012).all()  # analytic: the cut year
 
 
 def test_time_split_options_get_one_line_errors_naming_the_option(tmp_path):

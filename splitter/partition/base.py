@@ -333,6 +333,9 @@ class FoldRule:
     def _assignment_for(self, X, y, groups):
         from splitter.fold_design import assign_records
 
+        if not (hasattr(X, "columns") or hasattr(X, "points")):
+            raise InputError(f"X: got {type(X).__name__}; give a GeoDataFrame or a DataFrame with coordinate columns "
+                             "(one row per record), so the rule can see where each record is.")
         return assign_records(self, X, labels=y, groups=groups)
 
 

@@ -84,6 +84,8 @@ def test_split_on_lon_lat_columns_uses_y_as_the_kind_and_groups_for_group_rules(
     assert g.get_n_splits(X, y, groups) == 2
     for cal, ev in g.split(X, y, groups):
         assert len(set(groups[ev])) == 1 and groups[ev][0] not in set(groups[cal])
+    with pytest.raises(InputError, match="X: got ndarray"):
+        next(rule.split(X[["longitude", "latitude"]].to_numpy(), y))
 
 
 def write_records_csv_frame():
