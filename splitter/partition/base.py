@@ -24,7 +24,7 @@ from splitter.errors import InputError
 
 # --- settings checks shared by the rules -------------------------------------
 
-def check_folds(folds, minimum: int = 2) -> int:
+def check_fold_count(folds, minimum: int = 2) -> int:
     """An integer fold count of at least ``minimum``."""
     if isinstance(folds, bool) or not isinstance(folds, numbers.Integral):
         if isinstance(folds, numbers.Real) and float(folds).is_integer():

@@ -12,7 +12,7 @@ import numpy as np
 from splitter.errors import InputError
 from splitter.geo import equal_area_crs, planar_km
 from splitter.partition.balance import balance_cells
-from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_folds
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count
 from splitter.partition.grid import cell_keys, hexagon_cells, square_cells
 
 
@@ -72,7 +72,7 @@ class _CellRule(FoldRule):
 
     def __init__(self, folds=5, block_size=None, buffer=0.0, seed=0, random_offset=True, env=(), covariates=(),
                  range_sample=2000):
-        self.folds = check_folds(folds, self._min_folds())
+        self.folds = check_fold_count(folds, self._min_folds())
         self.block_size = check_block_size(block_size, self.method, env)
         self.random_offset = bool(random_offset)
         self.range_sample = int(range_sample)

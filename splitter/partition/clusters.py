@@ -9,7 +9,7 @@ import numpy as np
 from sklearn.cluster import KMeans
 
 from splitter.errors import InputError
-from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_folds
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count
 
 
 def cluster_folds(env: np.ndarray, is_presence: np.ndarray, k: int, seed: int = 0,
@@ -61,7 +61,7 @@ class EnvironmentClusters(FoldRule):
     method = "clusters"
 
     def __init__(self, folds=5, buffer=0.0, seed=0, env=(), covariates=()):
-        self.folds = check_folds(folds)
+        self.folds = check_fold_count(folds)
         self._common(buffer, seed, env, covariates)
         if not self.env and not self.covariates:
             raise InputError("clusters need covariates: give `env` (raster paths) or `covariates` (column names).")

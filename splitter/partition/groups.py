@@ -8,7 +8,7 @@ from __future__ import annotations
 import numpy as np
 
 from splitter.errors import InputError
-from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_folds, names
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count, names
 
 
 def _deal_evenly(n: int, k: int, rng) -> np.ndarray:
@@ -210,7 +210,7 @@ class RandomFolds(FoldRule):
     method = "random"
 
     def __init__(self, folds=5, buffer=0.0, seed=0, env=(), covariates=()):
-        self.folds = check_folds(folds)
+        self.folds = check_fold_count(folds)
         self._common(buffer, seed, env, covariates)
 
     def _folds(self, data: RuleInput) -> RuleFolds:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from splitter.errors import InputError
-from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_folds
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count
 
 
 def decimal_years(values, parameter: str = "time_column") -> np.ndarray:
@@ -136,7 +136,7 @@ class Periods(FoldRule):
             raise InputError("time_column=None: name the column that holds each record's year or date.")
         self.time_column = str(time_column)
         try:
-            self.periods = check_folds(periods)
+            self.periods = check_fold_count(periods)
         except InputError:
             raise InputError(f"periods={periods!r}: need a whole number of at least 2 periods.") from None
         self._common(buffer, seed, env, covariates)
