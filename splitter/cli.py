@@ -231,28 +231,27 @@ def flag_names():
 
 
 def _print_design(assignment, paths):
-    p = assignment.parameters
+    p = assignment.parameters  # a DesignParameters
     out.print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
-    if p.get("block_size_km"):
-        out.print(f"block size: {p['block_size_km']:.4g} km ({p.get('block_size_rule', 'given')})")
-    if "presence_imbalance" in p:
-        out.print(f"fold imbalance (max-min)/mean: presences {p['presence_imbalance']:.3f}, background {p['background_imbalance']:.3f}")
-    if p.get("fold_periods"):
-        out.print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p["fold_periods"].items() if len(v) == 2))
-    if p.get("calibrate_before") is not None:
-        out.print(f"time: evaluation on records dated from {p['calibrate_before']:g} on, calibration on earlier ones"
+    if p.block_size_km:
+        out.print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
+    if p.presence_imbalance is not None:
+        out.print(f"fold imbalance (max-min)/mean: presences {p.presence_imbalance:.3f}, background {p.background_imbalance:.3f}")
+    if p.fold_periods:
+        out.print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
+    if p.calibrate_before is not None:
+        out.print(f"time: evaluation on records dated from {p.calibrate_before:g} on, calibration on earlier ones"
                   + ("" if assignment.method == "holdout-period" else " outside the fold (the rest counts as gap)"))
-    if "ladder" in p:
-        lad = p["ladder"]
+    if p.ladder:
         out.print("block-size ladder (W1 = distance-distribution mismatch, km): " + ", ".join(
-            f"{r['block_km']:.4g} km W1={r['wasserstein_km']:.3g}" for r in lad["rungs"]))
+            f"{r['block_km']:.4g} km W1={r['wasserstein_km']:.3g}" for r in p.ladder["rungs"]))
     dropped = int((assignment.fold < 0).sum())
     if dropped:
         import pandas as pd
 
         reasons = pd.Series(assignment.dropped[assignment.fold < 0]).value_counts().sort_index()
         out.print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
-    for note in p.get("notes", []):
+    for note in p.notes or ():
         out.print(f"note: {note}")
     for role, path in paths.items():
         out.print(f"{role}: {path}")

@@ -196,7 +196,7 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
         sub[why != ""] = why[why != ""]
         dropped[idx] = sub
     n_folds = int(made.n_folds)
-    params = rule.parameters(n_folds).replace(**made.measured)
+    params = rule.design_parameters(n_folds).replace(**made.measured)
 
     kept_now = fold >= 0
     if params.presence_imbalance is None and n_folds >= 2:

@@ -289,7 +289,7 @@ class FoldRule:
     def _folds(self, data: RuleInput) -> RuleFolds:  # pragma: no cover - abstract
         raise NotImplementedError
 
-    def parameters(self, n_folds: int) -> DesignParameters:
+    def design_parameters(self, n_folds: int) -> DesignParameters:
         """The settings part of the design record (measures are added by ``assign``)."""
         return DesignParameters(method=self.method, folds=int(n_folds), seed=self.seed, buffer_km=self.buffer, rule=self)
 

@@ -244,8 +244,8 @@ class LaterPeriod(FoldRule):
     def folds(self):
         return getattr(self.rule, "folds", None)
 
-    def parameters(self, n_folds: int):
-        return self.rule.parameters(n_folds).replace(rule=self)
+    def design_parameters(self, n_folds: int):
+        return self.rule.design_parameters(n_folds).replace(rule=self)
 
     def _folds(self, data: RuleInput) -> RuleFolds:
         inner = self.rule._folds(data)
