@@ -76,6 +76,9 @@ def rule_for(method: str, **settings) -> FoldRule:
     rule = cls(**kw)
     later = settings.get("calibrate_before")
     if later is not None and "calibrate_before" not in accepted:
+        if cls.one_way or method in ("period", "leave-one-out"):
+            raise InputError(f"calibrate_before={later!r}: {method} cannot take a time cut; combine it with blocks, "
+                             "hexagons, checkerboard, clusters, groups or random, or use holdout-period.")
         rule = LaterPeriod(rule, time_column=settings.get("time_column", "year"), calibrate_before=later)
     return rule
 

@@ -172,6 +172,10 @@ def test_dataframe_and_geodataframe_records_give_the_folds_of_the_file_and_keep_
     g2 = from_df.to_geodataframe()
     assert np.allclose(g2.geometry.x, df.longitude) and list(g2["fold"]) == list(from_df.to_frame()["fold"])
     assert len(df) == len(pd.read_csv(src))  # the DataFrame given is not modified
+    shifted = df.set_axis(df.index + 100)  # any index: rows are taken by position
+    assert np.array_equal(splitter.design(shifted, method="blocks", folds=4, block_size=50, seed=2).fold, from_df.fold)
+    with pytest.raises(InputError, match="calibrate_before=2015: leave-one-out"):
+        splitter.design(df, method="leave-one-out", calibrate_before=2015)
     with pytest.raises(InputError, match="records"):
         splitter.design(np.zeros((3, 2)), method="random")
 
