@@ -227,3 +227,33 @@ def test_space_and_time_evaluates_the_later_period_inside_held_out_blocks():
         assert not set(blocks[ev]) & set(blocks[cal])  # analytic: a held-out block is not calibrated on
     assert a.parameters.calibrate_before == 2016.0 and a.parameters.block_size_km == 100.0
     assert repr(a.parameters.rule).startswith("LaterPeriod(rule=SpatialBlocks(")
+
+
+# Sidecar `parameters` written by the release before the rule classes (the dict-based design()),
+# copied from its demo outputs (ladder shortened to two rungs): old fold tables must still read.
+OLD_SIDECARS = [
+    {"background_imbalance": 0.015, "block_size_km": 120.0, "block_size_rule": "given", "buffer_km": 120.0,
+     "cell_shape": "square", "folds": 5, "grid_offset_km": [61.4185949640308, 114.05564355911224], "method": "blocks",
+     "occupied_cells": 80, "presence_imbalance": 0.0, "seed": 1},
+    {"background_imbalance": 0.005, "block_size_km": 100.06417720179762, "block_size_rule": "match", "buffer_km": 0.0,
+     "cell_shape": "square", "folds": 5, "grid_offset_km": [51.21500974971845, 95.10736773303395],
+     "ladder": {"chosen_km": 100.06417720179762, "prediction_locations": "2000 locations sampled by area inside the records' convex hull",
+                "rule": "smallest Wasserstein-1 distance between evaluation-to-calibration and prediction-to-record nearest-neighbour distances",
+                "rungs": [{"block_km": 18.616862260456003, "presence_imbalance": 0.0, "wasserstein_km": 17.558906211870003},
+                          {"block_km": 28.34650509264571, "presence_imbalance": 0.0, "wasserstein_km": 13.151389015893582}]},
+     "method": "blocks", "occupied_cells": 114, "presence_imbalance": 0.0, "seed": 1},
+    {"background_imbalance": 0.0, "buffer_km": 0.0, "fold_groups": {"1": "transect", "2": "light-trap"}, "folds": 2,
+     "group_column": "method", "method": "groups", "presence_imbalance": 0.6047, "seed": 1},
+    {"buffer_km": 0.0, "calibrate_on": ["transect"], "evaluate_on": ["light-trap"], "folds": 1, "group_column": "method",
+     "method": "holdout-group", "seed": 1},
+    {"background_imbalance": 1.164, "buffer_km": 0.0, "covariates": ["temperature", "moisture"],
+     "env": ["demo_data/temperature.tif", "demo_data/moisture.tif"], "folds": 4, "method": "clusters",
+     "presence_imbalance": 0.6047, "seed": 1, "standardised_on": "background"},
+]
+
+
+@pytest.mark.parametrize("old", OLD_SIDECARS, ids=lambda d: d["method"] + "-" + str(d.get("block_size_rule", "")))
+def test_sidecars_of_the_previous_release_read_into_design_parameters_and_write_back_unchanged(old):
+    p = DesignParameters.from_dict(old)
+    assert json.dumps(p.to_dict(), sort_keys=True) == json.dumps(old, sort_keys=True)
+    assert p.method == old["method"] and p.folds == old["folds"] and p.get("block_size_km") == old.get("block_size_km")
