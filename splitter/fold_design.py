@@ -102,6 +102,8 @@ def design(
     random_offset: bool = True,
     range_sample: int = 2000,
     crs=None,
+    x: str | None = None,
+    y: str | None = None,
 ) -> FoldAssignment:
     """Make calibration/evaluation folds for occurrence records.
 
@@ -144,6 +146,9 @@ def design(
         With a k-fold method, evaluate each fold on its records from this time
         on and calibrate on earlier records outside it (a space-and-time design).
     seed : int
+    crs, x, y
+        For a DataFrame (or CSV): the coordinates' CRS (default EPSG:4326) and
+        their columns (detected from common spellings when omitted).
 
     Returns
     -------
@@ -160,7 +165,7 @@ def design(
                     group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                     time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed,
                     random_offset=random_offset, range_sample=range_sample)
-    return rule.assign(records, crs=crs)
+    return rule.assign(records, crs=crs, x=x, y=y)
 
 
 def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None,
