@@ -192,7 +192,7 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
     data = RuleInput(
         points=recs.points.take(idx), kind=kinds[idx], table=recs.table, rows=idx,
         covariates=None if env_matrix is None else env_matrix[idx], covariate_names=tuple(env_names),
-        groups=None if groups is None else np.asarray(groups, object)[idx],
+        groups=None if groups is None else np.asarray(groups, object)[idx], records=recs,
     )
     made = rule._folds(data)
     fold = np.full(len(recs), -1, np.int64)

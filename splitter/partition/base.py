@@ -93,6 +93,8 @@ class RuleInput:
     covariate_names : tuple of str
     groups : ndarray or None
         Group labels given to ``split(X, y, groups)``.
+    records : Records or None
+        The whole record set (for block_size='auto' from covariate columns).
     """
 
     points: object
@@ -102,6 +104,7 @@ class RuleInput:
     covariates: np.ndarray | None = None
     covariate_names: tuple = ()
     groups: np.ndarray | None = None
+    records: object = None
 
     @property
     def is_presence(self) -> np.ndarray:

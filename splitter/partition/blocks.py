@@ -73,7 +73,7 @@ class _CellRule(FoldRule):
     def __init__(self, folds=5, block_size=None, buffer=0.0, seed=0, random_offset=True, env=(), covariates=(),
                  range_sample=2000):
         self.folds = check_fold_count(folds, self._min_folds())
-        self.block_size = check_block_size(block_size, self.method, env)
+        self.block_size = check_block_size(block_size, self.method, env, covariates)
         self.random_offset = bool(random_offset)
         self.range_sample = int(range_sample)
         self._common(buffer, seed, env, covariates)
@@ -146,14 +146,14 @@ class Hexagons(_CellRule):
     shape = "hexagon"
 
 
-def check_block_size(block_size, method: str, env) -> float | str:
-    """A positive size in km, 'auto' (needs ``env``) or 'match'."""
+def check_block_size(block_size, method: str, env, covariates=()) -> float | str:
+    """A positive size in km, 'auto' (needs ``env`` or ``covariates``) or 'match'."""
     if block_size is None:
         raise InputError(f"{method} need block_size: give a size in km, 'auto' or 'match'.")
     text = str(block_size).strip().lower()
     if text == "auto":
-        if not env:
-            raise InputError("block_size='auto' needs covariate rasters: give `env` (raster paths).")
+        if not env and not covariates:
+            raise InputError("block_size='auto' needs covariates: give `env` (raster paths) or `covariates` (column names).")
         return "auto"
     if text == "match":
         return "match"
@@ -169,9 +169,13 @@ def check_block_size(block_size, method: str, env) -> float | str:
 def resolve_block_size(rule, data, x_km, y_km) -> tuple[float, dict]:
     """The cell size in km, and how it was chosen."""
     if rule.block_size == "auto":
-        from splitter.rangefinder import estimate_range_from_rasters  # reads the rasters
+        from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records  # reads the rasters
 
-        est = estimate_range_from_rasters(list(rule.env), sample=rule.range_sample, seed=rule.seed)
+        if rule.env:
+            est = estimate_range_from_rasters(list(rule.env), sample=rule.range_sample, seed=rule.seed)
+        else:  # the records' own covariate columns
+            est = estimate_range_from_records(data.records, covariates=list(rule.covariates), sample=rule.range_sample,
+                                              seed=rule.seed)
         size = float(est.suggested_block_km)
         return size, {"block_size_rule": "auto", "range_km": size, "range_summary": est.to_dict()}
     if rule.block_size == "match":

@@ -99,7 +99,7 @@ def write_records_csv_frame():
 @pytest.mark.parametrize("cls,kwargs,words", [
     (splitter.SpatialBlocks, {"block_size": -3}, "block_size=-3"),
     (splitter.SpatialBlocks, {}, "block_size"),
-    (splitter.SpatialBlocks, {"block_size": "auto"}, "env"),
+    (splitter.SpatialBlocks, {"block_size": "auto"}, "covariates"),
     (splitter.SpatialBlocks, {"block_size": 10, "folds": 1}, "folds=1"),
     (splitter.Hexagons, {"block_size": 10, "folds": 2.5}, "folds=2.5"),
     (splitter.Hexagons, {"block_size": 10, "buffer": -1}, "buffer=-1"),
