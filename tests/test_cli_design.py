@@ -32,7 +32,6 @@ def assert_one_line_error(res, *words):
 def test_design_writes_every_row_and_the_sidecar(tmp_path):
     src = write_records_csv(tmp_path / "records.csv", extra_rows=["bad1,,45.1,presence,trap,", "bad2,12.1,145.0,presence,trap,"])
     before = src.read_bytes()
-    (tmp_path / "out").mkdir()  # the folder of a file --out must exist (output_lock)
     res = run("design", src, "--method", "blocks", "--folds", 5, "--block-size", 40, "--buffer", 10, "--seed", 3, "--out", tmp_path / "out" / "folds.csv")
     assert res.exit_code == 0, res.output
     assert src.read_bytes() == before  # inputs are never modified
