@@ -28,7 +28,9 @@ from splitter.rangefinder import estimate_range
 __all__ = [
     "design", "add_background", "audit", "evaluate", "estimate_range", "build_appendix", "run_demo",
     "run_batch", "InputError", "Points", "read_fold_table", "write_design", "Records", "read_records",
-    "FoldAssignment", "__version__",
+    "FoldAssignment", "__version__", *(_RULE_NAMES := (
+        "FoldRule", "SpatialBlocks", "Hexagons", "Checkerboard", "EnvironmentClusters", "Groups", "HoldoutGroup",
+        "Periods", "HoldoutPeriod", "LaterPeriod", "RandomFolds", "LeaveOneOut", "DesignParameters")),
 ]
 
 
@@ -41,6 +43,10 @@ def __getattr__(name):  # heavier pieces load on first use
         from splitter.demo import run_demo
 
         return run_demo
+    if name in _RULE_NAMES:  # split rules: splitter.SpatialBlocks(folds=5, block_size=120)
+        import splitter.partition
+
+        return getattr(splitter.partition, name)
     if name == "run_batch":
         from splitter.batch import run_batch
 

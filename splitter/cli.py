@@ -8,6 +8,7 @@ to do), 3 an unexpected error (a bug; SPLITTER_DEBUG=1 shows the traceback),
 
 from __future__ import annotations
 
+import contextlib
 import functools
 import os
 import sys
@@ -150,7 +151,7 @@ def fold_summary_table(assignment, title: str) -> Table:
 @guarded
 def design(
     records: Path = typer.Argument(..., help="Occurrence records: CSV, GeoPackage or GeoParquet."),
-    method: str = typer.Option("blocks", "--method", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, random or leave-one-out."),
+    method: str = typer.Option("blocks", "--method", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, period, holdout-period, random or leave-one-out."),
     folds: int = typer.Option(5, "--folds", help="Number of folds k."),
     block_size: Optional[str] = typer.Option(None, "--block-size", help="Block/hexagon/checkerboard size in km, 'auto' (autocorrelation range of --env) or 'match'."),
     buffer: float = typer.Option(0.0, "--buffer", help="Buffer radius in km around each fold's evaluation records."),
@@ -159,6 +160,9 @@ def design(
     group_column: Optional[str] = typer.Option(None, "--group-column", help="Survey method / source column for groups and holdout-group."),
     calibrate_on: Optional[str] = typer.Option(None, "--calibrate-on", help="holdout-group: group values to calibrate on (comma-separated)."),
     evaluate_on: Optional[str] = typer.Option(None, "--evaluate-on", help="holdout-group: group values to evaluate on (comma-separated)."),
+    time_column: Optional[str] = typer.Option(None, "--time-column", help="Year or date column for period and holdout-period (default: year)."),
+    periods: Optional[int] = typer.Option(None, "--periods", help="period: number of contiguous time windows (default: --folds)."),
+    calibrate_before: Optional[str] = typer.Option(None, "--calibrate-before", help="holdout-period: calibrate before this year (or date), evaluate from it on; with another method, evaluate each fold on its later records only."),
     background: Optional[Path] = typer.Option(None, "--background", help="A separate file of background points."),
     background_count: Optional[int] = typer.Option(None, "--background-count", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
     region: Optional[Path] = typer.Option(None, "--region", help="Polygon file of the study region (for --background-count)."),
@@ -171,41 +175,83 @@ def design(
     out_path: Path = typer.Option(..., "--out", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
     """Design calibration/evaluation folds before modelling."""
-    from splitter.fold_design import design as run_design
     from splitter.io.foldtable import write_design
 
-    with progress() as bar:
+    with progress() as bar, flag_names():
+        from splitter.fold_design import rule_for
+
+        rule = rule_for(method, folds=folds, block_size=block_size, buffer=buffer, env=env, covariates=covariate_column,
+                        group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
+                        time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed)
         bar.add_task("reading records", total=None)
         recs = load_records(records, x, y, crs, id_column, kind_column, background, background_count, env, region, seed)
         bar.add_task(f"making {method} folds", total=None)
-        assignment = run_design(
-            recs, method=method, folds=folds, block_size=block_size, buffer=buffer, env=env,
-            covariates=covariate_column, group_column=group_column, calibrate_on=calibrate_on,
-            evaluate_on=evaluate_on, seed=seed,
-        )
+        assignment = rule.assign(recs)
         bar.add_task("writing outputs", total=None)
         paths = write_design(assignment, out_path, command=command_line())
     _print_design(assignment, paths)
 
 
+# Python parameter -> command-line option, for the design settings (the one place they meet).
+FLAGS = {
+    "method": "--method", "folds": "--folds", "block_size": "--block-size", "buffer": "--buffer", "env": "--env",
+    "covariates": "--covariate-column", "group_column": "--group-column", "calibrate_on": "--calibrate-on",
+    "evaluate_on": "--evaluate-on", "time_column": "--time-column", "periods": "--periods",
+    "calibrate_before": "--calibrate-before", "seed": "--seed", "count": "--background-count", "region": "--region",
+}
+
+
+def as_flags(message: str) -> str:
+    """``block_size=-3: ...`` -> ``--block-size -3: ...``; `env` or group_column -> the option."""
+    import re
+
+    names = "|".join(sorted(FLAGS, key=len, reverse=True))
+
+    def value(m):
+        v = m.group(2)
+        if len(v) >= 2 and v[0] == v[-1] and v[0] in "'\"":
+            v = v[1:-1]
+        elif v.startswith("[") and v.endswith("]"):
+            v = ",".join(p.strip().strip("'\"") for p in v[1:-1].split(","))
+        return f"{FLAGS[m.group(1)]} {v}"
+
+    message = re.sub(rf"\b({names})=('[^']*'|\"[^\"]*\"|\[[^\]]*\]|[^\s:;,)]+)", value, message)
+    message = re.sub(rf"`({names})`", lambda m: FLAGS[m.group(1)], message)
+    multiword = "|".join(n for n in FLAGS if "_" in n)  # plain words (folds, env) stay words
+    return re.sub(rf"(?<![\w-])({multiword})(?![\w=-])", lambda m: FLAGS[m.group(1)], message)
+
+
+@contextlib.contextmanager
+def flag_names():
+    """Library errors name Python parameters; on the command line they name options."""
+    try:
+        yield
+    except InputError as e:
+        raise InputError(as_flags(str(e))) from None
+
+
 def _print_design(assignment, paths):
-    p = assignment.parameters
+    p = assignment.parameters  # a DesignParameters
     out.print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
-    if p.get("block_size_km"):
-        out.print(f"block size: {p['block_size_km']:.4g} km ({p.get('block_size_rule', 'given')})")
-    if "presence_imbalance" in p:
-        out.print(f"fold imbalance (max-min)/mean: presences {p['presence_imbalance']:.3f}, background {p['background_imbalance']:.3f}")
-    if "ladder" in p:
-        lad = p["ladder"]
+    if p.block_size_km:
+        out.print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
+    if p.presence_imbalance is not None:
+        out.print(f"fold imbalance (max-min)/mean: presences {p.presence_imbalance:.3f}, background {p.background_imbalance:.3f}")
+    if p.fold_periods:
+        out.print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
+    if p.calibrate_before is not None:
+        out.print(f"time: evaluation on records dated from {p.calibrate_before:g} on, calibration on earlier ones"
+                  + ("" if assignment.method == "holdout-period" else " outside the fold (the rest counts as gap)"))
+    if p.ladder:
         out.print("block-size ladder (W1 = distance-distribution mismatch, km): " + ", ".join(
-            f"{r['block_km']:.4g} km W1={r['wasserstein_km']:.3g}" for r in lad["rungs"]))
+            f"{r['block_km']:.4g} km W1={r['wasserstein_km']:.3g}" for r in p.ladder["rungs"]))
     dropped = int((assignment.fold < 0).sum())
     if dropped:
         import pandas as pd
 
         reasons = pd.Series(assignment.dropped[assignment.fold < 0]).value_counts().sort_index()
         out.print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
-    for note in p.get("notes", []):
+    for note in p.notes or ():
         out.print(f"note: {note}")
     for role, path in paths.items():
         out.print(f"{role}: {path}")

@@ -9,41 +9,10 @@ import numpy as np
 
 from splitter import __version__
 from splitter.errors import InputError
-from splitter.geo import Points, equal_area_crs, planar_km
-from splitter.io.records import Records, read_records
-from splitter.partition import (
-    METHODS,
-    FoldAssignment,
-    buffer_gaps,
-    cell_folds,
-    checkerboard_folds,
-    cluster_folds,
-    group_folds,
-    holdout_folds,
-    leave_one_out_folds,
-    random_folds,
-)
-
-SPATIAL = {"blocks", "hexagons", "checkerboard"}
-
-
-def _as_records(records) -> Records:
-    if isinstance(records, Records):
-        return records
-    if isinstance(records, (str, Path)):
-        return read_records(records)
-    raise InputError("records must be a path or a splitter Records object (see splitter.read_records).")
-
-
-def _parse_names(values) -> list[str]:
-    if values is None:
-        return []
-    if isinstance(values, str):
-        values = [values]
-    out = []
-    for v in values:
-        out.extend(s.strip() for s in str(v).split(",") if s.strip())
-    return out
+from splitter.geo import Points, equal_area_crs
+from splitter.io.records import Records, as_records
+from splitter.partition import RULES, FoldAssignment, FoldRule, LaterPeriod, buffer_gaps
+from splitter.partition.base import RuleInput, imbalance
 
 
 def attach_covariates(records: Records, env=(), covariates=()) -> tuple[Records, np.ndarray | None, list[str], list[str]]:
@@ -72,7 +41,7 @@ def attach_covariates(records: Records, env=(), covariates=()) -> tuple[Records,
             names.append(Path(p).stem)
     for c in covariates:
         if c not in records.table.columns:
-            raise InputError(f"--covariate-column {c}: no such column; columns are: {', '.join(map(str, records.table.columns))}.")
+            raise InputError(f"covariates={c!r}: no such column; columns are: {', '.join(map(str, records.table.columns))}.")
         import pandas as pd
 
         cols.append(pd.to_numeric(records.table[c], errors="coerce").to_numpy(float))
@@ -81,6 +50,37 @@ def attach_covariates(records: Records, env=(), covariates=()) -> tuple[Records,
     missing = ~np.isfinite(matrix).all(axis=1)
     records = records.with_dropped(missing, "no-covariate-value")
     return records, matrix, names, list(notes)
+
+
+def rule_for(method: str, **settings) -> FoldRule:
+    """The rule object for a ``design()`` method name, built from the settings it takes.
+
+    Settings a rule does not take are ignored (``block_size`` means nothing to
+    ``random``), as ``design()`` always did. ``calibrate_before`` with a k-fold
+    method makes a space-and-time design (:class:`LaterPeriod`).
+
+    Examples
+    --------
+    >>> rule_for("blocks", folds=5, block_size=120, buffer=120, seed=1, group_column=None)
+    SpatialBlocks(block_size=120.0, buffer=120.0, seed=1)
+    """
+    if method not in RULES:
+        raise InputError(f"method={method!r}: unknown method; choose one of {', '.join(RULES)}.")
+    cls = RULES[method]
+    accepted = set(cls._parameter_names())
+    if settings.get("time_column") is None:
+        settings.pop("time_column", None)
+    if method == "period" and settings.get("periods") is None:
+        settings["periods"] = settings.get("folds")
+    kw = {k: v for k, v in settings.items() if k in accepted}
+    rule = cls(**kw)
+    later = settings.get("calibrate_before")
+    if later is not None and "calibrate_before" not in accepted:
+        if cls.one_way or method in ("period", "leave-one-out"):
+            raise InputError(f"calibrate_before={later!r}: {method} cannot take a time cut; combine it with blocks, "
+                             "hexagons, checkerboard, clusters, groups or random, or use holdout-period.")
+        rule = LaterPeriod(rule, time_column=settings.get("time_column", "year"), calibrate_before=later)
+    return rule
 
 
 def design(
@@ -95,20 +95,31 @@ def design(
     group_column: str | None = None,
     calibrate_on=(),
     evaluate_on=(),
+    time_column: str | None = None,
+    periods: int | None = None,
+    calibrate_before=None,
     seed: int = 0,
     random_offset: bool = True,
     range_sample: int = 2000,
+    crs=None,
+    x: str | None = None,
+    y: str | None = None,
 ) -> FoldAssignment:
     """Make calibration/evaluation folds for occurrence records.
 
+    A small lookup: ``method`` names a rule class (``splitter.partition.RULES``),
+    which is built from the settings it takes and asked to ``assign`` the records.
+
     Parameters
     ----------
-    records : path or Records
+    records : path, DataFrame, GeoDataFrame or Records
         Occurrence records (and background, with a kind column or combined in).
+        A DataFrame's coordinate columns are detected as for CSV (``crs`` gives
+        their CRS, default EPSG:4326); a GeoDataFrame brings its own CRS.
     method : {"blocks", "hexagons", "checkerboard", "clusters", "groups",
-              "holdout-group", "random", "leave-one-out"}
+              "holdout-group", "period", "holdout-period", "random", "leave-one-out"}
     folds : int
-        Number of folds k (ignored by holdout-group and leave-one-out).
+        Number of folds k (ignored by holdout-group, holdout-period and leave-one-out).
     block_size : float, "auto" or "match"
         Cell size in km for blocks, hexagons and checkerboard. "auto" uses the
         autocorrelation range estimated from the ``env`` rasters; "match" picks
@@ -122,11 +133,22 @@ def design(
     covariates : list of str
         Covariate columns of the records table (for ``clusters``).
     group_column : str
-        Survey method / source / observer / period column for ``groups`` and
+        Survey method / source / observer column for ``groups`` and
         ``holdout-group``.
     calibrate_on, evaluate_on : list of str
         Group values for ``holdout-group``.
+    time_column : str
+        Year or date column for ``period`` and ``holdout-period`` (default ``year``).
+    periods : int
+        Number of time windows for ``period`` (default: ``folds``).
+    calibrate_before : year or date
+        ``holdout-period``: calibrate on earlier records, evaluate on the rest.
+        With a k-fold method, evaluate each fold on its records from this time
+        on and calibrate on earlier records outside it (a space-and-time design).
     seed : int
+    crs, x, y
+        For a DataFrame (or CSV): the coordinates' CRS (default EPSG:4326) and
+        their columns (detected from common spellings when omitted).
 
     Returns
     -------
@@ -135,163 +157,102 @@ def design(
     Examples
     --------
     >>> a = design("demo_data/records_with_background.csv", method="blocks",
-    ...            folds=5, block_size=100, buffer=20, seed=1)  # doctest: +SKIP
-    >>> a.counts()  # doctest: +SKIP
+    ...            folds=5, block_size=120, buffer=120, seed=1)
+    >>> a.parameters.block_size_km, a.n_folds, a.counts()["evaluation_presence"].tolist()
+    (120.0, 5, [86, 86, 86, 86, 86])
     """
-    if method not in METHODS:
-        raise InputError(f"--method {method}: unknown method; choose one of {', '.join(METHODS)}.")
-    if method not in ("holdout-group", "leave-one-out") and (folds is None or int(folds) < 2):
-        raise InputError(f"--folds {folds}: need at least 2 folds.")
-    folds = int(folds) if folds is not None else 0
-    buffer = float(buffer or 0.0)
-    if buffer < 0:
-        raise InputError(f"--buffer {buffer}: give a distance in km, 0 or more.")
-    recs = _as_records(records)
-    recs, env_matrix, env_names, notes = attach_covariates(recs, env, covariates)
+    rule = rule_for(method, folds=folds, block_size=block_size, buffer=buffer, env=env, covariates=covariates,
+                    group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
+                    time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed,
+                    random_offset=random_offset, range_sample=range_sample)
+    return rule.assign(records, crs=crs, x=x, y=y)
+
+
+def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None,
+                   labels=None, groups=None) -> FoldAssignment:
+    """The shell around a rule: read the records, sample covariates, ask the rule
+    for folds, apply the buffer, and record how it was done.
+
+    ``labels`` (scikit-learn's ``y``: 1 = presence, 0 = background) give the
+    kinds when the records have no kind column; ``groups`` stand in for a
+    group column.
+    """
+    recs = as_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    if labels is not None:
+        recs = _kinds_from_labels(recs, labels, kind_column)
+    if groups is not None and len(groups) != len(recs):
+        raise InputError(f"groups has {len(groups)} values but the records have {len(recs)} rows.")
+    recs, env_matrix, env_names, notes = attach_covariates(recs, rule.env, rule.covariates)
     notes = list(recs.notes) + notes
 
-    kept = recs.kept
     kinds = recs.kind
-    if not np.any(kept & (kinds == "presence")):
+    if not np.any(recs.kept & (kinds == "presence")):
         raise InputError("no usable presence records; check the kind column and the coordinates.")
-    idx = np.flatnonzero(kept)
-    pts = recs.points.take(idx)
-    is_pres = kinds[idx] == "presence"
+    idx = np.flatnonzero(recs.kept)
+    data = RuleInput(
+        points=recs.points.take(idx), kind=kinds[idx], table=recs.table, rows=idx,
+        covariates=None if env_matrix is None else env_matrix[idx], covariate_names=tuple(env_names),
+        groups=None if groups is None else np.asarray(groups, object)[idx], records=recs,
+    )
+    made = rule._folds(data)
     fold = np.full(len(recs), -1, np.int64)
+    fold[idx] = made.fold
     dropped = recs.dropped.copy()
-    params: dict = {"method": method, "folds": folds, "seed": int(seed), "buffer_km": buffer}
-    geometry_crs = recs.points.crs
-
-    if method in SPATIAL:
-        geometry_crs = recs.points.crs if not recs.points.geographic else equal_area_crs(pts)
-        x_km, y_km = planar_km(pts, geometry_crs)
-        size, size_info = _block_size(block_size, recs, idx, x_km, y_km, is_pres, folds, seed,
-                                      method, env, random_offset, range_sample, covariates=covariates)
-        params.update(size_info)
-        params["block_size_km"] = size
-        if method == "checkerboard":
-            from splitter.partition.grid import square_cells
-
-            off = tuple(float(v) for v in np.random.default_rng(seed).uniform(0, size, 2)) if random_offset else (0.0, 0.0)
-            i, j = square_cells(x_km, y_km, size, off)
-            f = checkerboard_folds(i, j, folds)
-            params["grid_offset_km"] = list(off)
-            for q in range(1, folds + 1):
-                if not np.any(is_pres & (f == q)):
-                    raise InputError(
-                        f"checkerboard fold {q} has no presence records at --block-size {size:g}; use a smaller block size or fewer folds."
-                    )
-        else:
-            shape = "square" if method == "blocks" else "hexagon"
-            cf = cell_folds(x_km, y_km, is_pres, folds, size, seed=seed, shape=shape, random_offset=random_offset)
-            f = cf.fold
-            params.update({"grid_offset_km": list(cf.offset), "occupied_cells": cf.n_cells,
-                           "presence_imbalance": round(cf.imbalance, 4),
-                           "background_imbalance": round(cf.background_imbalance, 4),
-                           "cell_shape": shape})
-        fold[idx] = f
-    elif method == "clusters":
-        if env_matrix is None:
-            raise InputError("--method clusters needs covariates: give --env RASTER (repeatable) or --covariate-column COL.")
-        idx = np.flatnonzero(recs.kept)  # rows without covariate values are dropped now
-        is_pres = kinds[idx] == "presence"
-        ref = env_matrix[idx][~is_pres] if (~is_pres).sum() >= 2 else None
-        fold[idx] = cluster_folds(env_matrix[idx], is_pres, folds, seed=seed, reference=ref)
-        params["covariates"] = env_names
-        params["standardised_on"] = "background" if ref is not None else "all records"
-    elif method in ("groups", "holdout-group"):
-        if not group_column:
-            raise InputError(f"--method {method} needs --group-column COLUMN (e.g. survey method or data source).")
-        if group_column not in recs.table.columns:
-            raise InputError(f"--group-column {group_column}: no such column; columns are: {', '.join(map(str, recs.table.columns))}.")
-        groups = recs.table[group_column].astype(str).to_numpy(object)[idx]
-        params["group_column"] = group_column
-        if method == "groups":
-            f, names = group_folds(groups, is_pres, seed=seed)
-            fold[idx] = f
-            folds = len(names)
-            params["folds"] = folds
-            params["fold_groups"] = {str(i + 1): n for i, n in enumerate(names)}
-        else:
-            cal, ev = _parse_names(calibrate_on), _parse_names(evaluate_on)
-            f, why = holdout_folds(groups, cal, ev, seed=seed)
-            fold[idx] = f
-            sub = dropped[idx]
-            sub[why != ""] = why[why != ""]
-            dropped[idx] = sub
-            folds = 1
-            params.update({"folds": 1, "calibrate_on": cal, "evaluate_on": ev})
-            if not np.any((f == 1) & is_pres):
-                raise InputError("--evaluate-on: the evaluation groups hold no presence records.")
-    elif method == "random":
-        fold[idx] = random_folds(kinds[idx], folds, seed=seed)
-    elif method == "leave-one-out":
-        f = leave_one_out_folds(is_pres)
-        fold[idx] = f
-        folds = int(f.max())
-        params["folds"] = folds
+    if made.reason is not None:
+        sub = dropped[idx]
+        why = np.asarray(made.reason, object)
+        sub[why != ""] = why[why != ""]
+        dropped[idx] = sub
+    n_folds = int(made.n_folds)
+    params = rule.design_parameters(n_folds).replace(**made.measured)
 
     kept_now = fold >= 0
-    if "presence_imbalance" not in params and folds >= 2:
-        # Methods that do not balance (checkerboard, clusters, groups...) still report it.
-        counts = np.bincount(fold[kept_now & (kinds == "presence")], minlength=folds + 1)[1:]
-        bcounts = np.bincount(fold[kept_now & (kinds == "background")], minlength=folds + 1)[1:]
-        spread = lambda c: round(float((c.max() - c.min()) / c.mean()), 4) if c.mean() > 0 else 0.0
-        params["presence_imbalance"] = spread(counts)
-        params["background_imbalance"] = spread(bcounts)
-    rows, gfolds = (np.zeros(0, np.int64), np.zeros(0, np.int64))
-    if buffer > 0:
-        work = np.where(kept_now, fold, -1)
-        rows, gfolds = buffer_gaps(recs.points, work, buffer)
+    if params.presence_imbalance is None and n_folds >= 2:
+        # Rules that do not balance (checkerboard, clusters, groups...) still report it.
+        params = params.replace(
+            presence_imbalance=imbalance(np.bincount(fold[kept_now & (kinds == "presence")], minlength=n_folds + 1)[1:]),
+            background_imbalance=imbalance(np.bincount(fold[kept_now & (kinds == "background")], minlength=n_folds + 1)[1:]),
+        )
+    rows, gfolds = np.zeros(0, np.int64), np.zeros(0, np.int64)
+    if rule.buffer > 0:
+        rows, gfolds = buffer_gaps(recs.points, np.where(kept_now, fold, -1), rule.buffer)
+    if made.gap_rows.size:
+        pairs = np.unique(np.column_stack([np.r_[rows, idx[made.gap_rows]], np.r_[gfolds, made.gap_folds]]), axis=0)
+        rows, gfolds = pairs[:, 0].astype(np.int64), pairs[:, 1].astype(np.int64)
     assignment = FoldAssignment(
-        record_id=recs.record_id, kind=kinds, fold=fold, dropped=dropped, n_folds=int(folds),
-        gap_rows=rows, gap_folds=gfolds, method=method, parameters=params,
+        record_id=recs.record_id, kind=kinds, fold=fold, dropped=dropped, n_folds=n_folds,
+        gap_rows=rows, gap_folds=gfolds, method=rule.method, parameters=params,
     )
     for i in assignment.folds:
-        cal = assignment.calibration(i)
-        if not np.any(kinds[cal] == "presence"):
-            raise InputError(
-                f"--buffer {buffer:g}: fold {i} has no calibration presences left; use a smaller buffer."
-            )
-    params["geometry_crs"] = geometry_crs.to_wkt() if not geometry_crs.to_epsg() else f"EPSG:{geometry_crs.to_epsg()}"
-    params["software"] = f"splitter {__version__}"
-    params["inputs"] = dict(recs.sources)
-    if env:
-        params["env"] = [str(p) for p in env]
-        params["covariates"] = env_names
-    params["notes"] = notes
+        if not np.any(kinds[assignment.calibration(i)] == "presence"):
+            if rule.buffer > 0:
+                raise InputError(f"buffer={rule.buffer:g}: fold {i} has no calibration presences left; use a smaller buffer.")
+            raise InputError(f"fold {i} has no calibration presences; use fewer folds or another design.")
+    geometry_crs = made.geometry_crs if made.geometry_crs is not None else recs.points.crs
+    params = params.replace(
+        geometry_crs=geometry_crs.to_wkt() if not geometry_crs.to_epsg() else f"EPSG:{geometry_crs.to_epsg()}",
+        software=f"splitter {__version__}", inputs=dict(recs.sources), notes=tuple(notes),
+    )
+    if rule.env:
+        params = params.replace(env=tuple(rule.env), covariates=tuple(env_names))
     return replace(assignment, parameters=params, records=recs, covariates=env_matrix, covariate_names=tuple(env_names))
 
 
-def _block_size(block_size, recs, idx, x_km, y_km, is_pres, folds, seed, method, env, random_offset, range_sample,
-                covariates=()):
-    """Resolve the cell size in km, and say how it was chosen."""
-    if block_size is None:
-        raise InputError(f"--method {method} needs --block-size KM (a number, 'auto' or 'match').")
-    text = str(block_size).strip().lower()
-    if text == "auto":
-        if not env and not covariates:
-            raise InputError("--block-size auto needs covariates: give --env RASTER or --covariate-column COL (repeatable).")
-        from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records
-
-        if env:
-            est = estimate_range_from_rasters(env, sample=range_sample, seed=seed)
-        else:  # the records' own covariate columns
-            est = estimate_range_from_records(recs, covariates=covariates, sample=range_sample, seed=seed)
-        size = float(est.suggested_block_km)
-        return size, {"block_size_rule": "auto", "range_km": size, "range_summary": est.to_dict()}
-    if text == "match":
-        from splitter.matching import match_block_size
-
-        ladder = match_block_size(recs, idx, x_km, y_km, is_pres, folds, seed, method, env, random_offset)
-        return ladder.chosen_km, {"block_size_rule": "match", "ladder": ladder.to_dict()}
+def _kinds_from_labels(recs: Records, labels, kind_column) -> Records:
+    """Kinds from scikit-learn's ``y`` when the table has no kind column."""
+    if kind_column is not None or "kind" in recs.table.columns:
+        return recs
+    y = np.asarray(labels)
+    if y.shape[0] != len(recs):
+        raise InputError(f"y has {y.shape[0]} values but X has {len(recs)} rows.")
     try:
-        size = float(text)
-    except ValueError:
-        raise InputError(f"--block-size {block_size}: give a size in km, 'auto' or 'match'.") from None
-    if not size > 0:
-        raise InputError(f"--block-size {block_size}: give a positive size in km.")
-    return size, {"block_size_rule": "given"}
+        values = set(np.unique(y).tolist())
+    except TypeError:  # mixed types: not presence/background labels
+        return recs
+    if not values <= {0, 1, True, False}:
+        return recs  # not presence/background labels: every row stays a presence
+    kind = np.where(y.astype(bool), "presence", "background").astype(object)
+    return replace(recs, kind=kind)
 
 
 def add_background(records: Records, count: int, *, env=(), region=None, seed: int = 0) -> Records:
@@ -303,7 +264,7 @@ def add_background(records: Records, count: int, *, env=(), region=None, seed: i
     from splitter.io.records import append_points
 
     if count <= 0:
-        raise InputError(f"--background-count {count}: give a positive number.")
+        raise InputError(f"count={count}: give a positive number of background points.")
     if env:
         from splitter.io.rasters import read_region, sample_valid_locations
 
@@ -312,7 +273,7 @@ def add_background(records: Records, count: int, *, env=(), region=None, seed: i
     elif region:
         pts = sample_in_polygon(region, count, seed)
     else:
-        raise InputError("--background-count needs --env RASTER or --region POLYGON to know where to sample.")
+        raise InputError(f"count={count}: give `env` (rasters) or `region` (a polygon file) to say where background is sampled.")
     return append_points(records, pts, "background")
 
 

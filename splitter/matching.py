@@ -44,7 +44,7 @@ class BlockLadder:
         }
 
 
-def _prediction_points(recs, idx, env, seed, n=2000) -> tuple[Points, str]:
+def _prediction_points(points: Points, env, seed, n=2000) -> tuple[Points, str]:
     if env:
         from splitter.io.rasters import sample_valid_locations
 
@@ -53,7 +53,7 @@ def _prediction_points(recs, idx, env, seed, n=2000) -> tuple[Points, str]:
 
     from splitter.geo import equal_area_crs, planar_km
 
-    pts = recs.points.take(idx)
+    pts = points
     crs = equal_area_crs(pts) if pts.geographic else pts.crs
     x, y = planar_km(pts, crs)
     hull = shapely.MultiPoint(np.column_stack([x, y])).convex_hull
@@ -67,20 +67,21 @@ def _prediction_points(recs, idx, env, seed, n=2000) -> tuple[Points, str]:
         keep = shapely.contains_xy(hull, cx, cy)
         xs, ys = np.r_[xs, cx[keep]], np.r_[ys, cy[keep]]
     if xs.size == 0:
-        raise InputError("--block-size match: the records span no area; give --env rasters or a block size.")
+        raise InputError("block_size='match': the records span no area; give `env` rasters or a block size in km.")
     factor = crs.axis_info[0].unit_conversion_factor / 1000.0
-    return Points(xs[:n] / factor, ys[:n] / factor, crs).to_crs(recs.points.crs), f"{n} locations sampled by area inside the records' convex hull"
+    return Points(xs[:n] / factor, ys[:n] / factor, crs).to_crs(points.crs), f"{n} locations sampled by area inside the records' convex hull"
 
 
-def match_block_size(recs, idx, x_km, y_km, is_pres, folds, seed, method, env, random_offset) -> BlockLadder:
-    """Try a ladder of block sizes; keep the one that best matches the prediction task."""
-    from splitter.partition.blocks import cell_folds
-    from splitter.partition.checkerboard import checkerboard_folds
-    from splitter.partition.grid import square_cells
+def match_block_size(rule, points: Points, x_km, y_km, is_pres) -> BlockLadder:
+    """Try a ladder of block sizes with ``rule`` (a SpatialBlocks, Hexagons or
+    Checkerboard); keep the one that best matches the prediction task.
 
-    pres_rows = idx[is_pres]
-    pres_pts = recs.points.take(pres_rows)
-    pred_pts, how = _prediction_points(recs, idx, env, seed)
+    ``points`` are the usable records, ``x_km, y_km`` their planar coordinates
+    in km and ``is_pres`` marks the presences.
+    """
+    folds = rule.folds
+    pres_pts = points.take(np.flatnonzero(is_pres))
+    pred_pts, how = _prediction_points(points, rule.env, rule.seed)
     target = NeighbourIndex(pres_pts).nearest(pred_pts)[0]
     # Ladder: from 1/60 of the records' extent to a size that still leaves
     # about two cells per fold, in geometric steps.
@@ -90,22 +91,20 @@ def match_block_size(recs, idx, x_km, y_km, is_pres, folds, seed, method, env, r
     sizes = np.geomspace(lo, hi, RUNGS)
     w = np.full(RUNGS, np.nan)
     imb = np.full(RUNGS, np.nan)
+    # The checkerboard ladder is laid on the unshifted grid (as it always was).
+    fixed = {"offset": (0.0, 0.0)} if rule.method == "checkerboard" else {}
     for r, size in enumerate(sizes):
         try:
-            if method == "checkerboard":
-                i, j = square_cells(x_km, y_km, size)
-                f = checkerboard_folds(i, j, folds)
-                counts = np.bincount(f[is_pres], minlength=folds + 1)[1:]
-                if (counts == 0).any():
-                    continue
-                imb[r] = (counts.max() - counts.min()) / counts.mean()
-            else:
-                cf = cell_folds(x_km, y_km, is_pres, folds, size, seed=seed,
-                                shape="square" if method == "blocks" else "hexagon", random_offset=random_offset)
-                f = cf.fold
-                imb[r] = cf.imbalance
+            f, measured = rule.folds_at(x_km, y_km, is_pres, size, **fixed)
         except InputError:
             continue
+        if "presence_imbalance" in measured:
+            imb[r] = measured["presence_imbalance"]
+        else:
+            counts = np.bincount(f[is_pres], minlength=folds + 1)[1:]
+            if (counts == 0).any():
+                continue
+            imb[r] = (counts.max() - counts.min()) / counts.mean()
         fp = f[is_pres]
         dists = []
         for q in range(1, folds + 1):
@@ -115,6 +114,6 @@ def match_block_size(recs, idx, x_km, y_km, is_pres, folds, seed, method, env, r
         if dists:
             w[r] = wasserstein_distance(np.concatenate(dists), target)
     if not np.isfinite(w).any():
-        raise InputError("--block-size match: no block size on the ladder gave enough occupied cells; give a block size in km.")
+        raise InputError("block_size='match': no block size on the ladder gave enough occupied cells; give a block size in km.")
     best = int(np.nanargmin(w))
     return BlockLadder(sizes, w, imb, float(sizes[best]), how)

@@ -225,9 +225,65 @@ def test_an_unexpected_error_is_one_line_and_exit_3(tmp_path, monkeypatch):
     def boom(*a, **k):
         raise ZeroDivisionError("division by zero")
 
-    monkeypatch.setattr(design_module, "design", boom)
+    monkeypatch.setattr(design_module, "assign_records", boom)
     src = write_records_csv(tmp_path / "r.csv")
     res = run("design", src, "--block-size", 50, "--out", tmp_path / "f.csv")
     assert res.exit_code == 3
     lines = [l for l in res.stderr.strip().splitlines() if l.strip()]
     assert len(lines) == 1 and "ZeroDivisionError" in lines[0] and "Traceback" not in res.stderr
+
+
+def _with_years(tmp_path):
+    import pandas as pd
+
+    src = write_records_csv(tmp_path / "records.csv", n_presence=120, n_background=60)
+    df = pd.read_csv(src, dtype=str, keep_default_na=False)
+    df["year"] = [str(2005 + i % 15) if k == "presence" else "" for i, k in enumerate(df["kind"])]
+    path = tmp_path / "dated.csv"
+    df.to_csv(path, index=False)
+    return path
+
+
+def test_time_splits_from_the_command_line(tmp_path):
+    import pandas as pd
+
+    src = _with_years(tmp_path)
+    res = run("design", src, "--method", "period", "--periods", 3, "--time-column", "year", "--seed", 2, "--out", tmp_path / "p.csv")
+    assert res.exit_code == 0, res.output
+    out = pd.read_csv(tmp_path / "p.csv", keep_default_na=False)
+    pres = out[out.kind == "presence"].astype({"year": int, "fold": int})
+    spans = pres.groupby("fold")["year"].agg(["min", "max"]).sort_index()
+    assert (spans["max"].to_numpy()[:-1] < spans["min"].to_numpy()[1:]).all()  # analytic: contiguous, ordered windows
+    side = json.loads((tmp_path / "p.design.json").read_text())
+    assert side["method"] == "period" and side["parameters"]["time_column"] == "year" and side["n_folds"] == 3
+    assert "time windows: 1: 2005-" in res.output
+    res = run("design", src, "--method", "holdout-period", "--calibrate-before", 2015, "--out", tmp_path / "h.csv")
+    assert res.exit_code == 0, res.output
+    out = pd.read_csv(tmp_path / "h.csv", keep_default_na=False)
+    pres = out[out.kind == "presence"].astype({"year": int, "fold": int})
+    assert (pres.loc[pres.fold == 1, "year"] >= 2015).all() and (pres.loc[pres.fold == 0, "year"] < 2015).all()
+    res = run("design", src, "--method", "blocks", "--folds", 3, "--block-size", 80, "--calibrate-before", 2012,
+              "--out", tmp_path / "st.csv")
+    assert res.exit_code == 0, res.output
+    assert json.loads((tmp_path / "st.design.json").read_text())["parameters"]["calibrate_before"] == 2012.0
+    from splitter.io.foldtable import read_fold_table
+
+    recs, back, _ = read_fold_table(tmp_path / "st.csv")  # the gaps file carries the time exclusions
+    year = pd.to_numeric(recs.table["year"], errors="coerce").to_numpy()
+    pres = recs.kind == "presence"
+    for i in back.folds:
+        cal, ev = back.calibration(i), back.evaluation(i)
+        assert (year[cal][pres[cal]] < 2012).all() and (year[ev][pres[ev]] >= 2012).all()  # analytic: the cut year
+
+
+def test_time_split_options_get_one_line_errors_naming_the_option(tmp_path):
+    src = _with_years(tmp_path)
+    out = tmp_path / "x.csv"
+    assert_one_line_error(run("design", src, "--method", "period", "--periods", 1, "--out", out), "--periods 1")
+    assert_one_line_error(run("design", src, "--method", "period", "--time-column", "when", "--out", out), "--time-column when", "no such column")
+    assert_one_line_error(run("design", src, "--method", "holdout-period", "--out", out), "--calibrate-before")
+    assert_one_line_error(run("design", src, "--method", "holdout-period", "--calibrate-before", "soon", "--out", out), "--calibrate-before soon")
+    assert_one_line_error(run("design", src, "--method", "holdout-period", "--calibrate-before", 2040, "--out", out), "--calibrate-before 2040")
+    assert_one_line_error(run("design", src, "--method", "blocks", "--out", out), "--block-size")
+    assert_one_line_error(run("design", src, "--block-size", -3, "--out", out), "--block-size -3")
+    assert_one_line_error(run("design", src, "--method", "clusters", "--out", out), "--env", "--covariate-column")

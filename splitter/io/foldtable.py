@@ -112,7 +112,7 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
     Returns the paths written, by role.
     """
     out = Path(out)
-    frame = assignment.to_frame()
+    frame = assignment.to_frame(text=True)
     pts = assignment.records.points if assignment.records is not None else None
     if out.suffix.lower() == ".csv" and pts is not None and assignment.records.x_column is None:
         # Vector input written as CSV: carry the coordinates as plain columns.
@@ -123,7 +123,7 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
                 frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
     paths = {"folds": write_table(frame, out, pts)}
     gaps_path = companion(out, ".gaps.csv")
-    if assignment.parameters.get("buffer_km", 0) and assignment.parameters.get("buffer_km") > 0:
+    if (assignment.parameters.get("buffer_km", 0) or 0) > 0 or assignment.gap_rows.size:  # buffer or space-and-time gaps
         with atomic_write(gaps_path, "w") as f:
             assignment.gaps_frame().to_csv(f, index=False, lineterminator="\n")
         paths["gaps"] = gaps_path

@@ -84,11 +84,52 @@ class Records:
         dropped[sel] = reason
         return _replace(self, dropped=dropped)
 
+    def typed_table(self) -> pd.DataFrame:
+        """The table with numeric-looking text columns as numbers (files keep the text)."""
+        return numeric_columns(self.table)
+
     def counts(self) -> dict:
         kept = self.kept
         out = {k: int(np.sum(kept & (self.kind == k))) for k in ("presence", "absence", "background")}
         out["dropped"] = int(np.sum(~kept))
         return out
+
+
+def numeric_columns(table: pd.DataFrame) -> pd.DataFrame:
+    """Text columns whose every non-blank cell is a number, as numbers.
+
+    Integers stay integers (floats when a cell is blank); codes with a leading
+    zero (``007``) stay text.
+
+    Examples
+    --------
+    >>> t = numeric_columns(pd.DataFrame({"a": ["1", "2"], "b": ["1.5", ""], "c": ["007", "8"], "d": ["x", "1"]}))
+    >>> [pd.api.types.is_numeric_dtype(t[c]) for c in t.columns], t["a"].tolist()
+    ([True, True, False, False], [1, 2])
+    """
+    out = table.copy()
+    for c in table.columns:
+        col = table[c]
+        if not (col.dtype == object or pd.api.types.is_string_dtype(col)):
+            continue
+        text = col.astype(str).str.strip()
+        blank = text == ""
+        if blank.all() or text[~blank].str.match(r"^[+-]?0\d").any():
+            continue
+        num = pd.to_numeric(text.where(~blank), errors="coerce")
+        if num[~blank].notna().all() and not text[~blank].str.lower().isin(["nan", "inf", "-inf", "infinity"]).any():
+            out[c] = num
+    return out
+
+
+def as_records(records, *, x=None, y=None, crs=None, id_column=None, kind_column=None) -> Records:
+    """Records from a path, a pandas DataFrame, a GeoDataFrame or Records (returned as is)."""
+    if isinstance(records, Records):
+        return records
+    if isinstance(records, (str, Path, pd.DataFrame)) or hasattr(records, "__fspath__"):
+        return read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    raise InputError(f"records: got {type(records).__name__}; give a path, a pandas DataFrame with coordinate "
+                     "columns, a GeoDataFrame or a splitter Records object.")
 
 
 def _replace(rec: Records, **kw) -> Records:
@@ -154,8 +195,11 @@ def read_records(
 
     Parameters
     ----------
-    path : path-like
-        CSV with coordinate columns, or a GeoPackage, GeoParquet, Shapefile, ...
+    path : path-like, DataFrame or GeoDataFrame
+        CSV with coordinate columns, or a GeoPackage, GeoParquet, Shapefile, ...;
+        from Python also a pandas DataFrame (coordinate columns detected as for
+        CSV, ``crs`` default EPSG:4326) or a GeoDataFrame (its own CRS). A
+        DataFrame's columns keep their types.
     x, y : str, optional
         Coordinate columns of a CSV; detected from common spellings when omitted.
     crs : str, optional
@@ -175,16 +219,27 @@ def read_records(
     >>> recs = read_records("demo_data/records.csv")  # doctest: +SKIP
     >>> recs.counts()["presence"]  # doctest: +SKIP
     """
-    path = Path(path)
-    if not path.exists():
-        raise InputError(f"{path}: no such file; check the path.")
     notes = []
-    suffix = path.suffix.lower()
-    if suffix in VECTOR_SUFFIXES:
-        table, pts, x_col, y_col = _read_vector(path, crs, notes)
+    if isinstance(path, pd.DataFrame):  # from Python: a DataFrame or a GeoDataFrame
+        label, sources = f"records ({type(path).__name__})", {}
+        if hasattr(path, "geometry") and type(path).__name__ == "GeoDataFrame":
+            table, pts, x_col, y_col = _vector_frame(path, label, crs, notes)
+        else:
+            table = path.reset_index(drop=True)
+            if len(table) == 0:
+                raise InputError(f"{label}: the table has no rows; give one row per record.")
+            pts, x_col, y_col = _csv_points(table, label, x, y, crs, notes)
+        path = label
     else:
-        table = _read_csv_table(path)
-        pts, x_col, y_col = _csv_points(table, path, x, y, crs, notes)
+        path = Path(path)
+        if not path.exists():
+            raise InputError(f"{path}: no such file; check the path.")
+        sources = {str(path): sha256_of(path)}
+        if path.suffix.lower() in VECTOR_SUFFIXES:
+            table, pts, x_col, y_col = _read_vector(path, crs, notes)
+        else:
+            table = _read_csv_table(path)
+            pts, x_col, y_col = _csv_points(table, path, x, y, crs, notes)
 
     n = len(table)
     dropped = np.full(n, "", dtype=object)
@@ -213,7 +268,7 @@ def read_records(
     kind = _kinds(table, path, kind_column, default_kind, dropped)
     return Records(
         table=table, points=pts, record_id=record_id, kind=kind, dropped=dropped,
-        x_column=x_col, y_column=y_col, sources={str(path): sha256_of(path)}, notes=tuple(notes),
+        x_column=x_col, y_column=y_col, sources=sources, notes=tuple(notes),
     )
 
 
@@ -240,6 +295,8 @@ def _csv_points(table, path, x, y, crs, notes):
 
 def _numbers(column: pd.Series) -> np.ndarray:
     """Coordinates as floats; a decimal comma (``45,12``) is read as a point."""
+    if pd.api.types.is_numeric_dtype(column) and not pd.api.types.is_bool_dtype(column):
+        return column.to_numpy(float)
     text = column.astype(str).str.strip()
     if not text.str.contains(".", regex=False).any():
         text = text.str.replace(",", ".", regex=False)
@@ -256,6 +313,12 @@ def _read_vector(path, crs, notes):
             gdf = gpd.read_file(path)
     except Exception as e:  # pyogrio/arrow raise many types
         raise InputError(f"{path}: cannot be read as a vector file ({str(e).splitlines()[0]}).") from None
+    return _vector_frame(gdf, path, crs, notes)
+
+
+def _vector_frame(gdf, path, crs, notes):
+    name = getattr(path, "name", path)
+    gdf = gdf.reset_index(drop=True)
     if len(gdf) == 0:
         raise InputError(f"{path}: the layer has no features; give one point per record.")
     geom = gdf.geometry
@@ -268,14 +331,14 @@ def _read_vector(path, crs, notes):
     if crs is not None:
         crs_obj = pyproj.CRS.from_user_input(crs)
         if file_crs is not None and pyproj.CRS.from_user_input(file_crs) != crs_obj:
-            notes.append(f"{path.name}: --crs {crs} overrides the file's CRS.")
+            notes.append(f"{name}: --crs {crs} overrides the file's CRS.")
     elif file_crs is not None:
         crs_obj = pyproj.CRS.from_user_input(file_crs)
     else:
         ok = np.isfinite(xs) & np.isfinite(ys)
         if ok.any() and np.all(np.abs(xs[ok]) <= 180) and np.all(np.abs(ys[ok]) <= 90):
             crs_obj = WGS84
-            notes.append(f"{path.name}: the file has no CRS; coordinates look like lon/lat, so EPSG:4326 is assumed.")
+            notes.append(f"{name}: the file has no CRS; coordinates look like lon/lat, so EPSG:4326 is assumed.")
         else:
             raise InputError(f"{path}: the file has no CRS and its coordinates are projected; give the CRS with --crs (e.g. --crs EPSG:3035).")
     table = pd.DataFrame(gdf)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -30,8 +31,9 @@ class FoldAssignment:
         Row ``gap_rows[m]`` is left out of fold ``gap_folds[m]``'s calibration set
         because it lies within the buffer of that fold's evaluation records.
     method : str
-    parameters : dict
-        Everything needed to say how the folds were made (JSON-ready).
+    parameters : DesignParameters or dict
+        How the folds were made: the rule's settings and what the design
+        measured (a dict for a fold table read without its sidecar).
 
     Examples
     --------
@@ -48,7 +50,7 @@ class FoldAssignment:
     gap_rows: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     gap_folds: np.ndarray = field(default_factory=lambda: np.zeros(0, np.int64))
     method: str = "given"
-    parameters: dict = field(default_factory=dict)
+    parameters: Mapping = field(default_factory=dict)
     records: object = field(default=None, repr=False, compare=False)
     covariates: np.ndarray | None = field(default=None, repr=False, compare=False)
     covariate_names: tuple = ()
@@ -91,11 +93,14 @@ class FoldAssignment:
         if not 1 <= int(i) <= self.n_folds:
             raise InputError(f"fold {i} does not exist; folds are 1..{self.n_folds}.")
 
-    def to_frame(self) -> pd.DataFrame:
+    def to_frame(self, text: bool = False) -> pd.DataFrame:
         """The fold table: the input's rows and columns plus record_id, kind, fold, dropped.
 
-        ``fold`` is a nullable integer (<NA> = dropped). Without the input table
-        (an assignment built from bare arrays) only the four added columns are given.
+        ``fold`` is a nullable integer (<NA> = dropped). Columns of a CSV whose
+        every cell is a number come back as numbers; ``text=True`` keeps the
+        cells exactly as the file wrote them (what the fold-table writer uses).
+        Without the input table (an assignment built from bare arrays) only the
+        four added columns are given.
         """
         fold = pd.array(np.where(self.fold < 0, 0, self.fold), dtype="Int64")
         fold[self.fold < 0] = pd.NA
@@ -107,7 +112,8 @@ class FoldAssignment:
         })
         if self.records is None:
             return added
-        table = self.records.table.reset_index(drop=True).copy()
+        source = self.records.table if text or not hasattr(self.records, "typed_table") else self.records.typed_table()
+        table = source.reset_index(drop=True).copy()
         if "geometry" in table.columns:
             table = table.drop(columns="geometry")
         for c in added.columns:
@@ -118,6 +124,32 @@ class FoldAssignment:
                     table = table.rename(columns={c: f"{c}_input"})
             table[c] = added[c].to_numpy() if c != "fold" else added[c]
         return table
+
+    def to_geodataframe(self):
+        """The fold table (as :meth:`to_frame`) with point geometry in the records' CRS.
+
+        Rows without coordinates get an empty geometry.
+
+        Examples
+        --------
+        >>> import pandas as pd, splitter
+        >>> df = pd.DataFrame({"lon": [10.0, 10.1, 11.0, 11.1], "lat": [45.0, 45.1, 46.0, 46.1]})
+        >>> g = splitter.RandomFolds(folds=2, seed=0).assign(df).to_geodataframe()
+        >>> g.crs.to_epsg(), g.geometry.x.tolist()
+        (4326, [10.0, 10.1, 11.0, 11.1])
+        """
+        import geopandas as gpd
+
+        if self.records is None:
+            raise InputError("this fold assignment carries no coordinates (built from bare arrays); design it from records.")
+        pts = self.records.points
+        ok = np.isfinite(pts.x) & np.isfinite(pts.y)
+        geom = gpd.points_from_xy(np.where(ok, pts.x, 0.0), np.where(ok, pts.y, 0.0))
+        geom[~ok] = None
+        frame = self.to_frame()
+        if "geometry" in frame.columns:
+            frame = frame.rename(columns={"geometry": "geometry_input"})
+        return gpd.GeoDataFrame(frame, geometry=geom, crs=pts.crs)
 
     def gaps_frame(self) -> pd.DataFrame:
         """One row per (record, fold) left out of that fold's calibration set."""
@@ -154,8 +186,9 @@ class FoldSplitter:
 
     Examples
     --------
-    >>> from sklearn.model_selection import cross_val_score  # doctest: +SKIP
-    >>> cross_val_score(model, X, y, cv=assignment.as_cv())  # doctest: +SKIP
+    >>> a = FoldAssignment.from_folds(["a", "b", "c", "d"], ["presence"] * 4, [1, 2, 1, -1])
+    >>> [(cal.tolist(), ev.tolist()) for cal, ev in a.as_cv().split(None)]
+    [([1], [0, 2]), ([0, 2], [1])]
     """
 
     def __init__(self, assignment: FoldAssignment):

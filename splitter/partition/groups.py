@@ -1,10 +1,14 @@
-"""Folds from a grouping column: survey method, data source, observer or period."""
+"""Folds from a grouping column (survey method, data source, observer), random folds and leave-one-out.
+
+The functions take arrays; ``Groups``, ``HoldoutGroup``, ``RandomFolds`` and ``LeaveOneOut`` are the rules.
+"""
 
 from __future__ import annotations
 
 import numpy as np
 
 from splitter.errors import InputError
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count, names
 
 
 def _deal_evenly(n: int, k: int, rng) -> np.ndarray:
@@ -61,14 +65,14 @@ def holdout_folds(groups: np.ndarray, calibrate_on: list[str], evaluate_on: list
     cal = set(calibrate_on)
     ev = set(evaluate_on)
     if not cal or not ev:
-        raise InputError("holdout-group needs --calibrate-on and --evaluate-on (group values, comma-separated).")
+        raise InputError("holdout-group needs calibrate_on and evaluate_on (group values).")
     if cal & ev:
-        raise InputError(f"--calibrate-on and --evaluate-on share {', '.join(sorted(cal & ev))}; a group cannot be on both sides.")
+        raise InputError(f"calibrate_on and evaluate_on share {', '.join(sorted(cal & ev))}; a group cannot be on both sides.")
     present = set(g.tolist())
-    for opt, vals in (("--calibrate-on", cal), ("--evaluate-on", ev)):
+    for opt, vals in (("calibrate_on", cal), ("evaluate_on", ev)):
         missing = sorted(vals - present)
         if missing:
-            raise InputError(f"{opt}: no record has group value {', '.join(missing)}; values are: {', '.join(sorted(present - {''}))}.")
+            raise InputError(f"{opt}={sorted(vals)!r}: no record has group value {', '.join(missing)}; values are: {', '.join(sorted(present - {''}))}.")
     fold = np.full(g.size, -1, np.int64)
     fold[np.isin(g, list(cal))] = 0
     fold[np.isin(g, list(ev))] = 1
@@ -107,3 +111,132 @@ def leave_one_out_folds(is_presence: np.ndarray, max_folds: int = 1000) -> np.nd
     fold = np.zeros(pres.size, np.int64)
     fold[pres] = np.arange(1, n + 1)
     return fold
+
+
+def _group_values(rule, data: RuleInput) -> np.ndarray:
+    if rule.group_column is None:
+        if data.groups is None:
+            raise InputError(f"{rule.method} needs group_column (e.g. the survey method or data source column).")
+        return np.asarray(data.groups, object).astype(str)
+    return data.column(rule.group_column, "group_column").astype(str)
+
+
+class Groups(FoldRule):
+    """Leave-one-group-out: one fold per value of ``group_column`` (survey
+    method, data source, observer). Records with no group value (background)
+    are dealt to the folds at random (seeded). From scikit-learn, ``groups``
+    given to ``split`` stands in for the column.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> pts = pd.DataFrame({"x": range(5), "y": [0] * 5,
+    ...                     "method": ["trap", "trap", "net", "trap", "net"]})
+    >>> rule = Groups(group_column="method")
+    >>> rule
+    Groups(group_column='method')
+    >>> a = rule.assign(pts, crs="EPSG:3035")
+    >>> a.fold.tolist(), a.parameters.fold_groups
+    ([1, 1, 2, 1, 2], {'1': 'trap', '2': 'net'})
+    """
+
+    method = "groups"
+
+    def __init__(self, group_column=None, buffer=0.0, seed=0, env=(), covariates=()):
+        self.group_column = None if group_column is None else str(group_column)
+        self._common(buffer, seed, env, covariates)
+
+    def _folds(self, data: RuleInput) -> RuleFolds:
+        fold, labels = group_folds(_group_values(self, data), data.is_presence, seed=self.seed)
+        measured = {"fold_groups": {str(i + 1): n for i, n in enumerate(labels)}}
+        if self.group_column is not None:
+            measured["group_column"] = self.group_column
+        return RuleFolds(fold, len(labels), measured=measured)
+
+
+class HoldoutGroup(FoldRule):
+    """One-way design: calibrate on the groups ``calibrate_on``, evaluate on
+    ``evaluate_on`` (values of ``group_column``). Records in neither are
+    dropped (``not-in-holdout-groups``); records with no group value are split
+    evenly at random between the two sides (seeded).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> pts = pd.DataFrame({"x": range(5), "y": [0] * 5,
+    ...                     "source": ["museum", "survey", "survey", "museum", "atlas"]})
+    >>> a = HoldoutGroup("source", calibrate_on="museum", evaluate_on="survey").assign(pts, crs="EPSG:3035")
+    >>> a.fold.tolist(), a.dropped.tolist()
+    ([0, 1, 1, 0, -1], ['', '', '', '', 'not-in-holdout-groups'])
+    """
+
+    method = "holdout-group"
+    one_way = True
+
+    def __init__(self, group_column=None, calibrate_on=(), evaluate_on=(), buffer=0.0, seed=0, env=(), covariates=()):
+        self.group_column = None if group_column is None else str(group_column)
+        self.calibrate_on = names(calibrate_on, "calibrate_on")
+        self.evaluate_on = names(evaluate_on, "evaluate_on")
+        if not self.calibrate_on or not self.evaluate_on:
+            raise InputError("holdout-group needs calibrate_on and evaluate_on (group values, comma-separated).")
+        both = sorted(set(self.calibrate_on) & set(self.evaluate_on))
+        if both:
+            raise InputError(f"calibrate_on and evaluate_on share {', '.join(both)}; a group cannot be on both sides.")
+        self._common(buffer, seed, env, covariates)
+
+    def _folds(self, data: RuleInput) -> RuleFolds:
+        fold, why = holdout_folds(_group_values(self, data), list(self.calibrate_on), list(self.evaluate_on), seed=self.seed)
+        if not np.any((fold == 1) & data.is_presence):
+            raise InputError(f"evaluate_on={list(self.evaluate_on)!r}: the evaluation groups hold no presence records.")
+        measured = {"calibrate_on": self.calibrate_on, "evaluate_on": self.evaluate_on}
+        if self.group_column is not None:
+            measured["group_column"] = self.group_column
+        return RuleFolds(fold, 1, reason=why, measured=measured)
+
+
+class RandomFolds(FoldRule):
+    """Plain k-fold: records dealt at random, each kind separately so counts are
+    even. The dependent baseline a spatial design is compared against.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> pts = pd.DataFrame({"x": range(6), "y": [0] * 6})
+    >>> a = RandomFolds(folds=3, seed=1).assign(pts, crs="EPSG:3035")
+    >>> sorted(a.fold.tolist())
+    [1, 1, 2, 2, 3, 3]
+    """
+
+    method = "random"
+
+    def __init__(self, folds=5, buffer=0.0, seed=0, env=(), covariates=()):
+        self.folds = check_fold_count(folds)
+        self._common(buffer, seed, env, covariates)
+
+    def _folds(self, data: RuleInput) -> RuleFolds:
+        return RuleFolds(random_folds(data.kind, self.folds, seed=self.seed), self.folds)
+
+
+class LeaveOneOut(FoldRule):
+    """Each presence is its own fold; everything else is calibration only. With
+    a ``buffer`` this is spatial leave-one-out. Meant for small samples.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> pts = pd.DataFrame({"x": [0, 10e3, 20e3, 5e3], "y": [0] * 4,  # metres
+    ...                     "kind": ["presence", "presence", "presence", "background"]})
+    >>> a = LeaveOneOut(buffer=6).assign(pts, crs="EPSG:3035")
+    >>> a.fold.tolist(), a.gaps(1).tolist()
+    ([1, 2, 3, 0], [3])
+    """
+
+    method = "leave-one-out"
+
+    def __init__(self, buffer=0.0, seed=0, env=(), covariates=(), max_folds=1000):
+        self.max_folds = int(max_folds)
+        self._common(buffer, seed, env, covariates)
+
+    def _folds(self, data: RuleInput) -> RuleFolds:
+        fold = leave_one_out_folds(data.is_presence, self.max_folds)
+        return RuleFolds(fold, int(fold.max()))

@@ -28,6 +28,8 @@ METHOD_WORDS = {
     "holdout-group": "a one-way group holdout",
     "random": "random assignment",
     "leave-one-out": "leave-one-out",
+    "period": "contiguous time windows",
+    "holdout-period": "a one-way time holdout",
 }
 
 
@@ -236,9 +238,22 @@ def _design_sentences(split, plane_words: str) -> list[str]:
     elif method == "leave-one-out":
         out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: each presence is "
                    f"evaluated once, in a fold of its own.")
+    elif method == "period":
+        spans = p.get("fold_periods") or {}
+        named = "; ".join(f"fold {f}: {v[0]:g}-{v[1]:g}" for f, v in list(spans.items())[:MAX_LISTED] if len(v) == 2)
+        out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how} of the column "
+                   f"`{p.get('time_column', '?')}`, cut so presence counts per window are as even as possible"
+                   + (f" ({named})" if named else "") + f"; records without a time were dealt at random (seed {seed}).")
+    elif method == "holdout-period":
+        out.append(f"The {kept} kept records were split by {how} on the column `{p.get('time_column', '?')}`: "
+                   f"calibration on records before {_num(p.get('calibrate_before')):g}, evaluation on the rest.")
     else:
         out.append(f"The {kept} kept records were in {fmt_count(k)} folds given by the analyst.")
 
+    if method != "holdout-period" and p.get("calibrate_before") is not None:
+        out.append(f"Each fold was evaluated on its records dated from {_num(p['calibrate_before']):g} on (column "
+                   f"`{p.get('time_column', '?')}`) and calibrated on earlier records outside it; the fold's earlier "
+                   "records and other folds' later records were left out of its calibration set (counted as gaps).")
     buffer = _num(d.get("buffer_km", p.get("buffer_km", 0)) or 0)
     folds = d.get("folds", []) or []
     if buffer > 0:

@@ -78,8 +78,13 @@ class SplitRun:
         return str(self.design.get("method", "given"))
 
     @property
-    def parameters(self) -> dict:
-        return self.design.get("parameters", {}) or {}
+    def parameters(self):
+        """The sidecar's design parameters (a DesignParameters, read like a dict)."""
+        from splitter.partition.base import DesignParameters
+
+        d = self.design
+        return DesignParameters.from_dict(d.get("parameters", {}) or {}, geometry_crs=d.get("geometry_crs"),
+                                          software=d.get("software"))
 
     @property
     def geometry_crs(self) -> pyproj.CRS | None:
