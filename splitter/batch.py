@@ -45,9 +45,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Optional
 
-import typer
-
-from splitter import __version__
+from splitter._version import __version__
 from splitter.errors import InputError
 
 # Manifest columns: name -> (kind, default). Kinds say how a cell is read and checked
@@ -454,24 +452,19 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     import numpy as np
 
     from splitter.auditor import audit
-    from splitter.fold_design import add_background, design
     from splitter.evaluation import evaluate
+    from splitter.fold_design import design
     from splitter.io.foldtable import read_fold_table, write_design
-    from splitter.io.records import combine, read_records
-    from splitter.io.results import write_audit, write_evaluation
+    from splitter.loading import load_records
+    from splitter.report.outputs import write_audit, write_evaluation
 
     o = spec.options
     commands = _commands(spec, final)
     env = list(o["env"])
-    # Same reading as 'splitter design' (cli.load_records).
-    recs = read_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
-                        kind_column=o["kind_column"])
-    if o["background"] is not None:
-        bg = read_records(o["background"], x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
-                          default_kind="background")
-        recs = combine(recs, bg, kind="background")
-    if o["background_count"]:
-        recs = add_background(recs, int(o["background_count"]), env=env, region=o["region"], seed=o["seed"])
+    # Same reading as 'splitter design'.
+    recs = load_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
+                        kind_column=o["kind_column"], background=o["background"],
+                        background_count=o["background_count"], env=env, region=o["region"], seed=o["seed"])
     assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
                         env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
                         calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"])
@@ -837,57 +830,3 @@ def run_batch(manifest, out_dir, *, workers: Optional[int] = None, scheduler: Op
     ordered = tuple(rows[r] for r in sorted(rows))
     table = write_batch_table(ordered, out / "batch.csv")
     return BatchResult(out, table, ordered)
-
-
-# ---------------------------------------------------------------------------
-# Command
-
-
-def batch_command(
-    manifest: Path = typer.Argument(..., help="Manifest CSV: one run per row; columns run, records and any "
-                                              "design/audit/evaluate option (method, folds, block_size, buffer, "
-                                              "env, seed, model, replicates, ...)."),
-    out_dir: Path = typer.Option(..., "--out", help="Output folder: one folder per run, plus batch.csv."),
-    workers: Optional[int] = typer.Option(None, "--workers", help="Worker processes of the local Dask cluster (default 2)."),
-    scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, "
-                                                                      "e.g. tcp://127.0.0.1:8786, instead of a local cluster."),
-):
-    """Run many designs, audits and evaluations (e.g. one per species) from a manifest, on Dask.
-
-    Each run writes OUT/RUN/folds.csv, OUT/RUN/audit/ and OUT/RUN/evaluation/ as the
-    single commands would; OUT/batch.csv has one row per run. A rerun skips runs
-    whose options and input files are unchanged. Exit codes: 0 every run ok or
-    skipped, 1 at least one run failed (the others are done), 2 bad manifest or options.
-    """
-    from rich.table import Table
-
-    from splitter.cli import out as console
-    from splitter.cli import progress as progress_bar
-
-    with progress_bar() as bar:
-        task = bar.add_task("checking the manifest", total=None)
-
-        def step(done, total):
-            bar.update(task, completed=done, total=total, description=f"runs done: {done} of {total}")
-
-        result = run_batch(manifest, out_dir, workers=workers, scheduler=scheduler, progress=step)
-
-    t = Table(title=f"batch: {len(result.rows)} runs", title_justify="left")
-    for c in ("run", "status", "method", "folds", "presences", "audit", "significant folds", "seconds"):
-        t.add_column(c, justify="left" if c in ("run", "status", "method", "audit") else "right")
-    shown = result.rows if len(result.rows) <= 40 else [r for r in result.rows if r["status"] == "failed"]
-    for r in shown:
-        sig = "" if r["folds_evaluated"] is None else f"{r['folds_significant']}/{r['folds_evaluated']}"
-        t.add_row(r["run"], r["status"], _fmt(r["method"], "method"), _fmt(r["folds"], "folds"),
-                  _fmt(r["n_presence"], "n"), _fmt(r["audit_verdict"], "a"), sig,
-                  _fmt(r["seconds"], "seconds") if r["status"] != "skipped" else "-")
-    if len(shown) < len(result.rows):
-        t.caption = f"failed runs only; every run is in {result.table}"
-    console.print(t)
-    console.print(f"runs ok: {result.n_ok}, skipped (unchanged): {result.n_skipped}, failed: {result.n_failed}")
-    for run, why in result.failures.items():
-        console.print(f"failed: {run}: {why}", markup=False, soft_wrap=True)
-    console.print(f"summary: {result.table}")
-    console.print(f"outputs: {result.out_dir}")
-    if result.n_failed:
-        raise typer.Exit(1)

@@ -90,9 +90,9 @@ def _truthy(v) -> bool:
 
 def _version(dist: str) -> str:
     if dist == "splitter":
-        import splitter
+        from splitter._version import __version__
 
-        return splitter.__version__
+        return __version__
     try:
         return metadata.version(dist)
     except metadata.PackageNotFoundError:
@@ -578,7 +578,7 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
     if range_doc is not None:
         block_km, block_split = _block_size_for_variogram(splits)
         try:
-            from splitter.dependence.figures import plot_variogram
+            from splitter.report.dependence_figures import plot_variogram
 
             est = range_estimate_from_dict(range_doc)
             fig = plot_variogram(est, chosen_block_km=block_km)
