@@ -10,13 +10,23 @@ need them.
 
 Examples
 --------
+>>> import numpy as np
 >>> import splitter
 >>> folds = splitter.design("demo_data/records_with_background.csv", method="blocks",
 ...                         folds=5, block_size=120, buffer=120, seed=1)
 >>> folds.n_folds
 5
->>> from sklearn.model_selection import cross_val_score  # doctest: +SKIP
->>> cross_val_score(model, X, y, cv=folds.as_cv())  # doctest: +SKIP
+
+The folds plug into scikit-learn as its ``cv`` argument (here a model of
+presence against background on the coordinates alone, to keep it short):
+
+>>> from sklearn.linear_model import LogisticRegression
+>>> from sklearn.model_selection import cross_val_score
+>>> X = np.column_stack([folds.records.points.x, folds.records.points.y])
+>>> y = folds.kind == "presence"
+>>> scores = cross_val_score(LogisticRegression(), X, y, cv=folds.as_cv(), scoring="roc_auc")
+>>> len(scores)
+5
 """
 
 import importlib

@@ -20,13 +20,8 @@ is complete, so a folder named after a run is always a whole run. A rerun
 skips runs whose ``run.json`` fingerprint (SHA-256 over the options, the input
 files' bytes and the software version) still matches, and redoes the others.
 
-Examples
---------
->>> from splitter.batch import run_batch
->>> res = run_batch("species.csv", "out", workers=2)  # doctest: +SKIP
->>> res.n_ok, res.n_failed  # doctest: +SKIP
-(19, 1)
->>> res.to_frame()[["run", "status", "error"]]  # doctest: +SKIP
+:func:`run_batch` is the entry point (its docstring has a worked example);
+:func:`read_manifest` checks a manifest without running it.
 """
 
 from __future__ import annotations
@@ -270,9 +265,15 @@ def read_manifest(path) -> tuple:
 
     Examples
     --------
-    >>> specs = read_manifest("species.csv")  # doctest: +SKIP
-    >>> specs[0].run, specs[0].options["method"]  # doctest: +SKIP
-    ('sp01', 'blocks')
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> manifest = Path(tempfile.mkdtemp()) / "species.csv"
+    >>> _ = manifest.write_text("run,records,method,block_size\\n"
+    ...                         "sp01,demo_data/records.csv,blocks,100\\n"
+    ...                         "sp02,demo_data/records.csv,random,\\n")
+    >>> specs = read_manifest(manifest)
+    >>> [(s.run, s.options["method"], s.options["block_size"], s.options["folds"]) for s in specs]
+    [('sp01', 'blocks', '100', 5), ('sp02', 'random', None, 5)]
     """
     import pandas as pd
 
@@ -764,10 +765,18 @@ def run_batch(manifest, out_dir, *, workers: Optional[int] = None, scheduler: Op
 
     Examples
     --------
-    >>> res = run_batch("species.csv", "out", workers=2,
-    ...                 progress=lambda done, total: print(done, total))  # doctest: +SKIP
-    >>> res.failures  # doctest: +SKIP
-    {'sp07': 'sp07.csv: no such file; check the path.'}
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> here = Path(tempfile.mkdtemp())
+    >>> records = Path("demo_data/records_with_background.csv").resolve()
+    >>> _ = (here / "species.csv").write_text("run,records,method,folds,block_size,audit\\n"
+    ...                                       f"sp01,{records},blocks,4,150,no\\n"
+    ...                                       "sp07,sp07.csv,blocks,4,150,no\\n")
+    >>> res = run_batch(here / "species.csv", here / "out", workers=1)
+    >>> res.n_ok, res.n_failed
+    (1, 1)
+    >>> res.failures["sp07"].endswith("sp07.csv: no such file; check the path.")
+    True
     """
     specs = read_manifest(manifest)
     if workers is not None and int(workers) < 1:

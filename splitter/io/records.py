@@ -172,8 +172,9 @@ def read_records(
 
     Examples
     --------
-    >>> recs = read_records("demo_data/records.csv")  # doctest: +SKIP
-    >>> recs.counts()["presence"]  # doctest: +SKIP
+    >>> recs = read_records("demo_data/records.csv")
+    >>> int(recs.counts()["presence"]), recs.x_column, recs.y_column
+    (430, 'longitude', 'latitude')
     """
     path = Path(path)
     if not path.exists():
