@@ -42,6 +42,9 @@ class _HelpPage:
         option = super().get_help_option(ctx)
         if option is not None:
             option.metavar = ""
+            # A flag whose value is a bool is taken as it is; without a default the parser
+            # would load its type-checking machinery (pydantic) just to read "not given".
+            option.default = False
         return option
 
 
