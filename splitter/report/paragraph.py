@@ -19,7 +19,7 @@ import math
 
 import numpy as np
 
-from splitter.report.numbers import fmt_p  # noqa: F401  (one p-value format for text, tables and terminal)
+from splitter.report.numbers import fmt_p  # one p-value format for text, tables and terminal
 
 METHOD_WORDS = {
     "blocks": "spatial blocks",
