@@ -38,6 +38,12 @@ class _HelpPage:
             if param.param_type_name == "argument":  # the metavar already names it
                 param.display_type_rich = _no_type_word
 
+    def collect_usage_pieces(self, ctx):
+        # "RECORDS" for a required argument, "[OUT_DIR]" for an optional one (braces would
+        # read like the {fold} placeholder of --predictions).
+        pieces = super().collect_usage_pieces(ctx)
+        return [p[1:-1] if p.startswith("{") and p.endswith("}") else p for p in pieces]
+
     def get_help_option(self, ctx):
         option = super().get_help_option(ctx)
         if option is not None:
