@@ -31,16 +31,24 @@ def test_every_help_page_fits_80_columns_and_shows_no_python_type():
             assert word.strip("[].") == word.strip("[].").upper(), usage
 
 
+def _flags(command: str) -> set:
+    import typer.main
+
+    cmd = typer.main.get_command(app).commands[command]
+    return {o for p in cmd.params if getattr(p, "is_flag", False) for o in p.opts} | {"--help"}
+
+
 def test_each_option_names_its_value_with_the_same_word_everywhere():
     seen = {}
     for command in COMMANDS:
+        flags = _flags(command)
         for line in _help(command).splitlines():
             m = OPTION_LINE.match(line)
             if not m:
                 continue
             option, word = m.groups()
-            if option == "--help":
-                assert word is None  # a flag takes no value
+            if option in flags:
+                assert word is None, f"{command}: the flag {option} shows a value word"  # a flag takes no value
                 continue
             assert word is not None, f"{command}: {option} shows no value word"
             seen.setdefault(option, set()).add(word)
