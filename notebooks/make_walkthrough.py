@@ -113,7 +113,7 @@ cells = [
     ),
     new_markdown_cell("## 6. Write the run and the methods appendix"),
     new_code_cell(
-        "from splitter.io.results import write_audit, write_evaluation, write_range\n\n"
+        "from splitter.report.outputs import write_audit, write_evaluation, write_range\n\n"
         "write_range(rng, RUN / 'range')\n"
         "for name, a, au, ctx, ev in [('blocks', blocks, audit_blocks, ctx_blocks, ev_blocks),\n"
         "                             ('random', random_split, audit_random, ctx_random, ev_random)]:\n"

@@ -4,51 +4,94 @@ Design folds that do not share neighbourhoods or biases, measure the dependence
 left between calibration and evaluation data, test each fold's predictions for
 significance, then measure performance, and write a methods appendix.
 
+``import splitter`` is light: every name below is loaded on first use, so
+pandas, matplotlib, dask and the rest are imported only by the functions that
+need them.
+
 Examples
 --------
+>>> import numpy as np
 >>> import splitter
 >>> folds = splitter.design("demo_data/records_with_background.csv", method="blocks",
-...                         folds=5, block_size=120, buffer=120, seed=1)  # doctest: +SKIP
->>> from sklearn.model_selection import cross_val_score  # doctest: +SKIP
->>> cross_val_score(model, X, y, cv=folds.as_cv())  # doctest: +SKIP
+...                         folds=5, block_size=120, buffer=120, seed=1)
+>>> folds.n_folds
+5
+
+The folds plug into scikit-learn as its ``cv`` argument (here a model of
+presence against background on the coordinates alone, to keep it short):
+
+>>> from sklearn.linear_model import LogisticRegression
+>>> from sklearn.model_selection import cross_val_score
+>>> X = np.column_stack([folds.records.points.x, folds.records.points.y])
+>>> y = folds.kind == "presence"
+>>> scores = cross_val_score(LogisticRegression(), X, y, cv=folds.as_cv(), scoring="roc_auc")
+>>> len(scores)
+5
 """
 
-__version__ = "0.1.0"
+import importlib
+import types
 
-from splitter.auditor import audit
-from splitter.fold_design import add_background, design
-from splitter.errors import InputError
-from splitter.evaluation import evaluate
-from splitter.geo import Points
-from splitter.io.foldtable import read_fold_table, write_design
-from splitter.io.records import Records, read_records
-from splitter.partition import FoldAssignment
-from splitter.rangefinder import estimate_range
+from splitter._version import __version__
 
-__all__ = [
-    "design", "add_background", "audit", "evaluate", "estimate_range", "build_appendix", "run_demo",
-    "run_batch", "InputError", "Points", "read_fold_table", "write_design", "Records", "read_records",
-    "FoldAssignment", "__version__", *(_RULE_NAMES := (
+# Public name -> (module, attribute). Nothing is imported until the name is used.
+_EXPORTS = {
+    "design": ("splitter.fold_design", "design"),
+    "add_background": ("splitter.fold_design", "add_background"),
+    "audit": ("splitter.auditor", "audit"),
+    "evaluate": ("splitter.evaluation", "evaluate"),
+    "estimate_range": ("splitter.rangefinder", "estimate_range"),
+    "build_appendix": ("splitter.report.appendix", "build_appendix"),
+    "run_demo": ("splitter.demo", "run_demo"),
+    "run_batch": ("splitter.batch", "run_batch"),
+    "InputError": ("splitter.errors", "InputError"),
+    "Points": ("splitter.geo", "Points"),
+    "read_fold_table": ("splitter.io.foldtable", "read_fold_table"),
+    "write_design": ("splitter.io.foldtable", "write_design"),
+    "Records": ("splitter.io.records", "Records"),
+    "read_records": ("splitter.io.records", "read_records"),
+    "FoldAssignment": ("splitter.partition.assignment", "FoldAssignment"),
+    # split rules: splitter.SpatialBlocks(folds=5, block_size=120)
+    **{name: ("splitter.partition", name) for name in (
         "FoldRule", "SpatialBlocks", "Hexagons", "Checkerboard", "EnvironmentClusters", "Groups", "HoldoutGroup",
-        "Periods", "HoldoutPeriod", "LaterPeriod", "RandomFolds", "LeaveOneOut", "DesignParameters")),
-]
+        "Periods", "HoldoutPeriod", "LaterPeriod", "RandomFolds", "LeaveOneOut", "DesignParameters")},
+}
+# Subpackages reachable as attributes (``splitter.io.records``) without an explicit import.
+_SUBPACKAGES = ("dependence", "io", "partition", "report")
+
+__all__ = [*_EXPORTS, "__version__"]
 
 
-def __getattr__(name):  # heavier pieces load on first use
-    if name == "build_appendix":
-        from splitter.report.appendix import build_appendix
-
-        return build_appendix
-    if name == "run_demo":
-        from splitter.demo import run_demo
-
-        return run_demo
-    if name in _RULE_NAMES:  # split rules: splitter.SpatialBlocks(folds=5, block_size=120)
-        import splitter.partition
-
-        return getattr(splitter.partition, name)
-    if name == "run_batch":
-        from splitter.batch import run_batch
-
-        return run_batch
+def __getattr__(name):
+    if name in _EXPORTS:
+        module, attr = _EXPORTS[name]
+        value = getattr(importlib.import_module(module), attr)
+        globals()[name] = value  # later look-ups skip this function
+        return value
+    if name in _SUBPACKAGES:
+        return importlib.import_module(f"splitter.{name}")
     raise AttributeError(f"module 'splitter' has no attribute {name!r}")
+
+
+def __dir__():
+    return sorted({*globals(), *_EXPORTS, *_SUBPACKAGES})
+
+
+class _Package(types.ModuleType):
+    """``splitter.evaluate`` is the function, though a subpackage has the same name.
+
+    Importing a subpackage sets it as an attribute of its parent; the exported
+    function of the same name must win whichever is imported first. The
+    subpackage stays importable as ``splitter.evaluate.<module>``.
+    """
+
+    def __setattr__(self, name, value):
+        if isinstance(value, types.ModuleType) and name in _EXPORTS:
+            return
+        super().__setattr__(name, value)
+
+
+import sys as _sys  # noqa: E402
+
+_sys.modules[__name__].__class__ = _Package
+del _sys

@@ -20,13 +20,8 @@ is complete, so a folder named after a run is always a whole run. A rerun
 skips runs whose ``run.json`` fingerprint (SHA-256 over the options, the input
 files' bytes and the software version) still matches, and redoes the others.
 
-Examples
---------
->>> from splitter.batch import run_batch
->>> res = run_batch("species.csv", "out", workers=2)  # doctest: +SKIP
->>> res.n_ok, res.n_failed  # doctest: +SKIP
-(19, 1)
->>> res.to_frame()[["run", "status", "error"]]  # doctest: +SKIP
+:func:`run_batch` is the entry point (its docstring has a worked example);
+:func:`read_manifest` checks a manifest without running it.
 """
 
 from __future__ import annotations
@@ -45,9 +40,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Optional
 
-import typer
-
-from splitter import __version__
+from splitter._version import __version__
 from splitter.errors import InputError
 
 # Manifest columns: name -> (kind, default). Kinds say how a cell is read and checked
@@ -272,9 +265,15 @@ def read_manifest(path) -> tuple:
 
     Examples
     --------
-    >>> specs = read_manifest("species.csv")  # doctest: +SKIP
-    >>> specs[0].run, specs[0].options["method"]  # doctest: +SKIP
-    ('sp01', 'blocks')
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> manifest = Path(tempfile.mkdtemp()) / "species.csv"
+    >>> _ = manifest.write_text("run,records,method,block_size\\n"
+    ...                         "sp01,demo_data/records.csv,blocks,100\\n"
+    ...                         "sp02,demo_data/records.csv,random,\\n")
+    >>> specs = read_manifest(manifest)
+    >>> [(s.run, s.options["method"], s.options["block_size"], s.options["folds"]) for s in specs]
+    [('sp01', 'blocks', '100', 5), ('sp02', 'random', None, 5)]
     """
     import pandas as pd
 
@@ -454,24 +453,19 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     import numpy as np
 
     from splitter.auditor import audit
-    from splitter.fold_design import add_background, design
     from splitter.evaluation import evaluate
+    from splitter.fold_design import design
     from splitter.io.foldtable import read_fold_table, write_design
-    from splitter.io.records import combine, read_records
-    from splitter.io.results import write_audit, write_evaluation
+    from splitter.loading import load_records
+    from splitter.report.outputs import write_audit, write_evaluation
 
     o = spec.options
     commands = _commands(spec, final)
     env = list(o["env"])
-    # Same reading as 'splitter design' (cli.load_records).
-    recs = read_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
-                        kind_column=o["kind_column"])
-    if o["background"] is not None:
-        bg = read_records(o["background"], x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
-                          default_kind="background")
-        recs = combine(recs, bg, kind="background")
-    if o["background_count"]:
-        recs = add_background(recs, int(o["background_count"]), env=env, region=o["region"], seed=o["seed"])
+    # Same reading as 'splitter design'.
+    recs = load_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
+                        kind_column=o["kind_column"], background=o["background"],
+                        background_count=o["background_count"], env=env, region=o["region"], seed=o["seed"])
     assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
                         env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
                         calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"])
@@ -771,10 +765,18 @@ def run_batch(manifest, out_dir, *, workers: Optional[int] = None, scheduler: Op
 
     Examples
     --------
-    >>> res = run_batch("species.csv", "out", workers=2,
-    ...                 progress=lambda done, total: print(done, total))  # doctest: +SKIP
-    >>> res.failures  # doctest: +SKIP
-    {'sp07': 'sp07.csv: no such file; check the path.'}
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> here = Path(tempfile.mkdtemp())
+    >>> records = Path("demo_data/records_with_background.csv").resolve()
+    >>> _ = (here / "species.csv").write_text("run,records,method,folds,block_size,audit\\n"
+    ...                                       f"sp01,{records},blocks,4,150,no\\n"
+    ...                                       "sp07,sp07.csv,blocks,4,150,no\\n")
+    >>> res = run_batch(here / "species.csv", here / "out", workers=1)
+    >>> res.n_ok, res.n_failed
+    (1, 1)
+    >>> res.failures["sp07"].endswith("sp07.csv: no such file; check the path.")
+    True
     """
     specs = read_manifest(manifest)
     if workers is not None and int(workers) < 1:
@@ -837,57 +839,3 @@ def run_batch(manifest, out_dir, *, workers: Optional[int] = None, scheduler: Op
     ordered = tuple(rows[r] for r in sorted(rows))
     table = write_batch_table(ordered, out / "batch.csv")
     return BatchResult(out, table, ordered)
-
-
-# ---------------------------------------------------------------------------
-# Command
-
-
-def batch_command(
-    manifest: Path = typer.Argument(..., help="Manifest CSV: one run per row; columns run, records and any "
-                                              "design/audit/evaluate option (method, folds, block_size, buffer, "
-                                              "env, seed, model, replicates, ...)."),
-    out_dir: Path = typer.Option(..., "--out", help="Output folder: one folder per run, plus batch.csv."),
-    workers: Optional[int] = typer.Option(None, "--workers", help="Worker processes of the local Dask cluster (default 2)."),
-    scheduler: Optional[str] = typer.Option(None, "--scheduler", help="Address of a running Dask scheduler, "
-                                                                      "e.g. tcp://127.0.0.1:8786, instead of a local cluster."),
-):
-    """Run many designs, audits and evaluations (e.g. one per species) from a manifest, on Dask.
-
-    Each run writes OUT/RUN/folds.csv, OUT/RUN/audit/ and OUT/RUN/evaluation/ as the
-    single commands would; OUT/batch.csv has one row per run. A rerun skips runs
-    whose options and input files are unchanged. Exit codes: 0 every run ok or
-    skipped, 1 at least one run failed (the others are done), 2 bad manifest or options.
-    """
-    from rich.table import Table
-
-    from splitter.cli import out as console
-    from splitter.cli import progress as progress_bar
-
-    with progress_bar() as bar:
-        task = bar.add_task("checking the manifest", total=None)
-
-        def step(done, total):
-            bar.update(task, completed=done, total=total, description=f"runs done: {done} of {total}")
-
-        result = run_batch(manifest, out_dir, workers=workers, scheduler=scheduler, progress=step)
-
-    t = Table(title=f"batch: {len(result.rows)} runs", title_justify="left")
-    for c in ("run", "status", "method", "folds", "presences", "audit", "significant folds", "seconds"):
-        t.add_column(c, justify="left" if c in ("run", "status", "method", "audit") else "right")
-    shown = result.rows if len(result.rows) <= 40 else [r for r in result.rows if r["status"] == "failed"]
-    for r in shown:
-        sig = "" if r["folds_evaluated"] is None else f"{r['folds_significant']}/{r['folds_evaluated']}"
-        t.add_row(r["run"], r["status"], _fmt(r["method"], "method"), _fmt(r["folds"], "folds"),
-                  _fmt(r["n_presence"], "n"), _fmt(r["audit_verdict"], "a"), sig,
-                  _fmt(r["seconds"], "seconds") if r["status"] != "skipped" else "-")
-    if len(shown) < len(result.rows):
-        t.caption = f"failed runs only; every run is in {result.table}"
-    console.print(t)
-    console.print(f"runs ok: {result.n_ok}, skipped (unchanged): {result.n_skipped}, failed: {result.n_failed}")
-    for run, why in result.failures.items():
-        console.print(f"failed: {run}: {why}", markup=False, soft_wrap=True)
-    console.print(f"summary: {result.table}")
-    console.print(f"outputs: {result.out_dir}")
-    if result.n_failed:
-        raise typer.Exit(1)

@@ -15,14 +15,53 @@ import sys
 from pathlib import Path
 from typing import List, Optional
 
-import click
 import typer
-from rich.console import Console
-from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
-from rich.table import Table
 
-from splitter import __version__
+from splitter._version import __version__
 from splitter.errors import InputError
+
+# Start-up cost: `splitter --help` must stay near the cost of importing typer and rich.
+# Only typer is imported here; rich, pandas and the API are imported inside the
+# functions that use them.
+
+
+def _no_type_word(ctx=None):
+    return None
+
+
+class _HelpPage:
+    """Help pages without Python type names (``<path>``, ``<bool>``): each argument and option
+    names its value with a word (its metavar), flags such as --help with none."""
+
+    def __init__(self, *args, **kwargs):
+        super().__init__(*args, **kwargs)
+        for param in self.params:
+            if param.param_type_name == "argument":  # the metavar already names it
+                param.display_type_rich = _no_type_word
+
+    def collect_usage_pieces(self, ctx):
+        # "RECORDS" for a required argument, "[OUT_DIR]" for an optional one (braces would
+        # read like the {fold} placeholder of --predictions).
+        pieces = super().collect_usage_pieces(ctx)
+        return [p[1:-1] if p.startswith("{") and p.endswith("}") else p for p in pieces]
+
+    def get_help_option(self, ctx):
+        option = super().get_help_option(ctx)
+        if option is not None:
+            option.metavar = ""
+            # A flag whose value is a bool is taken as it is; without a default the parser
+            # would load its type-checking machinery (pydantic) just to read "not given".
+            option.default = False
+        return option
+
+
+class _Group(_HelpPage, typer.core.TyperGroup):
+    pass
+
+
+class _Command(_HelpPage, typer.core.TyperCommand):
+    pass
+
 
 app = typer.Typer(
     help="Independent evaluation data for species distribution models: design folds, "
@@ -30,23 +69,47 @@ app = typer.Typer(
     no_args_is_help=True,
     add_completion=False,
     pretty_exceptions_enable=False,
+    rich_markup_mode=None,
+    cls=_Group,
 )
-out = Console(highlight=False)
-if not out.is_terminal:  # piped or captured: do not squeeze tables into 80 columns
-    out.width = 140
-err = Console(stderr=True, highlight=False)
+
+
+@functools.lru_cache(maxsize=None)
+def _consoles():
+    from rich.console import Console
+
+    out = Console(highlight=False)
+    if not out.is_terminal:  # piped or captured: do not squeeze tables into 80 columns
+        out.width = 140
+    return out, Console(stderr=True, highlight=False)
+
+
+def _out():
+    """The console for results (stdout)."""
+    return _consoles()[0]
+
+
+def _err():
+    """The console for progress and errors (stderr)."""
+    return _consoles()[1]
+
+
+def _table(title: str, **kwargs):
+    from rich.table import Table
+
+    return Table(title=title, title_justify="left", **kwargs)
 
 
 # Options every command that reads records shares.
-X_OPTION = typer.Option(None, "--x", help="Longitude / easting column (detected from common spellings if omitted).")
-Y_OPTION = typer.Option(None, "--y", help="Latitude / northing column.")
-CRS_OPTION = typer.Option(None, "--crs", help="CRS of the coordinates (default EPSG:4326 for CSV).")
-ID_OPTION = typer.Option(None, "--id-column", help="Record id column (default: record_id, else row number).")
-KIND_OPTION = typer.Option(None, "--kind-column", help="presence/absence/background (or 1/0) column (default: kind).")
+X_OPTION = typer.Option(None, "--x", metavar="COLUMN", help="Longitude / easting column (detected from common spellings if omitted).")
+Y_OPTION = typer.Option(None, "--y", metavar="COLUMN", help="Latitude / northing column.")
+CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV).")
+ID_OPTION = typer.Option(None, "--id-column", metavar="COLUMN", help="Record id column (default: record_id, else row number).")
+KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0) column (default: kind).")
 
 
 def _fail(message: str, code: int = 2):
-    err.print(f"splitter: error: {message}", markup=False, soft_wrap=True)
+    _err().print(f"splitter: error: {message}", markup=False, soft_wrap=True)
     raise typer.Exit(code)
 
 
@@ -73,12 +136,12 @@ def guarded(fn):
         except FileNotFoundError as e:
             _fail(f"{e.filename}: no such file; check the path.")
         except KeyboardInterrupt:
-            err.print("splitter: interrupted; no partial output was left behind.")
+            _err().print("splitter: interrupted; no partial output was left behind.")
             raise typer.Exit(130)
-        except (typer.Exit, typer.Abort, click.exceptions.ClickException):
+        except (typer.Exit, typer.Abort):
             raise
         except Exception as e:  # a bug, not bad input: one line, the traceback on request
-            if os.environ.get("SPLITTER_DEBUG"):
+            if os.environ.get("SPLITTER_DEBUG") or _is_usage_error(e):
                 raise
             _fail(f"unexpected error ({type(e).__name__}: {e}); this is a bug in splitter, please report it "
                   "with the command; set SPLITTER_DEBUG=1 to see the traceback.", code=3)
@@ -90,6 +153,11 @@ def _interrupt(signum, frame):
     raise KeyboardInterrupt
 
 
+def _is_usage_error(exc: Exception) -> bool:
+    """Usage errors of the command-line parser (click's, or typer's copy of it) pass through."""
+    return type(exc).__module__.split(".")[0] in ("click", "typer")
+
+
 def command_line() -> str:
     """The command as typed, for the reproducibility record."""
     import shlex
@@ -97,42 +165,30 @@ def command_line() -> str:
     return "splitter " + shlex.join(sys.argv[1:])
 
 
-def progress() -> Progress:
+def progress():
+    """A spinner with elapsed time on stderr (silent when stderr is not a terminal)."""
+    from rich.progress import Progress, SpinnerColumn, TextColumn, TimeElapsedColumn
+
+    err = _err()
     return Progress(SpinnerColumn(), TextColumn("{task.description}"), TimeElapsedColumn(),
                     console=err, transient=True, disable=not err.is_terminal)
 
 
 def version_callback(value: bool):
     if value:
-        out.print(f"splitter {__version__}")
+        _out().print(f"splitter {__version__}")
         raise typer.Exit()
 
 
 @app.callback()
-def main(version: bool = typer.Option(False, "--version", callback=version_callback, is_eager=True,
+def main(version: bool = typer.Option(False, "--version", callback=version_callback, is_eager=True, metavar="",
                                       help="Print the version and exit.")):
     """splitter command line."""
 
 
-def load_records(records: Path, x, y, crs, id_column, kind_column, background: Optional[Path],
-                 background_count: Optional[int], env: List[Path], region: Optional[Path], seed: int):
-    """Read records (+ background file or sampled background) as the API expects."""
-    from splitter.io.records import combine, read_records
-
-    recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
-    if background is not None:
-        bg = read_records(background, x=x, y=y, crs=crs, id_column=id_column, default_kind="background")
-        recs = combine(recs, bg, kind="background")
-    if background_count:
-        from splitter.fold_design import add_background
-
-        recs = add_background(recs, int(background_count), env=env, region=region, seed=seed)
-    return recs
-
-
-def fold_summary_table(assignment, title: str) -> Table:
+def fold_summary_table(assignment, title: str):
     counts = assignment.counts()
-    t = Table(title=title, title_justify="left")
+    t = _table(title)
     t.add_column("fold", justify="right")
     t.add_column("eval presence", justify="right")
     t.add_column("eval background", justify="right")
@@ -150,32 +206,33 @@ def fold_summary_table(assignment, title: str) -> Table:
 
 @guarded
 def design(
-    records: Path = typer.Argument(..., help="Occurrence records: CSV, GeoPackage or GeoParquet."),
-    method: str = typer.Option("blocks", "--method", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, period, holdout-period, random or leave-one-out."),
-    folds: int = typer.Option(5, "--folds", help="Number of folds k."),
-    block_size: Optional[str] = typer.Option(None, "--block-size", help="Block/hexagon/checkerboard size in km, 'auto' (autocorrelation range of --env) or 'match'."),
-    buffer: float = typer.Option(0.0, "--buffer", help="Buffer radius in km around each fold's evaluation records."),
-    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable)."),
-    covariate_column: List[str] = typer.Option([], "--covariate-column", help="Covariate column of the records table (repeatable), for clusters."),
-    group_column: Optional[str] = typer.Option(None, "--group-column", help="Survey method / source column for groups and holdout-group."),
-    calibrate_on: Optional[str] = typer.Option(None, "--calibrate-on", help="holdout-group: group values to calibrate on (comma-separated)."),
-    evaluate_on: Optional[str] = typer.Option(None, "--evaluate-on", help="holdout-group: group values to evaluate on (comma-separated)."),
-    time_column: Optional[str] = typer.Option(None, "--time-column", help="Year or date column for period and holdout-period (default: year)."),
-    periods: Optional[int] = typer.Option(None, "--periods", help="period: number of contiguous time windows (default: --folds)."),
-    calibrate_before: Optional[str] = typer.Option(None, "--calibrate-before", help="holdout-period: calibrate before this year (or date), evaluate from it on; with another method, evaluate each fold on its later records only."),
-    background: Optional[Path] = typer.Option(None, "--background", help="A separate file of background points."),
-    background_count: Optional[int] = typer.Option(None, "--background-count", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
-    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file of the study region (for --background-count)."),
+    records: Path = typer.Argument(..., metavar="RECORDS", help="Occurrence records: CSV, GeoPackage or GeoParquet."),
+    method: str = typer.Option("blocks", "--method", metavar="METHOD", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, period, holdout-period, random or leave-one-out."),
+    folds: int = typer.Option(5, "--folds", metavar="N", help="Number of folds k."),
+    block_size: Optional[str] = typer.Option(None, "--block-size", metavar="KM", help="Block/hexagon/checkerboard size in km, 'auto' (autocorrelation range of --env) or 'match'."),
+    buffer: float = typer.Option(0.0, "--buffer", metavar="KM", help="Buffer radius in km around each fold's evaluation records."),
+    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column of the records table (repeatable), for clusters."),
+    group_column: Optional[str] = typer.Option(None, "--group-column", metavar="COLUMN", help="Survey method / source column for groups and holdout-group."),
+    calibrate_on: Optional[str] = typer.Option(None, "--calibrate-on", metavar="VALUES", help="holdout-group: group values to calibrate on (comma-separated)."),
+    evaluate_on: Optional[str] = typer.Option(None, "--evaluate-on", metavar="VALUES", help="holdout-group: group values to evaluate on (comma-separated)."),
+    time_column: Optional[str] = typer.Option(None, "--time-column", metavar="COLUMN", help="Year or date column for period and holdout-period (default: year)."),
+    periods: Optional[int] = typer.Option(None, "--periods", metavar="N", help="period: number of contiguous time windows (default: --folds)."),
+    calibrate_before: Optional[str] = typer.Option(None, "--calibrate-before", metavar="YEAR", help="holdout-period: calibrate before this year (or date), evaluate from it on; with another method, evaluate each fold on its later records only."),
+    background: Optional[Path] = typer.Option(None, "--background", metavar="PATH", help="A separate file of background points."),
+    background_count: Optional[int] = typer.Option(None, "--background-count", metavar="N", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
+    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file of the study region (for --background-count)."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for every random step."),
-    out_path: Path = typer.Option(..., "--out", help="Fold table to write: .csv, .gpkg or .parquet."),
+    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for every random step."),
+    out_path: Path = typer.Option(..., "--out", metavar="PATH", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
     """Design calibration/evaluation folds before modelling."""
     from splitter.io.foldtable import write_design
+    from splitter.loading import load_records
 
     with progress() as bar, flag_names():
         from splitter.fold_design import rule_for
@@ -184,7 +241,9 @@ def design(
                         group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                         time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed)
         bar.add_task("reading records", total=None)
-        recs = load_records(records, x, y, crs, id_column, kind_column, background, background_count, env, region, seed)
+        recs = load_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
+                            background=background, background_count=background_count, env=env, region=region,
+                            seed=seed)
         bar.add_task(f"making {method} folds", total=None)
         assignment = rule.assign(recs)
         bar.add_task("writing outputs", total=None)
@@ -232,43 +291,41 @@ def flag_names():
 
 def _print_design(assignment, paths):
     p = assignment.parameters  # a DesignParameters
-    out.print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
+    _out().print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
     if p.block_size_km:
-        out.print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
+        _out().print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
     if p.presence_imbalance is not None:
-        out.print(f"fold imbalance (max-min)/mean: presences {p.presence_imbalance:.3f}, background {p.background_imbalance:.3f}")
+        _out().print(f"fold imbalance (max-min)/mean: presences {p.presence_imbalance:.3f}, background {p.background_imbalance:.3f}")
     if p.fold_periods:
-        out.print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
+        _out().print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
     if p.calibrate_before is not None:
-        out.print(f"time: evaluation on records dated from {p.calibrate_before:g} on, calibration on earlier ones"
+        _out().print(f"time: evaluation on records dated from {p.calibrate_before:g} on, calibration on earlier ones"
                   + ("" if assignment.method == "holdout-period" else " outside the fold (the rest counts as gap)"))
     if p.ladder:
-        out.print("block-size ladder (W1 = distance-distribution mismatch, km): " + ", ".join(
+        _out().print("block-size ladder (W1 = distance-distribution mismatch, km): " + ", ".join(
             f"{r['block_km']:.4g} km W1={r['wasserstein_km']:.3g}" for r in p.ladder["rungs"]))
     dropped = int((assignment.fold < 0).sum())
     if dropped:
         import pandas as pd
 
         reasons = pd.Series(assignment.dropped[assignment.fold < 0]).value_counts().sort_index()
-        out.print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
+        _out().print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
     for note in p.notes or ():
-        out.print(f"note: {note}")
+        _out().print(f"note: {note}")
     for role, path in paths.items():
-        out.print(f"{role}: {path}")
+        _out().print(f"{role}: {path}")
 
 
 def _fmt_p(p) -> str:
-    import math
+    from splitter.report.numbers import fmt_p
 
-    if p is None or (isinstance(p, float) and math.isnan(p)):
-        return "-"
-    return f"{p:.2g}" if p >= 1e-3 else f"{p:.0e}"
+    return fmt_p(p) or "-"
 
 
-def evaluation_table(result, title: str) -> Table:
+def evaluation_table(result, title: str):
     from rich import box
 
-    t = Table(title=title, title_justify="left", box=box.SIMPLE_HEAD, padding=(0, 1))
+    t = _table(title, box=box.SIMPLE_HEAD, padding=(0, 1))
     for c in ("fold", "verdict", "p adj.", "binom p", "pROC p", "ratio", "null", "AUC", "TSS"):
         t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
     rows = [f.row for f in result.folds] + [result.summary.to_row()]
@@ -289,30 +346,30 @@ def evaluation_table(result, title: str) -> Table:
 @guarded
 def evaluate(
     folds_table: Path = typer.Argument(..., metavar="FOLDS", help="Fold table (ours, or your own with a fold column)."),
-    predictions: Optional[str] = typer.Option(None, "--predictions", help="Prediction raster pattern with {fold}, e.g. 'preds/fold_{fold}.tif'."),
-    prediction_table: Optional[Path] = typer.Option(None, "--prediction-table", help="CSV with record_id, fold, prediction."),
-    model: Optional[str] = typer.Option(None, "--model", help="'baseline': fit the built-in model per fold over --env rasters."),
-    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF for --model (repeatable)."),
-    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file cutting the testing region."),
-    fold_column: str = typer.Option("fold", "--fold-column", help="Column holding the folds."),
-    threshold: str = typer.Option("quantile:0.1", "--threshold", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
-    omission: float = typer.Option(0.05, "--omission", help="Partial ROC omission tolerance E."),
-    replicates: int = typer.Option(1000, "--replicates", help="Partial ROC replicates: bootstrap and null of random presences."),
-    alpha: float = typer.Option(0.05, "--alpha", help="Significance level."),
-    adjust: str = typer.Option("holm", "--adjust", help="'holm': adjust fold p-values across folds (Holm); 'none'."),
+    predictions: Optional[str] = typer.Option(None, "--predictions", metavar="PATTERN", help="Prediction raster pattern with {fold}, e.g. 'preds/fold_{fold}.tif'."),
+    prediction_table: Optional[Path] = typer.Option(None, "--prediction-table", metavar="PATH", help="CSV with record_id, fold, prediction."),
+    model: Optional[str] = typer.Option(None, "--model", metavar="NAME", help="'baseline': fit the built-in model per fold over --env rasters."),
+    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF for --model (repeatable)."),
+    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file cutting the testing region."),
+    fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column holding the folds."),
+    threshold: str = typer.Option("quantile:0.1", "--threshold", metavar="RULE", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
+    omission: float = typer.Option(0.05, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E."),
+    replicates: int = typer.Option(1000, "--replicates", metavar="N", help="Partial ROC replicates: bootstrap and null of random presences."),
+    alpha: float = typer.Option(0.05, "--alpha", metavar="ALPHA", help="Significance level."),
+    adjust: str = typer.Option("holm", "--adjust", metavar="METHOD", help="'holm': adjust fold p-values across folds (Holm); 'none'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for the bootstrap and the null."),
-    fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'not-significant': exit 1 when any fold is not significant."),
-    out_dir: Path = typer.Option(..., "--out", help="Output folder."),
+    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for the bootstrap and the null."),
+    fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'not-significant': exit 1 when any fold is not significant."),
+    out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Test each fold's predictions: significance first, then performance."""
     from splitter.evaluation import evaluate as run_evaluate
     from splitter.io.foldtable import read_fold_table
-    from splitter.io.results import write_evaluation
+    from splitter.report.outputs import write_evaluation
 
     if fail_on not in (None, "not-significant"):
         raise InputError(f"--fail-on {fail_on}: the only choice is 'not-significant'.")
@@ -332,36 +389,36 @@ def evaluate(
             progress=lambda: bar.advance(task),
         )
         paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table), "command": command_line()})
-    out.print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
+    _out().print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
     for w in result.warnings:
-        out.print(f"warning: {w}")
+        _out().print(f"warning: {w}")
     for n in result.parameters.get("notes", []):
-        out.print(f"note: {n}")
+        _out().print(f"note: {n}")
     for role, p in paths.items():
-        out.print(f"{role}: {p}")
+        _out().print(f"{role}: {p}")
     if fail_on == "not-significant" and not all(f.row["significant"] for f in result.folds):
         raise typer.Exit(1)
 
 
 @guarded
 def range_command(
-    records: Optional[Path] = typer.Argument(None, help="Records table whose own columns give the variograms (instead of --env rasters)."),
-    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable)."),
-    covariate_column: List[str] = typer.Option([], "--covariate-column", help="Numeric covariate column of RECORDS (repeatable)."),
+    records: Optional[Path] = typer.Argument(None, metavar="RECORDS", help="Records table whose own columns give the variograms (instead of --env rasters)."),
+    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Numeric covariate column of RECORDS (repeatable)."),
     response: bool = typer.Option(False, "--response", help="Also the indicator variogram of RECORDS' presence/absence (0/1) response."),
-    region: Optional[Path] = typer.Option(None, "--region", help="Polygon file limiting the raster cell sample."),
-    sample: int = typer.Option(2000, "--sample", help="Cells (or records) sampled for the variograms."),
+    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file limiting the raster cell sample."),
+    sample: int = typer.Option(2000, "--sample", metavar="N", help="Cells (or records) sampled for the variograms."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for the cell or record sample."),
-    out_dir: Path = typer.Option(..., "--out", help="Output folder."),
+    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for the cell or record sample."),
+    out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Estimate the autocorrelation range (from rasters or the records' own columns) and suggest a block size."""
-    from splitter.io.results import write_range
     from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records
+    from splitter.report.outputs import write_range
 
     if records is None and (covariate_column or response):
         raise InputError("--covariate-column and --response read a records table: give RECORDS before the options.")
@@ -388,21 +445,21 @@ def range_command(
             est = estimate_range_from_records(recs, covariates=covariate_column, response=response, sample=sample, seed=seed)
             source = {"records": str(records), "covariate_columns": list(covariate_column), "response": bool(response)}
         paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, **source, "command": command_line()})
-    t = Table(title="autocorrelation range per covariate", title_justify="left")
+    t = _table("autocorrelation range per covariate")
     for c in ("covariate", "model", "range km", "sill", "nugget", "r2", "chosen"):
         t.add_column(c, justify="left" if c in ("covariate", "model") else "right")
     for r in est.to_frame().itertuples():
         t.add_row(r.covariate, r.model, f"{r.range_km:.1f}", f"{r.sill:.3g}", f"{r.nugget:.3g}", f"{r.r2:.3f}", "yes" if r.chosen else "")
-    out.print(t)
-    out.print(f"suggested block size: {est.suggested_block_km:.1f} km ({est.summary_rule})")
+    _out().print(t)
+    _out().print(f"suggested block size: {est.suggested_block_km:.1f} km ({est.summary_rule})")
     for n in est.notes:
-        out.print(f"note: {n}")
+        _out().print(f"note: {n}")
     for role, p in paths.items():
-        out.print(f"{role}: {p}")
+        _out().print(f"{role}: {p}")
 
 
-def audit_table(result) -> Table:
-    t = Table(title=f"residual dependence per fold: {result.verdict}", title_justify="left")
+def audit_table(result):
+    t = _table(f"residual dependence per fold: {result.verdict}")
     cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D (null share)", "outside env.",
             "shared method (null share)", "verdict", "why")
     for c in cols:
@@ -422,28 +479,28 @@ def audit_table(result) -> Table:
 
 @guarded
 def audit(
-    table: Path = typer.Argument(..., help="Fold table: ours, or your own with a fold or role column."),
-    fold_column: str = typer.Option("fold", "--fold-column", help="Column with fold numbers or names."),
-    role_column: Optional[str] = typer.Option(None, "--role-column", help="Column saying calibration/evaluation (instead of folds)."),
-    env: List[Path] = typer.Option([], "--env", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
-    range_km: Optional[float] = typer.Option(None, "--range-km", help="Autocorrelation range in km."),
-    range_from: Optional[Path] = typer.Option(None, "--range-from", help="Folder written by 'splitter range'."),
-    group_column: Optional[str] = typer.Option(None, "--group-column", help="Survey method / source column."),
-    region: Optional[Path] = typer.Option(None, "--region", help="Polygon of the prediction region."),
+    table: Path = typer.Argument(..., metavar="TABLE", help="Fold table: ours, or your own with a fold or role column."),
+    fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column with fold numbers or names."),
+    role_column: Optional[str] = typer.Option(None, "--role-column", metavar="COLUMN", help="Column saying calibration/evaluation (instead of folds)."),
+    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
+    range_km: Optional[float] = typer.Option(None, "--range-km", metavar="KM", help="Autocorrelation range in km."),
+    range_from: Optional[Path] = typer.Option(None, "--range-from", metavar="PATH", help="Folder written by 'splitter range'."),
+    group_column: Optional[str] = typer.Option(None, "--group-column", metavar="COLUMN", help="Survey method / source column."),
+    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon of the prediction region."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", help="Seed for the prediction-location sample and the random re-splits."),
-    null_splits: int = typer.Option(199, "--null-splits", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
-    fail_on: Optional[str] = typer.Option(None, "--fail-on", help="'dependent': exit 1 when any fold is flagged."),
-    out_dir: Path = typer.Option(..., "--out", help="Output folder."),
+    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
+    null_splits: int = typer.Option(199, "--null-splits", metavar="N", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
+    fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'dependent': exit 1 when any fold is flagged."),
+    out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Audit a split for residual dependence between calibration and evaluation data."""
     from splitter.auditor import audit as run_audit
     from splitter.io.foldtable import read_fold_table
-    from splitter.io.results import write_audit
+    from splitter.report.outputs import write_audit
 
     if fail_on not in (None, "dependent"):
         raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
@@ -458,25 +515,25 @@ def audit(
                                     null_splits=null_splits)
         context["command"] = command_line()
         paths = write_audit(result, context, out_dir)
-    out.print(audit_table(result))
-    out.print("rules (a fold is dependent when any applicable rule fires):")
+    _out().print(audit_table(result))
+    _out().print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
-        out.print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")
+        _out().print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")
     rk = context.get("range_km")
-    out.print(f"autocorrelation range: {'not given' if rk is None else f'{rk:.1f} km'} ({context.get('range_source') or 'no range: distance rule not applied'})")
+    _out().print(f"autocorrelation range: {'not given' if rk is None else f'{rk:.1f} km'} ({context.get('range_source') or 'no range: distance rule not applied'})")
     for n in context.get("notes", []):
-        out.print(f"note: {n}")
+        _out().print(f"note: {n}")
     for role, p in paths.items():
-        out.print(f"{role}: {p}")
+        _out().print(f"{role}: {p}")
     if fail_on == "dependent" and any(v == "dependent" for v in result.verdicts):
         raise typer.Exit(1)
 
 
 @guarded
 def appendix(
-    run_dir: Path = typer.Argument(..., help="A run folder (a split with its audit/ and evaluation/), or a folder of several."),
-    out_dir: Path = typer.Option(..., "--out", help="Output folder for the appendix."),
-    generalise: Optional[float] = typer.Option(None, "--generalise", help="Snap every coordinate in the appendix to a grid of KM km (sensitive species)."),
+    run_dir: Path = typer.Argument(..., metavar="RUN_DIR", help="A run folder (a split with its audit/ and evaluation/), or a folder of several."),
+    out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder for the appendix."),
+    generalise: Optional[float] = typer.Option(None, "--generalise", metavar="KM", help="Snap every coordinate in the appendix to a grid of KM km (sensitive species)."),
 ):
     """Write a methods appendix (Markdown, self-contained HTML, CSV tables, PNG/SVG figures)."""
     from splitter.report.appendix import build_appendix
@@ -488,16 +545,16 @@ def appendix(
     with progress() as bar:
         bar.add_task("writing the appendix", total=None)
         result = build_appendix(run_dir, out_dir, generalise_km=generalise)
-    out.print(f"appendix: {result.html}")
-    out.print(f"markdown: {result.markdown}")
-    out.print(f"tables: {len(result.tables)} CSV, figures: {len(result.figures)} files in {out_dir}")
+    _out().print(f"appendix: {result.html}")
+    _out().print(f"markdown: {result.markdown}")
+    _out().print(f"tables: {len(result.tables)} CSV, figures: {len(result.figures)} files in {out_dir}")
 
 
 @guarded
 def demo(
-    out_dir: Path = typer.Argument(Path("splitter-demo"), help="Where to write the demo run."),
-    seed: int = typer.Option(1, "--seed", help="Seed for every random step."),
-    replicates: int = typer.Option(1000, "--replicates", help="Partial ROC bootstrap replicates."),
+    out_dir: Path = typer.Argument(Path("splitter-demo"), metavar="OUT_DIR", help="Where to write the demo run."),
+    seed: int = typer.Option(1, "--seed", metavar="N", help="Seed for every random step."),
+    replicates: int = typer.Option(1000, "--replicates", metavar="N", help="Partial ROC bootstrap replicates."),
 ):
     """Run the whole job on the bundled invented scenario: range, folds, audit, evaluation, appendix."""
     from splitter.demo import run_demo
@@ -505,15 +562,15 @@ def demo(
     with progress() as bar:
         task = bar.add_task("starting", total=None)
         run = run_demo(out_dir, seed=seed, replicates=replicates, step=lambda s: bar.update(task, description=s))
-    out.print(demo_summary(run))
-    out.print(f"autocorrelation range (blocks and buffer): {run.range_km:.1f} km")
-    out.print(f"outputs: {run.out_dir}")
-    out.print(f"appendix: {run.appendix.html}")
+    _out().print(demo_summary(run))
+    _out().print(f"autocorrelation range (blocks and buffer): {run.range_km:.1f} km")
+    _out().print(f"outputs: {run.out_dir}")
+    _out().print(f"appendix: {run.appendix.html}")
 
 
-def demo_summary(run) -> Table:
+def demo_summary(run):
     names = list(run.splits)
-    t = Table(title="demo: spatial blocks against a random split", title_justify="left")
+    t = _table("demo: spatial blocks against a random split")
     t.add_column("fold", justify="right")
     for n in names:
         t.add_column(f"{n}: audit", justify="left")
@@ -534,22 +591,79 @@ def demo_summary(run) -> Table:
     return t
 
 
+def batch_command(
+    manifest: Path = typer.Argument(..., metavar="MANIFEST",
+                                    help="Manifest CSV: one run per row; columns run, records and any "
+                                         "design/audit/evaluate option (method, folds, block_size, buffer, "
+                                         "env, seed, model, replicates, ...)."),
+    out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder: one folder per run, plus batch.csv."),
+    workers: Optional[int] = typer.Option(None, "--workers", metavar="N",
+                                          help="Worker processes of the local Dask cluster (default 2)."),
+    scheduler: Optional[str] = typer.Option(None, "--scheduler", metavar="ADDRESS",
+                                            help="Address of a running Dask scheduler, e.g. tcp://127.0.0.1:8786, "
+                                                 "instead of a local cluster."),
+):
+    """Run many designs, audits and evaluations (e.g. one per species) from a manifest, on Dask.
+
+    Each run writes OUT/RUN/folds.csv, OUT/RUN/audit/ and OUT/RUN/evaluation/ as the
+    single commands would; OUT/batch.csv has one row per run. A rerun skips runs
+    whose options and input files are unchanged. Exit codes: 0 every run ok or
+    skipped, 1 at least one run failed (the others are done), 2 bad manifest or options.
+    """
+    from splitter.batch import run_batch
+
+    with progress() as bar:
+        task = bar.add_task("checking the manifest", total=None)
+
+        def step(done, total):
+            bar.update(task, completed=done, total=total, description=f"runs done: {done} of {total}")
+
+        result = run_batch(manifest, out_dir, workers=workers, scheduler=scheduler, progress=step)
+    _out().print(batch_table(result))
+    out = _out()
+    out.print(f"runs ok: {result.n_ok}, skipped (unchanged): {result.n_skipped}, failed: {result.n_failed}")
+    for run, why in result.failures.items():
+        out.print(f"failed: {run}: {why}", markup=False, soft_wrap=True)
+    out.print(f"summary: {result.table}")
+    out.print(f"outputs: {result.out_dir}")
+    if result.n_failed:
+        raise typer.Exit(1)
+
+
+def batch_table(result):
+    """One line per run (only the failed ones when there are more than 40 runs)."""
+    t = _table(f"batch: {len(result.rows)} runs")
+    for c in ("run", "status", "method", "folds", "presences", "audit", "significant folds", "seconds"):
+        t.add_column(c, justify="left" if c in ("run", "status", "method", "audit") else "right")
+    shown = result.rows if len(result.rows) <= 40 else [r for r in result.rows if r["status"] == "failed"]
+    text = lambda v: "" if v is None else str(v)  # noqa: E731
+    for r in shown:
+        sig = "" if r["folds_evaluated"] is None else f"{r['folds_significant']}/{r['folds_evaluated']}"
+        secs = "-" if r["status"] == "skipped" or r["seconds"] is None else f"{float(r['seconds']):.2f}"
+        t.add_row(r["run"], r["status"], text(r["method"]), text(r["folds"]), text(r["n_presence"]),
+                  text(r["audit_verdict"]), sig, secs)
+    if len(shown) < len(result.rows):
+        t.caption = f"failed runs only; every run is in {result.table}"
+    return t
+
+
+def _register(fn, name=None):
+    """Add a command; its docstring's paragraphs are reflowed so the terminal wraps them."""
+    import inspect
+
+    paragraphs = inspect.cleandoc(fn.__doc__ or "").split("\n\n")
+    text = "\n\n".join(" ".join(p.split()) for p in paragraphs)
+    app.command(name, cls=_Command, help=text, short_help=text.split("\n\n")[0])(fn)
+
+
 # Commands, in the order a newcomer meets them.
-app.command()(demo)
-app.command()(design)
-app.command("range")(range_command)
-app.command()(audit)
-app.command()(evaluate)
-app.command()(appendix)
-
-
-def _register_batch():
-    from splitter.batch import batch_command
-
-    app.command("batch")(guarded(batch_command))
-
-
-_register_batch()
+_register(demo)
+_register(design)
+_register(range_command, "range")
+_register(audit)
+_register(evaluate)
+_register(appendix)
+_register(guarded(batch_command), "batch")
 
 
 def run():  # pragma: no cover - console entry for python -m

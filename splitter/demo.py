@@ -68,7 +68,8 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.evaluate.optimism import split_optimism
     from splitter.io.rasters import sample_rasters
-    from splitter.io.results import write_audit, write_evaluation, write_optimism, write_range
+    from splitter.io.results import write_optimism
+    from splitter.report.outputs import write_audit, write_evaluation, write_range
     from splitter.rangefinder import estimate_range_from_rasters
     from splitter.report.appendix import build_appendix
 

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import numpy as np
 
-from splitter import __version__
+from splitter._version import __version__
 from splitter.errors import InputError
 from splitter.geo import Points, equal_area_crs
 from splitter.io.records import Records, as_records

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pyproj
+import pyproj.exceptions
 from scipy.spatial import cKDTree
 
 from splitter.errors import InputError
@@ -40,8 +41,8 @@ class Points:
     Examples
     --------
     >>> p = Points.lonlat([10.0, 11.0], [45.0, 45.0])
-    >>> round(float(distance_km(p, Points.lonlat([10.0], [46.0]))[0]), 1)
-    111.1
+    >>> distance_km(p, Points.lonlat([10.0, 11.0], [46.0, 45.0])).round(1).tolist()
+    [111.1, 0.0]
     """
 
     x: np.ndarray
@@ -118,8 +119,64 @@ def planar_km(points: Points, crs: pyproj.CRS) -> tuple[np.ndarray, np.ndarray]:
 def distance_km(a: Points, b: Points) -> np.ndarray:
     """Element-wise distance between two equally long point sets (km).
 
-    Geodesic on WGS84 when the CRS is geographic, Euclidean otherwise.
+    Geodesic on WGS84 when the CRS is geographic, Euclidean otherwise; ``b`` is
+    first converted to ``a``'s CRS.
+
+    Parameters
+    ----------
+    a, b : Points
+        The same number of points; the i-th distance is from ``a``'s i-th point
+        to ``b``'s i-th point. Coordinates must be finite, and latitudes within
+        [-90, 90] and longitudes within [-360, 360] for a geographic CRS.
+
+    Raises
+    ------
+    splitter.errors.InputError
+        When the lengths differ, a coordinate is missing or out of range, or
+        ``b``'s CRS cannot be converted to ``a``'s.
+
+    Examples
+    --------
+    >>> a = Points.lonlat([10.0, 0.0], [45.0, 0.0])
+    >>> b = Points.lonlat([10.0, 1.0], [46.0, 0.0])
+    >>> distance_km(a, b).round(1).tolist()  # 1 degree of latitude, 1 degree of longitude at the equator
+    [111.1, 111.3]
+    >>> distance_km(a, Points.lonlat([10.0], [46.0]))
+    Traceback (most recent call last):
+    ...
+    splitter.errors.InputError: distance_km pairs the i-th point of a with the i-th point of b, but a has 2 points and b has 1; give both the same number of points.
     """
+    for name, p in (("a", a), ("b", b)):
+        if not isinstance(p, Points):
+            raise InputError(f"distance_km: {name} must be a splitter Points object, not {type(p).__name__}.")
+    if len(a) != len(b):
+        raise InputError(f"distance_km pairs the i-th point of a with the i-th point of b, but a has {len(a)} "
+                         f"points and b has {len(b)}; give both the same number of points.")
+    if a.crs != b.crs:
+        try:
+            b = b.to_crs(a.crs)
+        except pyproj.exceptions.ProjError as e:
+            raise InputError(f"distance_km: b's CRS ({b.crs.name}) cannot be converted to a's CRS ({a.crs.name}); "
+                             "give both point sets in one CRS.") from e
+    for name, p in (("a", a), ("b", b)):
+        _check_coordinates(name, p)
+    return _distance_km(a, b)
+
+
+def _check_coordinates(name: str, p: Points) -> None:
+    bad = ~(np.isfinite(p.x) & np.isfinite(p.y))
+    what = "has a missing or infinite coordinate"
+    if p.geographic and not bad.any():
+        bad = (np.abs(p.y) > 90) | (np.abs(p.x) > 360)
+        what = "has a latitude outside [-90, 90] or a longitude outside [-360, 360]"
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise InputError(f"distance_km: point {i} of {name} ({p.x[i]:g}, {p.y[i]:g}) {what}; "
+                         f"{int(bad.sum())} such point(s) in all.")
+
+
+def _distance_km(a: Points, b: Points) -> np.ndarray:
+    """distance_km without the checks, for points this module has already checked or made."""
     if a.crs != b.crs:
         b = b.to_crs(a.crs)
     if a.geographic:
@@ -179,7 +236,7 @@ class NeighbourIndex:
         dd, ii = self._tree.query(xyz, k=k, workers=-1)
         dd, ii = dd.reshape(n, k), ii.reshape(n, k)
         idx = ii[:, 0].astype(np.int64)
-        best = distance_km(query, self.reference.take(idx))
+        best = _distance_km(query, self.reference.take(idx))
         # Any point nearer on the ellipsoid is within the slack on the sphere.
         bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
         todo = np.flatnonzero(dd[:, -1] <= bound) if k > 1 else np.zeros(0, np.int64)
@@ -209,7 +266,7 @@ class NeighbourIndex:
         idx = ii[self_idx, col].astype(np.int64)
         if not ref.geographic:
             return dd[self_idx, col] * self._factor, idx
-        best = distance_km(ref, ref.take(idx))
+        best = _distance_km(ref, ref.take(idx))
         bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
         return self._refine(ref, coords, self_idx, best, idx, bound, 8, exclude=self_idx)
 
@@ -230,7 +287,7 @@ class NeighbourIndex:
             if rows.size:
                 qsel = todo[rows]
                 cand = ii[rows, cols].astype(np.int64)
-                dist = distance_km(query.take(qsel), self.reference.take(cand))
+                dist = _distance_km(query.take(qsel), self.reference.take(cand))
                 order = np.lexsort((cand, dist, qsel))
                 qsel, cand, dist = qsel[order], cand[order], dist[order]
                 first = np.r_[True, qsel[1:] != qsel[:-1]]
@@ -267,7 +324,7 @@ class NeighbourIndex:
         hit = np.zeros(n, bool)
         if not cand.size:
             return hit
-        dist = distance_km(query.take(cand), self.reference.take(i[cand].astype(np.int64)))
+        dist = _distance_km(query.take(cand), self.reference.take(i[cand].astype(np.int64)))
         hit[cand[dist < radius_km]] = True
         # A first candidate beyond the radius may hide a nearer one on the ellipsoid.
         unsure = cand[dist >= radius_km]

@@ -55,8 +55,11 @@ def estimate_range_from_rasters(paths, *, sample: int = 2000, seed: int = 0, reg
 
     Examples
     --------
-    >>> est = estimate_range_from_rasters(["demo_data/temperature.tif"], sample=1500)  # doctest: +SKIP
-    >>> round(est.suggested_block_km)  # doctest: +SKIP
+    >>> est = estimate_range_from_rasters(["demo_data/canopy.tif"], sample=1500, seed=0)
+    >>> est.to_frame()[["covariate", "model", "chosen"]].values.tolist()
+    [['canopy', 'spherical', False], ['canopy', 'exponential', True]]
+    >>> round(est.suggested_block_km)
+    70
     """
     from splitter.io.rasters import read_region, sample_cells
 

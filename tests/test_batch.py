@@ -22,9 +22,9 @@ import pytest
 import typer
 from typer.testing import CliRunner
 
-from splitter.batch import BATCH_COLUMNS, batch_command, read_manifest, run_batch
+from splitter.batch import BATCH_COLUMNS, read_manifest, run_batch
 from splitter.cli import app as cli_app
-from splitter.cli import guarded
+from splitter.cli import batch_command, guarded
 from splitter.errors import InputError
 from tests.conftest import write_records_csv
 
@@ -206,7 +206,7 @@ def test_outputs_equal_the_single_commands(first, tmp_path):
     from splitter.fold_design import design
     from splitter.evaluation import evaluate
     from splitter.io.foldtable import read_fold_table, write_design
-    from splitter.io.results import write_audit, write_evaluation
+    from splitter.report.outputs import write_audit, write_evaluation
 
     d = tmp_path / "sp14"
     write_design(design(ins / "sp14.csv", method="random", folds=4, seed=14), d / "folds.csv")

@@ -55,3 +55,37 @@ def test_equal_area_crs_preserves_area_far_from_centre():
     # reference: pyproj.Geod.polygon_area_perimeter of the same (small) cell
     geod_area, _ = GEOD.polygon_area_perimeter([39.0, 39.1, 39.1, 39.0], [69.0, 69.0, 69.1, 69.1])
     assert abs(planar_area - abs(geod_area) / 1e6) / (abs(geod_area) / 1e6) < 1e-3
+
+
+def test_distance_along_the_equator_is_the_equatorial_arc():
+    a = Points.lonlat([0.0], [0.0])
+    b = Points.lonlat([1.0], [0.0])
+    # reference: analytic, WGS84 equatorial radius 6378.137 km times pi/180 (the equator is a geodesic)
+    np.testing.assert_allclose(distance_km(a, b), [6378.137 * np.pi / 180], rtol=1e-12)
+
+
+def test_distance_km_refuses_point_sets_of_different_lengths():
+    import pytest
+
+    from splitter.errors import InputError
+
+    with pytest.raises(InputError, match="a has 2 points and b has 1"):
+        distance_km(Points.lonlat([10.0, 11.0], [45.0, 45.0]), Points.lonlat([10.0], [46.0]))
+
+
+def test_distance_km_refuses_bad_coordinates_in_one_sentence():
+    import pytest
+
+    from splitter.errors import InputError
+
+    ok = Points.lonlat([0.0, 1.0], [0.0, 0.0])
+    for lon, lat, what in (([0.0, 1.0], [0.0, 95.0], "latitude"), ([0.0, np.nan], [0.0, 0.0], "missing"),
+                           ([0.0, 500.0], [0.0, 0.0], "longitude")):
+        with pytest.raises(InputError, match=f"point 1 of b .*{what}") as info:
+            distance_km(ok, Points.lonlat(lon, lat))
+        assert "\n" not in str(info.value)
+    planar = Points(np.array([0.0, 1.0]), np.array([0.0, 1.0]), pyproj.CRS.from_wkt(
+        'ENGCRS["local",EDATUM["site"],CS[Cartesian,2],AXIS["x",east,LENGTHUNIT["metre",1]],'
+        'AXIS["y",north,LENGTHUNIT["metre",1]]]'))
+    with pytest.raises(InputError, match="cannot be converted"):
+        distance_km(ok, planar)  # no transformation exists from a local engineering CRS (pyproj raises ProjError)

@@ -2,8 +2,9 @@
 
 Autocorrelation range (``variogram``), geographic nearest-neighbour distances
 (``distance``), environmental overlap and extrapolation (``environment``), the
-per-fold audit with verdicts (``audit``) and figures (``figures``). Arrays in,
-frozen result dataclasses out; nothing here reads files.
+per-fold audit with verdicts (``audit``). Arrays in, frozen result dataclasses
+out; nothing here reads files or draws (the figures are in
+``splitter.report.dependence_figures``).
 """
 
 from splitter.dependence.audit import RULES, AuditResult, audit_split
@@ -15,7 +16,6 @@ from splitter.dependence.environment import (
     mess,
     schoener_d,
 )
-from splitter.dependence.figures import OKABE_ITO, plot_distance_ecdf, plot_variogram
 from splitter.dependence.variogram import (
     RangeEstimate,
     Semivariogram,
@@ -29,7 +29,6 @@ __all__ = [
     "AuditResult",
     "CovariateRanges",
     "DistanceDiagnostics",
-    "OKABE_ITO",
     "OverlapResult",
     "RULES",
     "RangeEstimate",
@@ -43,7 +42,5 @@ __all__ = [
     "fit_variogram",
     "mess",
     "nearest_other_km",
-    "plot_distance_ecdf",
-    "plot_variogram",
     "schoener_d",
 ]

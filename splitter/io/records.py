@@ -216,8 +216,9 @@ def read_records(
 
     Examples
     --------
-    >>> recs = read_records("demo_data/records.csv")  # doctest: +SKIP
-    >>> recs.counts()["presence"]  # doctest: +SKIP
+    >>> recs = read_records("demo_data/records.csv")
+    >>> int(recs.counts()["presence"]), recs.x_column, recs.y_column
+    (430, 'longitude', 'latitude')
     """
     notes = []
     if isinstance(path, pd.DataFrame):  # from Python: a DataFrame or a GeoDataFrame

@@ -1,4 +1,8 @@
-"""Write result tables, JSON and figures of audit, range and evaluation runs."""
+"""Write the result tables and JSON of audit, range and evaluation runs.
+
+Tables only: the figures that go beside them are drawn by
+:mod:`splitter.report.outputs`, which calls these writers.
+"""
 
 from __future__ import annotations
 
@@ -26,11 +30,8 @@ def write_json(obj, path) -> Path:
     return path
 
 
-def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
-    """evaluation.csv, evaluation.json and one ROC figure per fold (PNG + SVG)."""
-    from splitter.report.evaluation_figures import plot_roc
-    from splitter.report.style import save
-
+def write_evaluation_tables(result, out_dir, extra: dict | None = None) -> dict:
+    """evaluation.csv, scores.csv (when there are per-record scores) and evaluation.json."""
     out_dir = Path(out_dir)
     paths = {"table": write_csv(result.to_frame(), out_dir / "evaluation.csv")}
     scores = [f.scores for f in result.folds if f.scores is not None]
@@ -41,19 +42,11 @@ def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
     if extra:
         doc.update(extra)
     paths["json"] = write_json(doc, out_dir / "evaluation.json")
-    figs = []
-    for f in result.folds:
-        fig = plot_roc(f, result.parameters["omission"])
-        figs += save(fig, out_dir / "figures" / f"roc_fold_{f.row['fold']}")
-    paths["figures"] = out_dir / "figures"
     return paths
 
 
-def write_range(estimate, out_dir, extra: dict | None = None, chosen_block_km=None) -> dict:
-    """range.csv, range.json (with suggested_block_km) and the variogram figure."""
-    from splitter.dependence.figures import plot_variogram
-    from splitter.report.style import save
-
+def write_range_tables(estimate, out_dir, extra: dict | None = None) -> dict:
+    """range.csv and range.json (with suggested_block_km)."""
     out_dir = Path(out_dir)
     paths = {"table": write_csv(estimate.to_frame(), out_dir / "range.csv")}
     doc = estimate.to_dict()
@@ -61,25 +54,16 @@ def write_range(estimate, out_dir, extra: dict | None = None, chosen_block_km=No
     if extra:
         doc.update(extra)
     paths["json"] = write_json(doc, out_dir / "range.json")
-    fig = plot_variogram(estimate, chosen_block_km=chosen_block_km or estimate.suggested_block_km)
-    paths["figure"] = save(fig, out_dir / "variogram")[0]
     return paths
 
 
-def write_audit(result, context: dict, out_dir) -> dict:
-    """audit.csv, audit.json and the nearest-neighbour distance ECDF figure."""
-    from splitter.dependence.figures import plot_distance_ecdf
-    from splitter.report.style import save
-
+def write_audit_tables(result, context: dict, out_dir) -> dict:
+    """audit.csv and audit.json (the range estimate, if any, is written by its own writer)."""
     out_dir = Path(out_dir)
     paths = {"table": write_csv(result.to_frame(), out_dir / "audit.csv")}
     doc = result.to_dict()
     doc["context"] = {k: v for k, v in context.items() if k != "range_estimate"}
     paths["json"] = write_json(doc, out_dir / "audit.json")
-    fig = plot_distance_ecdf(result.distance, range_km=context.get("range_km"))
-    paths["figure"] = save(fig, out_dir / "distance_ecdf")[0]
-    if context.get("range_estimate") is not None:
-        paths["range"] = write_range(context["range_estimate"], out_dir / "range")["json"]
     return paths
 
 

@@ -6,12 +6,8 @@ files, nothing is typed in by hand. The run folder is only read; everything is
 written under OUT_DIR, atomically, and the same run folder always gives the
 same bytes.
 
-Examples
---------
->>> from splitter.report.appendix import build_appendix
->>> app = build_appendix("splitter-demo", "splitter-demo/appendix")  # doctest: +SKIP
->>> app.html.name  # doctest: +SKIP
-'appendix.html'
+``build_appendix(run_dir, out_dir)`` is the entry point; its docstring has a
+worked example on the demo's run folder.
 """
 
 from __future__ import annotations
@@ -90,9 +86,9 @@ def _truthy(v) -> bool:
 
 def _version(dist: str) -> str:
     if dist == "splitter":
-        import splitter
+        from splitter._version import __version__
 
-        return splitter.__version__
+        return __version__
     try:
         return metadata.version(dist)
     except metadata.PackageNotFoundError:
@@ -578,7 +574,7 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
     if range_doc is not None:
         block_km, block_split = _block_size_for_variogram(splits)
         try:
-            from splitter.dependence.figures import plot_variogram
+            from splitter.report.dependence_figures import plot_variogram
 
             est = range_estimate_from_dict(range_doc)
             fig = plot_variogram(est, chosen_block_km=block_km)
@@ -805,11 +801,21 @@ def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> A
 
     Examples
     --------
-    >>> from splitter.demo import run_demo
-    >>> run = run_demo("demo-run", replicates=100)  # doctest: +SKIP
-    >>> app = build_appendix("demo-run", "demo-run/appendix-10km", generalise_km=10)  # doctest: +SKIP
-    >>> sorted(p.name for p in app.figures)[:2]  # doctest: +SKIP
-    ['auc_ratio_intervals.png', 'auc_ratio_intervals.svg']
+    A run folder that holds only a fold table and its design sidecar already
+    gives an appendix (the design section and its map); ``splitter demo``
+    writes a full one, with audit and evaluation.
+
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from splitter.fold_design import design
+    >>> from splitter.io.foldtable import write_design
+    >>> tmp = tempfile.TemporaryDirectory()
+    >>> folds = design("demo_data/records_with_background.csv", method="blocks", folds=5, block_size=120, seed=1)
+    >>> _ = write_design(folds, Path(tmp.name) / "run" / "folds.csv")
+    >>> app = build_appendix(Path(tmp.name) / "run", Path(tmp.name) / "appendix-10km", generalise_km=10)
+    >>> app.html.name, sorted(p.name for p in app.figures)
+    ('appendix.html', ['map_run.png', 'map_run.svg'])
+    >>> tmp.cleanup()
     """
     if generalise_km is not None:
         g = _num(generalise_km)

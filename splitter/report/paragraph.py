@@ -9,8 +9,8 @@ test) can parse the numbers back:
 * distances: km with one decimal (``123.9 km``);
 * shares, AUC, AUC ratios, E and alpha: three decimals or fewer, trailing
   zeros kept for shares and ratios (``0.050``), not for E/alpha (``0.05``);
-* p-values: three significant digits, ``< 0.001`` below 0.001 (tables give
-  ``1.23e-05`` style values).
+* p-values: :func:`splitter.report.numbers.fmt_p`, three significant digits,
+  ``< 0.001`` below 0.001 (the terminal tables use the same function).
 """
 
 from __future__ import annotations
@@ -18,6 +18,8 @@ from __future__ import annotations
 import math
 
 import numpy as np
+
+from splitter.report.numbers import fmt_p  # one p-value format for text, tables and terminal
 
 METHOD_WORDS = {
     "blocks": "spatial blocks",
@@ -58,20 +60,6 @@ def fmt_share(x) -> str:
 def fmt_level(x) -> str:
     """A chosen level (E, alpha, a quantile) as given: ``0.05``."""
     return f"{float(x):g}"
-
-
-def fmt_p(p) -> str:
-    """A p-value: three significant digits, ``< 0.001`` below 0.001.
-
-    Examples
-    --------
-    >>> fmt_p(0.0123456), fmt_p(2e-9), fmt_p(0.4)
-    ('0.0123', '< 0.001', '0.4')
-    """
-    if p is None or (isinstance(p, float) and not math.isfinite(p)):
-        return ""
-    p = float(p)
-    return "< 0.001" if p < 0.001 else f"{p:.3g}"
 
 
 def fmt_list(items) -> str:

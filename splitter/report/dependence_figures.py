@@ -51,8 +51,8 @@ def plot_variogram(range_estimate: RangeEstimate, chosen_block_km: float | None 
     --------
     >>> rng = np.random.default_rng(0)
     >>> x, y = rng.uniform(0, 100, (2, 300))
-    >>> from splitter.dependence.variogram import estimate_range
-    >>> fig = plot_variogram(estimate_range(x, y, {"a": np.sin(x / 10)}))
+    >>> from splitter.dependence.variogram import fit_ranges
+    >>> fig = plot_variogram(fit_ranges(x, y, {"a": np.sin(x / 10)}))
     >>> len(fig.axes)
     1
     """

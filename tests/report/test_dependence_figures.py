@@ -1,4 +1,4 @@
-"""Tests for splitter.dependence.figures."""
+"""Tests for splitter.report.dependence_figures."""
 
 import io
 
@@ -8,8 +8,8 @@ import pytest
 from matplotlib.figure import Figure
 
 from splitter.dependence.distance import distance_diagnostics
-from splitter.dependence.figures import OKABE_ITO, plot_distance_ecdf, plot_variogram
 from splitter.dependence.variogram import fit_ranges
+from splitter.report.dependence_figures import OKABE_ITO, plot_distance_ecdf, plot_variogram
 from splitter.errors import InputError
 from splitter.geo import Points
 

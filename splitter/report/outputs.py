@@ -1,0 +1,53 @@
+"""A run's result files: the tables (written by :mod:`splitter.io.results`) and their figures.
+
+The command line, the batch runner and the demo write every audit, range and
+evaluation folder through these three functions, so the folders look the same
+whoever wrote them.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from splitter.io.results import write_audit_tables, write_evaluation_tables, write_range_tables
+
+
+def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
+    """evaluation.csv, scores.csv, evaluation.json and one ROC figure per fold (PNG + SVG)."""
+    from splitter.report.evaluation_figures import plot_roc
+    from splitter.report.style import save
+
+    out_dir = Path(out_dir)
+    paths = write_evaluation_tables(result, out_dir, extra=extra)
+    for f in result.folds:
+        fig = plot_roc(f, result.parameters["omission"])
+        save(fig, out_dir / "figures" / f"roc_fold_{f.row['fold']}")
+    paths["figures"] = out_dir / "figures"
+    return paths
+
+
+def write_range(estimate, out_dir, extra: dict | None = None, chosen_block_km=None) -> dict:
+    """range.csv, range.json (with suggested_block_km) and the variogram figure."""
+    from splitter.report.dependence_figures import plot_variogram
+    from splitter.report.style import save
+
+    out_dir = Path(out_dir)
+    paths = write_range_tables(estimate, out_dir, extra=extra)
+    fig = plot_variogram(estimate, chosen_block_km=chosen_block_km or estimate.suggested_block_km)
+    paths["figure"] = save(fig, out_dir / "variogram")[0]
+    return paths
+
+
+def write_audit(result, context: dict, out_dir) -> dict:
+    """audit.csv, audit.json, the nearest-neighbour distance ECDF figure and, when the
+    audit estimated the range itself, its range/ folder."""
+    from splitter.report.dependence_figures import plot_distance_ecdf
+    from splitter.report.style import save
+
+    out_dir = Path(out_dir)
+    paths = write_audit_tables(result, context, out_dir)
+    fig = plot_distance_ecdf(result.distance, range_km=context.get("range_km"))
+    paths["figure"] = save(fig, out_dir / "distance_ecdf")[0]
+    if context.get("range_estimate") is not None:
+        paths["range"] = write_range(context["range_estimate"], out_dir / "range")["json"]
+    return paths
