@@ -15,6 +15,7 @@ import sys
 from pathlib import Path
 from typing import List, Optional
 
+from typer._click import exceptions as _click_errors  # typer's own copy of click raises these
 import typer
 
 from splitter._version import __version__
@@ -55,8 +56,33 @@ class _HelpPage:
         return option
 
 
+    def parse_args(self, ctx, args):
+        try:
+            return super().parse_args(ctx, args)
+        except _click_errors.UsageError as e:
+            raise _one_line(e, ctx) from None
+
+
 class _Group(_HelpPage, typer.core.TyperGroup):
-    pass
+    def invoke(self, ctx):
+        # Unknown commands, unknown options and values that do not parse, in any
+        # subcommand, all pass through here.
+        try:
+            return super().invoke(ctx)
+        except _click_errors.UsageError as e:
+            raise _one_line(e, ctx) from None
+
+
+class _OneLineUsageError(_click_errors.UsageError):
+    """A wrong option value or an unknown option: one line on stderr, exit 2."""
+
+    def show(self, file=None):
+        where = self.ctx.command_path if self.ctx is not None else "splitter"
+        print(f"splitter: error: {self.format_message()} (see '{where} --help')", file=sys.stderr)
+
+
+def _one_line(e, ctx):
+    return e if isinstance(e, _OneLineUsageError) else _OneLineUsageError(e.format_message(), ctx=e.ctx or ctx)
 
 
 class _Command(_HelpPage, typer.core.TyperCommand):
