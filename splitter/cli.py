@@ -158,7 +158,7 @@ def guarded(fn):
             with output_lock(target, folder="out_dir" in kwargs):
                 return fn(*args, **kwargs)
         except InputError as e:
-            _fail(str(e))
+            _fail(as_flags(str(e)))  # library errors name parameters; here, options
         except FileNotFoundError as e:
             _fail(f"{e.filename}: no such file; check the path.")
         except KeyboardInterrupt:
@@ -253,7 +253,7 @@ def design(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for every random step."),
+    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for every random step."),
     out_path: Path = typer.Option(..., "--out", metavar="PATH", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
     """Design calibration/evaluation folds before modelling."""
@@ -283,6 +283,9 @@ FLAGS = {
     "covariates": "--covariate-column", "group_column": "--group-column", "calibrate_on": "--calibrate-on",
     "evaluate_on": "--evaluate-on", "time_column": "--time-column", "periods": "--periods",
     "calibrate_before": "--calibrate-before", "seed": "--seed", "count": "--background-count", "region": "--region",
+    "predictions": "--predictions", "prediction_table": "--prediction-table", "threshold": "--threshold",
+    "omission": "--omission", "replicates": "--replicates", "alpha": "--alpha", "adjust": "--adjust",
+    "null_splits": "--null-splits", "fold_column": "--fold-column", "role_column": "--role-column",
 }
 
 
@@ -388,7 +391,7 @@ def evaluate(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for the bootstrap and the null."),
+    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the bootstrap and the null."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'not-significant': exit 1 when any fold is not significant."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
@@ -439,7 +442,7 @@ def range_command(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for the cell or record sample."),
+    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the cell or record sample."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Estimate the autocorrelation range (from rasters or the records' own columns) and suggest a block size."""
@@ -518,7 +521,7 @@ def audit(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    seed: int = typer.Option(0, "--seed", metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
+    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
     null_splits: int = typer.Option(199, "--null-splits", metavar="N", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'dependent': exit 1 when any fold is flagged."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
@@ -579,7 +582,7 @@ def appendix(
 @guarded
 def demo(
     out_dir: Path = typer.Argument(Path("splitter-demo"), metavar="OUT_DIR", help="Where to write the demo run."),
-    seed: int = typer.Option(1, "--seed", metavar="N", help="Seed for every random step."),
+    seed: int = typer.Option(1, "--seed", min=0, metavar="N", help="Seed for every random step."),
     replicates: int = typer.Option(1000, "--replicates", metavar="N", help="Partial ROC bootstrap replicates."),
 ):
     """Run the whole job on the bundled invented scenario: range, folds, audit, evaluation, appendix."""

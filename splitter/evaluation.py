@@ -369,7 +369,19 @@ def evaluate(
     else:
         model_label = "user predictions"
 
+    if predictions is not None and "{fold}" not in str(predictions):
+        raise InputError(f"predictions={str(predictions)!r}: give a pattern with {{fold}} in it (e.g. "
+                         "'preds/fold_{fold}.tif'), so that each fold is tested on its own model's predictions.")
     table = _read_prediction_table(prediction_table, assignment) if prediction_table is not None else None
+    if table is not None:
+        known = set(assignment.record_id.astype(str))
+        ids = set(table["record_id"])
+        matched = len(ids & known)
+        if matched == 0:
+            raise InputError(
+                f"prediction_table: none of its {len(ids)} record ids matched the fold table's {len(known)} "
+                f"(matched 0; e.g. {sorted(ids)[0]!r} against {sorted(known)[0]!r}); its record_id column must hold "
+                "the fold table's record_id values.")
     folds_out = []
     for i in assignment.folds:
         label = names.get(i, str(i))
