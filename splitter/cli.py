@@ -591,33 +591,47 @@ def demo(
     with progress() as bar:
         task = bar.add_task("starting", total=None)
         run = run_demo(out_dir, seed=seed, replicates=replicates, step=lambda s: bar.update(task, description=s))
-    _out().print(demo_summary(run))
-    _out().print(f"autocorrelation range (blocks and buffer): {run.range_km:.1f} km")
-    _out().print(f"outputs: {run.out_dir}")
-    _out().print(f"appendix: {run.appendix.html}")
+    out = _out()
+    out.print(demo_summary(run))
+    out.print(f"autocorrelation range (blocks and buffer): {run.range_km:.1f} km")
+    if run.optimism is not None:
+        o = run.optimism
+        out.print(f"one flexible model, both splits: AUC {o.means[o.reference]['auc']:.3f} ({o.reference}), "
+                  f"{o.means[o.compared]['auc']:.3f} ({o.compared}); the {o.compared} split claims "
+                  f"{o.differences['auc']:+.3f}")
+    out.print(f"outputs: {run.out_dir}")
+    out.print(f"appendix: {run.appendix.html}")
+    for line in _demo_next_steps(run):
+        out.print(line, markup=False, soft_wrap=True)
 
 
 def demo_summary(run):
-    names = list(run.splits)
-    t = _table("demo: spatial blocks against a random split")
-    t.add_column("fold", justify="right")
-    for n in names:
-        t.add_column(f"{n}: audit", justify="left")
-        t.add_column(f"{n}: NN km", justify="right")
-        t.add_column(f"{n}: significance", justify="left")
-        t.add_column(f"{n}: AUC ratio", justify="right")
-    k = max(len(s["audit"].verdicts) for s in run.splits.values())
-    for i in range(k):
-        cells = [str(i + 1)]
-        for n in names:
-            a, e = run.splits[n]["audit"], run.splits[n]["evaluation"]
-            row = e.folds[i].row
-            nn = a.to_frame()["nn_median_km"].iloc[i]
-            cells += [a.verdicts[i], f"{nn:.1f}", "significant" if row["significant"] else "do not interpret",
-                      f"{row['auc_ratio']:.3f}" if row["significant"] else "-"]
-        t.add_row(*cells)
-    t.caption = "NN km: median distance from evaluation presences to the nearest calibration presence"
+    from rich import box
+
+    t = _table("demo: spatial blocks against a random split", box=box.SIMPLE_HEAD, padding=(0, 1))
+    for c in ("split", "fold", "audit", "NN km", "verdict", "AUC ratio", "null"):
+        t.add_column(c, justify="left" if c in ("split", "audit", "verdict") else "right", no_wrap=True)
+    for n, split in run.splits.items():
+        a, e = split["audit"], split["evaluation"]
+        nn = a.to_frame()["nn_median_km"].to_numpy()
+        for i, f in enumerate(e.folds):
+            row = f.row
+            t.add_row(n if i == 0 else "", row["fold"], a.verdicts[i], f"{nn[i]:.1f}", row["interpretation"],
+                      f"{row['auc_ratio']:.3f}", f"{row['auc_ratio_null_median']:.3f}")
+        t.add_section()
+    t.caption = ("NN km: median distance from an evaluation presence to the nearest calibration presence; "
+                 "null: median AUC ratio of as many presences placed at random")
     return t
+
+
+def _demo_next_steps(run) -> list[str]:
+    """The same job on one's own records, in three commands."""
+    return [
+        "the same job on your own records (add --env RASTER for covariates):",
+        "  splitter design RECORDS.csv --block-size KM --buffer KM --out folds.csv",
+        "  splitter audit folds.csv --out audit/",
+        "  splitter evaluate folds.csv --prediction-table PREDS.csv --out evaluation/",
+    ]
 
 
 def batch_command(
