@@ -7,6 +7,7 @@ are read as text so that ``1.50`` stays ``1.50``). Rows that cannot take part ge
 
 from __future__ import annotations
 
+import csv as _csv
 import hashlib
 import io as _io
 from dataclasses import dataclass, field
@@ -170,6 +171,11 @@ def _read_csv_table(path: Path) -> pd.DataFrame:
     # Comma unless the header plainly uses another delimiter (semicolon CSVs from
     # spreadsheets with a decimal comma, or tab-separated text).
     sep = max((",", ";", "\t"), key=lambda d: (header.count(d), d == ","))
+    names = next(_csv.reader([header.rstrip("\r")], delimiter=sep))
+    twice = sorted({n.strip() for n in names if n.strip() and sum(m.strip() == n.strip() for m in names) > 1})
+    if twice:
+        raise InputError(f"{path}: column '{twice[0]}' appears more than once in the header; "
+                         "rename the copies so each column has its own name.")
     try:
         table = pd.read_csv(_io.StringIO(text), sep=sep, dtype=str, keep_default_na=False, na_filter=False)
     except pd.errors.EmptyDataError:
@@ -235,6 +241,8 @@ def read_records(
         path = Path(path)
         if not path.exists():
             raise InputError(f"{path}: no such file; check the path.")
+        if path.is_dir():
+            raise InputError(f"{path}: is a folder; give the records file inside it.")
         sources = {str(path): sha256_of(path)}
         if path.suffix.lower() in VECTOR_SUFFIXES:
             table, pts, x_col, y_col = _read_vector(path, crs, notes)
@@ -263,6 +271,14 @@ def read_records(
                 else " If the coordinates are projected, give their CRS with --crs."
             )
             raise InputError(f"{path}: {int(bad_lat.sum())} of {int(finite.sum())} rows have latitudes outside -90..90.{hint}")
+        east = finite & (pts.x > 180) & (pts.x <= 360)
+        if east.sum() > 0.5 * finite.sum():
+            # Longitudes given 0..360 (common in climate grids): not guessed at, since a
+            # wrong shift moves every record to the other side of the globe.
+            raise InputError(
+                f"{path}: {int(east.sum())} of {int(finite.sum())} rows have longitudes in '{x_col or 'the geometry'}' "
+                "between 180 and 360 (the 0..360 convention); subtract 360 from values above 180 to give -180..180."
+            )
         dropped[finite & ~(lon_ok & lat_ok)] = "coordinates-out-of-range"
 
     record_id = _record_ids(table, path, id_column)
@@ -284,14 +300,15 @@ def _csv_points(table, path, x, y, crs, notes):
         )
     xs = _numbers(table[x_col])
     ys = _numbers(table[y_col])
-    if crs is None:
-        crs_obj = WGS84
-    else:
-        try:
-            crs_obj = pyproj.CRS.from_user_input(crs)
-        except pyproj.exceptions.CRSError:
-            raise InputError(f"--crs {crs}: not a CRS pyproj knows; give e.g. EPSG:4326 or EPSG:3035.") from None
+    crs_obj = WGS84 if crs is None else _given_crs(crs)
     return Points(xs, ys, crs_obj), x_col, y_col
+
+
+def _given_crs(crs) -> pyproj.CRS:
+    try:
+        return pyproj.CRS.from_user_input(crs)
+    except pyproj.exceptions.CRSError:
+        raise InputError(f"--crs {crs}: not a CRS pyproj knows; give e.g. EPSG:4326 or EPSG:3035.") from None
 
 
 def _numbers(column: pd.Series) -> np.ndarray:
@@ -330,7 +347,7 @@ def _vector_frame(gdf, path, crs, notes):
     ys = np.where(empty, np.nan, geom.y.where(~empty).to_numpy(float))
     file_crs = gdf.crs
     if crs is not None:
-        crs_obj = pyproj.CRS.from_user_input(crs)
+        crs_obj = _given_crs(crs)
         if file_crs is not None and pyproj.CRS.from_user_input(file_crs) != crs_obj:
             notes.append(f"{name}: --crs {crs} overrides the file's CRS.")
     elif file_crs is not None:
