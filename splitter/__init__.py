@@ -52,9 +52,12 @@ _EXPORTS = {
     "read_records": ("splitter.io.records", "read_records"),
     "FoldAssignment": ("splitter.partition.assignment", "FoldAssignment"),
     # split rules: splitter.SpatialBlocks(folds=5, block_size=120)
-    **{name: ("splitter.partition", name) for name in (
-        "FoldRule", "SpatialBlocks", "Hexagons", "Checkerboard", "EnvironmentClusters", "Groups", "HoldoutGroup",
-        "Periods", "HoldoutPeriod", "LaterPeriod", "RandomFolds", "LeaveOneOut", "DesignParameters")},
+    # (the core rules in splitter.partition, with reading records added by the shell)
+    **{name: ("splitter.fold_design", name) for name in (
+        "SpatialBlocks", "Hexagons", "Checkerboard", "EnvironmentClusters", "Groups", "HoldoutGroup",
+        "Periods", "HoldoutPeriod", "LaterPeriod", "RandomFolds", "LeaveOneOut")},
+    "FoldRule": ("splitter.partition", "FoldRule"),
+    "DesignParameters": ("splitter.partition", "DesignParameters"),
 }
 # Subpackages reachable as attributes (``splitter.io.records``) without an explicit import.
 _SUBPACKAGES = ("dependence", "io", "partition", "report")

@@ -11,8 +11,139 @@ from splitter._version import __version__
 from splitter.errors import InputError
 from splitter.geo import Points, equal_area_crs
 from splitter.io.records import Records, as_records
-from splitter.partition import RULES, FoldAssignment, FoldRule, LaterPeriod, buffer_gaps
+from splitter import partition as core
+from splitter.geo import planar_km
+from splitter.partition import FoldAssignment, FoldRule, buffer_gaps
 from splitter.partition.base import RuleInput, imbalance
+
+
+# --- the rules as users build them -------------------------------------------
+
+class ReadsRecords:
+    """What the shell adds to a core rule: records from a path or a data frame,
+    ``assign`` and scikit-learn's splitter protocol. (The core rules in
+    :mod:`splitter.partition` work on arrays and read nothing.)"""
+
+    def assign(self, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None) -> FoldAssignment:
+        """Folds for ``records``: a path, a pandas DataFrame with coordinate
+        columns (``crs`` names their CRS, default EPSG:4326), a GeoDataFrame or a
+        :class:`splitter.Records`.
+
+        Returns
+        -------
+        FoldAssignment
+        """
+        return assign_records(self, records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+
+    def get_n_splits(self, X=None, y=None, groups=None) -> int:
+        """Number of (calibration, evaluation) pairs ``split`` yields."""
+        if getattr(self, "folds", None) is not None and not self.one_way:
+            return int(self.folds)
+        if self.one_way:
+            return 1
+        if X is None:
+            raise ValueError(f"{type(self).__name__}: the number of folds depends on the data; pass X.")
+        return self._assignment_for(X, y, groups).n_folds
+
+    def split(self, X, y=None, groups=None):
+        """scikit-learn splitter protocol: (calibration, evaluation) row positions per fold.
+
+        ``X`` is a GeoDataFrame or a DataFrame with coordinate columns (detected
+        as for CSV), one row per record. Kinds come from a ``kind`` column of
+        ``X`` or else from ``y`` (1 = presence, 0 = background); ``groups``
+        stands in for ``group_column``. Rows that cannot be used (no
+        coordinates) appear in no set.
+        """
+        a = self._assignment_for(X, y, groups)
+        for i in a.folds:
+            yield a.calibration(i), a.evaluation(i)
+
+    def _assignment_for(self, X, y, groups):
+        if not (hasattr(X, "columns") or hasattr(X, "points")):
+            raise InputError(f"X: got {type(X).__name__}; give a GeoDataFrame or a DataFrame with coordinate columns "
+                             "(one row per record), so the rule can see where each record is.")
+        return assign_records(self, X, labels=y, groups=groups)
+
+
+# The public classes: each core rule (same name, settings, docs and repr) that also reads records.
+
+class SpatialBlocks(ReadsRecords, core.SpatialBlocks):
+    __doc__ = core.SpatialBlocks.__doc__
+
+
+class Hexagons(ReadsRecords, core.Hexagons):
+    __doc__ = core.Hexagons.__doc__
+
+
+class Checkerboard(ReadsRecords, core.Checkerboard):
+    __doc__ = core.Checkerboard.__doc__
+
+
+class EnvironmentClusters(ReadsRecords, core.EnvironmentClusters):
+    __doc__ = core.EnvironmentClusters.__doc__
+
+
+class Groups(ReadsRecords, core.Groups):
+    __doc__ = core.Groups.__doc__
+
+
+class HoldoutGroup(ReadsRecords, core.HoldoutGroup):
+    __doc__ = core.HoldoutGroup.__doc__
+
+
+class Periods(ReadsRecords, core.Periods):
+    __doc__ = core.Periods.__doc__
+
+
+class HoldoutPeriod(ReadsRecords, core.HoldoutPeriod):
+    __doc__ = core.HoldoutPeriod.__doc__
+
+
+class RandomFolds(ReadsRecords, core.RandomFolds):
+    __doc__ = core.RandomFolds.__doc__
+
+
+class LeaveOneOut(ReadsRecords, core.LeaveOneOut):
+    __doc__ = core.LeaveOneOut.__doc__
+
+
+class LaterPeriod(ReadsRecords, core.LaterPeriod):
+    __doc__ = core.LaterPeriod.__doc__
+
+
+#: ``design()`` method name -> public rule class (the same names as ``splitter.partition.RULES``).
+_PUBLIC = {c.__name__: c for c in (SpatialBlocks, Hexagons, Checkerboard, EnvironmentClusters, Groups, HoldoutGroup,
+                                   Periods, HoldoutPeriod, RandomFolds, LeaveOneOut)}
+RULES = {method: _PUBLIC[c.__name__] for method, c in core.RULES.items()}
+RULE_CLASSES = (*RULES.values(), LaterPeriod)
+
+
+def choose_block_size(rule, data: RuleInput) -> RuleInput:
+    """Resolve ``block_size='auto'`` (variogram range of the covariates) or
+    ``'match'`` (the size whose evaluation distances match prediction distances)
+    for the core rule; other rules and sizes pass through unchanged."""
+    inner = getattr(rule, "rule", rule)  # a space-and-time design lays its inner rule's cells
+    choice = getattr(inner, "block_size", None)
+    if choice not in ("auto", "match"):
+        return data
+    if choice == "auto":
+        from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records  # reads the rasters
+
+        if inner.env:
+            est = estimate_range_from_rasters(list(inner.env), sample=inner.range_sample, seed=inner.seed)
+        else:  # the records' own covariate columns
+            est = estimate_range_from_records(data.records, covariates=list(inner.covariates),
+                                              sample=inner.range_sample, seed=inner.seed)
+        size = float(est.suggested_block_km)
+        how = {"block_size_rule": "auto", "range_km": size, "range_summary": est.to_dict()}
+    else:
+        from splitter.matching import match_block_size
+
+        pts = data.points
+        x_km, y_km = planar_km(pts, pts.crs if not pts.geographic else equal_area_crs(pts))
+        ladder = match_block_size(inner, pts, x_km, y_km, data.is_presence)
+        size, how = ladder.chosen_km, {"block_size_rule": "match", "ladder": ladder.to_dict()}
+    return replace(data, block_size_km=size, block_choice=how)
 
 
 def attach_covariates(records: Records, env=(), covariates=()) -> tuple[Records, np.ndarray | None, list[str], list[str]]:
@@ -107,7 +238,7 @@ def design(
 ) -> FoldAssignment:
     """Make calibration/evaluation folds for occurrence records.
 
-    A small lookup: ``method`` names a rule class (``splitter.partition.RULES``),
+    A small lookup: ``method`` names a rule class (``RULES``),
     which is built from the settings it takes and asked to ``assign`` the records.
 
     Parameters
@@ -194,7 +325,7 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
         covariates=None if env_matrix is None else env_matrix[idx], covariate_names=tuple(env_names),
         groups=None if groups is None else np.asarray(groups, object)[idx], records=recs,
     )
-    made = rule._folds(data)
+    made = rule._folds(choose_block_size(rule, data))
     fold = np.full(len(recs), -1, np.int64)
     fold[idx] = made.fold
     dropped = recs.dropped.copy()

@@ -94,7 +94,11 @@ class RuleInput:
     groups : ndarray or None
         Group labels given to ``split(X, y, groups)``.
     records : Records or None
-        The whole record set (for block_size='auto' from covariate columns).
+        The whole record set, as the shell read it.
+    block_size_km : float or None
+        The cell size the shell chose when a rule was given ``block_size='auto'``
+        or ``'match'`` (both read rasters or fit models, which the core does not),
+        and ``block_choice`` how it was chosen.
     """
 
     points: object
@@ -105,6 +109,8 @@ class RuleInput:
     covariate_names: tuple = ()
     groups: np.ndarray | None = None
     records: object = None
+    block_size_km: float | None = None
+    block_choice: dict = field(default_factory=dict)
 
     @property
     def is_presence(self) -> np.ndarray:
@@ -251,6 +257,10 @@ class FoldRule:
     Subclasses set ``method`` (the ``design()`` name), check their settings in
     ``__init__`` (storing each under its parameter name) and write
     ``_folds(data: RuleInput) -> RuleFolds``. Everything else is shared.
+
+    The core rule works on arrays only. Reading records (a path or a data
+    frame), ``assign`` and scikit-learn's ``split`` are added by the public
+    classes in :mod:`splitter.fold_design` (``splitter.SpatialBlocks`` and so on).
     """
 
     method: str = ""
@@ -295,51 +305,6 @@ class FoldRule:
     def design_parameters(self, n_folds: int) -> DesignParameters:
         """The settings part of the design record (measures are added by ``assign``)."""
         return DesignParameters(method=self.method, folds=int(n_folds), seed=self.seed, buffer_km=self.buffer, rule=self)
-
-    # -- shared steps
-    def assign(self, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None):
-        """Folds for ``records``: a path, a pandas DataFrame with coordinate
-        columns (``crs`` names their CRS, default EPSG:4326), a GeoDataFrame or a
-        :class:`splitter.Records`.
-
-        Returns
-        -------
-        FoldAssignment
-        """
-        from splitter.fold_design import assign_records  # the shell reads files and rasters
-
-        return assign_records(self, records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
-
-    def get_n_splits(self, X=None, y=None, groups=None) -> int:
-        """Number of (calibration, evaluation) pairs ``split`` yields."""
-        if getattr(self, "folds", None) is not None and not self.one_way:
-            return int(self.folds)
-        if self.one_way:
-            return 1
-        if X is None:
-            raise ValueError(f"{type(self).__name__}: the number of folds depends on the data; pass X.")
-        return self._assignment_for(X, y, groups).n_folds
-
-    def split(self, X, y=None, groups=None):
-        """scikit-learn splitter protocol: (calibration, evaluation) row positions per fold.
-
-        ``X`` is a GeoDataFrame or a DataFrame with coordinate columns (detected
-        as for CSV), one row per record. Kinds come from a ``kind`` column of
-        ``X`` or else from ``y`` (1 = presence, 0 = background); ``groups``
-        stands in for ``group_column``. Rows that cannot be used (no
-        coordinates) appear in no set.
-        """
-        a = self._assignment_for(X, y, groups)
-        for i in a.folds:
-            yield a.calibration(i), a.evaluation(i)
-
-    def _assignment_for(self, X, y, groups):
-        from splitter.fold_design import assign_records
-
-        if not (hasattr(X, "columns") or hasattr(X, "points")):
-            raise InputError(f"X: got {type(X).__name__}; give a GeoDataFrame or a DataFrame with coordinate columns "
-                             "(one row per record), so the rule can see where each record is.")
-        return assign_records(self, X, labels=y, groups=groups)
 
 
 def _same(a, b) -> bool:

@@ -98,7 +98,7 @@ class _CellRule(FoldRule):
         pts = data.points
         crs = pts.crs if not pts.geographic else equal_area_crs(pts)
         x_km, y_km = planar_km(pts, crs)
-        size, measured = resolve_block_size(self, data, x_km, y_km)
+        size, measured = resolve_block_size(self, data)
         fold, more = self.folds_at(x_km, y_km, data.is_presence, size)
         more["presence_imbalance"] = round(more["presence_imbalance"], 4)
         more["background_imbalance"] = round(more["background_imbalance"], 4)
@@ -116,6 +116,7 @@ class SpatialBlocks(_CellRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import SpatialBlocks  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": [1e3, 2e3, 51e3, 52e3, 101e3, 102e3], "y": [1e3] * 6})  # metres
     >>> rule = SpatialBlocks(folds=3, block_size=50, random_offset=False)
     >>> rule
@@ -136,6 +137,7 @@ class Hexagons(_CellRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import Hexagons  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": [0, 1e3, 200e3, 201e3], "y": [0] * 4})  # metres
     >>> a = Hexagons(folds=2, block_size=50, random_offset=False).assign(pts, crs="EPSG:3035")
     >>> a.fold.tolist() in ([1, 1, 2, 2], [2, 2, 1, 1])
@@ -166,21 +168,15 @@ def check_block_size(block_size, method: str, env, covariates=()) -> float | str
     return size
 
 
-def resolve_block_size(rule, data, x_km, y_km) -> tuple[float, dict]:
-    """The cell size in km, and how it was chosen."""
-    if rule.block_size == "auto":
-        from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records  # reads the rasters
+def resolve_block_size(rule, data) -> tuple[float, dict]:
+    """The cell size in km, and how it was chosen.
 
-        if rule.env:
-            est = estimate_range_from_rasters(list(rule.env), sample=rule.range_sample, seed=rule.seed)
-        else:  # the records' own covariate columns
-            est = estimate_range_from_records(data.records, covariates=list(rule.covariates), sample=rule.range_sample,
-                                              seed=rule.seed)
-        size = float(est.suggested_block_km)
-        return size, {"block_size_rule": "auto", "range_km": size, "range_summary": est.to_dict()}
-    if rule.block_size == "match":
-        from splitter.matching import match_block_size
-
-        ladder = match_block_size(rule, data.points, x_km, y_km, data.is_presence)
-        return ladder.chosen_km, {"block_size_rule": "match", "ladder": ladder.to_dict()}
+    'auto' and 'match' are chosen by the shell (they read rasters or fit
+    variograms) and arrive in ``data.block_size_km`` / ``data.block_choice``.
+    """
+    if rule.block_size in ("auto", "match"):
+        if data.block_size_km is None:
+            raise InputError(f"block_size={rule.block_size!r}: the size is chosen when records are read; "
+                             "call assign() or splitter.design(), not the core rule.")
+        return float(data.block_size_km), dict(data.block_choice)
     return float(rule.block_size), {"block_size_rule": "given"}

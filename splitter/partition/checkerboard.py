@@ -49,6 +49,7 @@ class Checkerboard(_CellRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import Checkerboard  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": [500, 1500, 500, 1500], "y": [500, 500, 1500, 1500]})  # metres
     >>> rule = Checkerboard(folds=2, block_size=1.0, random_offset=False)
     >>> rule.assign(pts, crs="EPSG:3035").fold.tolist()
@@ -79,7 +80,7 @@ class Checkerboard(_CellRule):
         pts = data.points
         crs = pts.crs if not pts.geographic else equal_area_crs(pts)
         x_km, y_km = planar_km(pts, crs)
-        size, measured = resolve_block_size(self, data, x_km, y_km)
+        size, measured = resolve_block_size(self, data)
         fold, more = self.folds_at(x_km, y_km, data.is_presence, size)
         for q in range(1, self.folds + 1):
             if not np.any(data.is_presence & (fold == q)):

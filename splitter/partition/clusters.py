@@ -49,6 +49,7 @@ class EnvironmentClusters(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import EnvironmentClusters  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": range(8), "y": [0] * 8,
     ...                     "temp": [1, 2, 1, 2, 1, 20, 21, 20]})
     >>> rule = EnvironmentClusters(folds=2, covariates=["temp"])

@@ -130,6 +130,7 @@ class Groups(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import Groups  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": range(5), "y": [0] * 5,
     ...                     "method": ["trap", "trap", "net", "trap", "net"]})
     >>> rule = Groups(group_column="method")
@@ -163,6 +164,7 @@ class HoldoutGroup(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import HoldoutGroup  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": range(5), "y": [0] * 5,
     ...                     "source": ["museum", "survey", "survey", "museum", "atlas"]})
     >>> a = HoldoutGroup("source", calibrate_on="museum", evaluate_on="survey").assign(pts, crs="EPSG:3035")
@@ -201,6 +203,7 @@ class RandomFolds(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import RandomFolds  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": range(6), "y": [0] * 6})
     >>> a = RandomFolds(folds=3, seed=1).assign(pts, crs="EPSG:3035")
     >>> sorted(a.fold.tolist())
@@ -224,6 +227,7 @@ class LeaveOneOut(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import LeaveOneOut  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": [0, 10e3, 20e3, 5e3], "y": [0] * 4,  # metres
     ...                     "kind": ["presence", "presence", "presence", "background"]})
     >>> a = LeaveOneOut(buffer=6).assign(pts, crs="EPSG:3035")

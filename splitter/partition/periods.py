@@ -119,6 +119,7 @@ class Periods(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import Periods  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": range(6), "y": [0] * 6,
     ...                     "year": [2001, 2001, 2002, 2003, 2004, 2004]})
     >>> rule = Periods(time_column="year", periods=3)
@@ -172,6 +173,7 @@ class HoldoutPeriod(FoldRule):
     Examples
     --------
     >>> import pandas as pd
+    >>> from splitter import HoldoutPeriod  # the public class reads data frames
     >>> pts = pd.DataFrame({"x": range(4), "y": [0] * 4, "year": [2010, 2015, 2019, 2021]})
     >>> HoldoutPeriod(time_column="year", calibrate_before=2018).assign(pts, crs="EPSG:3035").fold.tolist()
     [0, 0, 1, 1]
@@ -217,7 +219,8 @@ class LaterPeriod(FoldRule):
     Examples
     --------
     >>> import pandas as pd
-    >>> from splitter.partition.groups import Groups
+    >>> from splitter import LaterPeriod  # the public class reads data frames
+    >>> from splitter import Groups
     >>> pts = pd.DataFrame({"x": range(4), "y": [0] * 4, "site": ["a", "a", "b", "b"],
     ...                     "year": [2010, 2020, 2010, 2020]})
     >>> rule = LaterPeriod(Groups("site"), time_column="year", calibrate_before=2015)
