@@ -457,6 +457,7 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     from splitter.fold_design import design
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.loading import load_records
+    from splitter.partition.testability import check_folds
     from splitter.report.outputs import write_audit, write_evaluation
 
     o = spec.options
@@ -469,7 +470,9 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
                         env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
                         calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"])
-    write_design(assignment, work / "folds.csv", command=commands["design"])
+    # The design checks at the row's own alpha and omission (batch adjusts with Holm, evaluate's default).
+    write_design(assignment, work / "folds.csv", command=commands["design"],
+                 checks=check_folds(assignment, alpha=o["alpha"], omission=o["omission"]))
     check()
     summary = {"method": assignment.method, "folds": int(assignment.n_folds),
                "n_presence": int(np.sum((assignment.fold >= 0) & (assignment.kind == "presence"))),

@@ -253,12 +253,16 @@ def design(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    alpha: float = typer.Option(0.05, "--alpha", metavar="ALPHA", help="Significance level the folds will be tested at (for the design checks)."),
+    adjust: str = typer.Option("holm", "--adjust", metavar="METHOD", help="'holm' or 'none', as evaluate will use it (for the design checks)."),
+    omission: float = typer.Option(0.05, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E evaluate will use (for the design checks)."),
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for every random step."),
     out_path: Path = typer.Option(..., "--out", metavar="PATH", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
-    """Design calibration/evaluation folds before modelling."""
+    """Design calibration/evaluation folds before modelling, and say what each fold's tests can show."""
     from splitter.io.foldtable import write_design
     from splitter.loading import load_records
+    from splitter.partition.testability import check_folds
 
     with progress() as bar, flag_names():
         from splitter.fold_design import rule_for
@@ -272,9 +276,28 @@ def design(
                             seed=seed)
         bar.add_task(f"making {method} folds", total=None)
         assignment = rule.assign(recs)
+        checks = check_folds(assignment, alpha=alpha, adjust=adjust, omission=omission)
         bar.add_task("writing outputs", total=None)
-        paths = write_design(assignment, out_path, command=command_line())
-    _print_design(assignment, paths)
+        paths = write_design(assignment, out_path, command=command_line(), checks=checks)
+    _print_design(assignment, paths, checks)
+
+
+def fold_checks_table(checks):
+    """What each fold's tests can show, in 80 columns."""
+    t = _table(f"what each fold can show (alpha {checks.alpha:g}"
+               + (", Holm across folds" if checks.adjust == "holm" else "") + f", omission {checks.omission:g})")
+    for c in ("fold", "eval presences", "binomial bound", "pROC may omit", "buffer removes"):
+        t.add_column(c, justify="right")
+    show = checks.folds[:25]
+    for f in show:
+        t.add_row(str(f.fold), str(f.evaluation_presences), f"{f.binomial_bound:.0%}", "yes" if f.can_omit else "no",
+                  f"{f.buffer_record_share:.0%} / {f.buffer_presence_share:.0%}")
+    t.caption = ("binomial bound: the largest share of the area a model may predict present and still be "
+                 "significant if it hits every evaluation presence; buffer removes: share of the fold's calibration "
+                 "records / presences")
+    if len(checks.folds) > 25:
+        t.caption += f"; {len(checks.folds) - 25} more folds in the sidecar"
+    return t
 
 
 # Python parameter -> command-line option, for the design settings (the one place they meet).
@@ -318,9 +341,12 @@ def flag_names():
         raise InputError(as_flags(str(e))) from None
 
 
-def _print_design(assignment, paths):
+def _print_design(assignment, paths, checks):
     p = assignment.parameters  # a DesignParameters
     _out().print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
+    _out().print(fold_checks_table(checks))
+    for w in checks.warnings():
+        _out().print(f"warning: {w}")
     if p.block_size_km:
         _out().print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
     if p.presence_imbalance is not None:

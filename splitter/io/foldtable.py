@@ -12,6 +12,7 @@ from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
 from splitter.io.records import Records, read_records
 from splitter.partition.assignment import FoldAssignment
+from splitter.partition.testability import check_folds
 
 TABLE_SUFFIXES = (".csv", ".gpkg", ".parquet")
 ROLE_VALUES = {
@@ -106,11 +107,18 @@ def design_summary(assignment: FoldAssignment) -> dict:
     }
 
 
-def write_design(assignment: FoldAssignment, out, command: str | None = None) -> dict:
+def write_design(assignment: FoldAssignment, out, command: str | None = None, checks=None) -> dict:
     """Write the fold table, its gaps file (with a buffer) and the design sidecar.
+
+    ``checks`` (a :class:`splitter.partition.testability.FoldChecks`) is what each
+    fold's tests can show; by default it is measured at alpha 0.05 with Holm's
+    adjustment and omission 0.05 (``evaluate``'s defaults). A fold with no
+    evaluation presence is an error.
 
     Returns the paths written, by role.
     """
+    if checks is None:
+        checks = check_folds(assignment)
     out = Path(out)
     frame = assignment.to_frame(text=True)
     pts = assignment.records.points if assignment.records is not None else None
@@ -129,6 +137,7 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
         paths["gaps"] = gaps_path
     side = companion(out, ".design.json")
     summary = design_summary(assignment)
+    summary["checks"] = checks.to_dict()
     summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
     if command:
         summary["command"] = command

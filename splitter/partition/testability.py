@@ -89,7 +89,7 @@ class FoldChecks:
 
     def to_dict(self) -> dict:
         return {"alpha": self.alpha, "adjust": self.adjust, "omission": self.omission,
-                "folds": [f.__dict__.copy() for f in self.folds]}
+                "folds": [f.__dict__.copy() for f in self.folds], "warnings": self.warnings()}
 
 
 def check_folds(assignment, alpha: float = 0.05, adjust: str = "holm", omission: float = 0.05) -> FoldChecks:
@@ -124,6 +124,10 @@ def check_folds(assignment, alpha: float = 0.05, adjust: str = "holm", omission:
     """
     if not 0 < alpha < 1:
         raise InputError(f"alpha={alpha}: give a level between 0 and 1 (e.g. 0.05).")
+    if adjust not in ("holm", "none"):
+        raise InputError(f"adjust={adjust!r}: give 'holm' (adjust fold p-values across folds) or 'none'.")
+    if not 0 <= omission < 1:
+        raise InputError(f"omission={omission}: give a share between 0 and 1 (e.g. 0.05).")
     k = len(assignment.folds)
     level = alpha / k if adjust == "holm" and k > 1 else alpha
     rows = []
@@ -155,5 +159,6 @@ def check_folds(assignment, alpha: float = 0.05, adjust: str = "holm", omission:
     if empty:
         names = ", ".join(str(i) for i in empty)
         raise InputError(f"fold{'s' if len(empty) > 1 else ''} {names} {'have' if len(empty) > 1 else 'has'} no "
-                         "evaluation presence and cannot be tested; use larger blocks (block_size) or fewer folds")
+                         "evaluation presence and cannot be tested; use fewer folds (folds="
+                         f"{k} now), another block size (block_size) or another design.")
     return FoldChecks(folds=tuple(rows), alpha=alpha, adjust=adjust, omission=omission)

@@ -260,6 +260,35 @@ def _display_fold_counts(split: SplitRun, frame: pd.DataFrame, source: str) -> T
                  notes=tuple(notes), source=source)
 
 
+def _display_fold_checks(split: SplitRun, checks: dict, source: str) -> list:
+    """What each fold's tests could show, measured when the folds were designed."""
+    names = split.records.fold_names
+    holm = checks.get("adjust") == "holm"
+    rows = tuple(
+        (names.get(int(f["fold"]), str(f["fold"])), P.fmt_count(f["evaluation_presences"]),
+         f"{100 * f['binomial_bound']:.0f} %", "yes" if f["can_omit"] else "no",
+         f"{100 * f['buffer_record_share']:.0f} %", f"{100 * f['buffer_presence_share']:.0f} %")
+        for f in checks.get("folds", []))
+    level = f"alpha = {checks['alpha']:g}" + (" adjusted by Holm's method across folds" if holm else "")
+    notes = (
+        f"Binomial bound: the largest share of the testing region a model may predict present and still have the "
+        f"binomial test reject at {level} when it predicts every evaluation presence present "
+        + ("((alpha/k)^(1/n) for the first Holm step, n evaluation presences, k folds)." if holm else "(alpha^(1/n), n evaluation presences)."),
+        f"Partial ROC may omit: whether a bootstrap sample of half the presences may leave one out at the omission "
+        f"tolerance E = {checks['omission']:g}; when it may not, the partial area starts at the lowest presence.",
+        "Buffer removes: the share of the fold's calibration records, and of its calibration presences, that the "
+        "buffer leaves out: what independence costs the model in calibration data.",
+    )
+    out = [Table(caption=f"What each fold's tests can show, split `{split.name}` (known before any model is fitted).",
+                 columns=("fold", "evaluation presences", "binomial bound", "partial ROC may omit",
+                          "buffer removes (records)", "buffer removes (presences)"),
+                 rows=rows, css_class="fold-checks", element_id=f"fold-checks-{_safe(split.name)}", notes=notes,
+                 source=source)]
+    for warning in checks.get("warnings", []):
+        out.append(Text(f"Caution: {warning}."))
+    return out
+
+
 def _display_rules(rules: list, names: list) -> Table:
     rows = tuple((str(r.get("name")), str(r.get("rule")), P.fmt_level(r.get("threshold"))) for r in rules)
     which = "all splits" if len(names) != 1 else f"split `{names[0]}`"
@@ -564,6 +593,9 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         src = w.table(counts, f"{tag}_fold_counts")
         blocks.append(Heading(2, f"Split `{s.name}`", f"folds-{tag}"))
         blocks.append(_display_fold_counts(s, counts, src))
+        checks = s.design.get("checks")
+        if checks:
+            blocks.extend(_display_fold_checks(s, checks, w.table(pd.DataFrame(checks["folds"]), f"{tag}_fold_checks")))
         blocks.append(Text(f"Every record with its fold, kind and coordinates"
                            f"{' (generalised)' if generalise_km else ''}: `{rec_src}`."))
         if extent is not None:

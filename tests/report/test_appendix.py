@@ -37,7 +37,7 @@ def built(demo_run, tmp_path_factory):
 
 
 def expected_files() -> set:
-    tables = {f"tables/{s}_{t}.csv" for s in SPLITS for t in ("records", "fold_counts", "audit", "evaluation")}
+    tables = {f"tables/{s}_{t}.csv" for s in SPLITS for t in ("records", "fold_counts", "fold_checks", "audit", "evaluation")}
     tables |= {"tables/range_fits.csv", "tables/audit_rules.csv", "tables/comparison.csv", "tables/optimism.csv"}
     stems = [f"map_{s}" for s in SPLITS] + [f"distance_ecdf_{s}" for s in SPLITS] + [f"roc_{s}" for s in SPLITS]
     stems += ["variogram", "auc_ratio_intervals"]
@@ -317,14 +317,14 @@ def test_missing_audit_and_evaluation_are_said(run_copy, demo_run):
     # Figures and tables of the older build are gone; the user's file stays.
     left = {p.relative_to(out).as_posix() for p in out.rglob("*") if p.is_file()}
     assert left == {"appendix.md", "appendix.html", "my-notes.txt", "figures/map_random.png", "figures/map_random.svg",
-                    "tables/random_records.csv", "tables/random_fold_counts.csv"}
+                    "tables/random_records.csv", "tables/random_fold_counts.csv", "tables/random_fold_checks.csv"}
     md = app.markdown.read_text(encoding="utf-8")
     assert "The split was not audited for residual dependence" in md
     assert "The split was not evaluated" in md
     assert "Split `random` was not audited" in md and "Split `random` was not evaluated" in md
     names = {p.name for p in app.figures}
     assert names == {"map_random.png", "map_random.svg"}
-    assert {p.name for p in app.tables} == {"random_records.csv", "random_fold_counts.csv"}
+    assert {p.name for p in app.tables} == {"random_records.csv", "random_fold_counts.csv", "random_fold_checks.csv"}
     # No range in a single random split: said, not invented.
     assert "No autocorrelation range was estimated" in md
 
