@@ -185,10 +185,13 @@ def _is_usage_error(exc: Exception) -> bool:
 
 
 def command_line() -> str:
-    """The command as typed, for the reproducibility record."""
+    """The command as typed, for the reproducibility record, with files named as
+    the outputs name them (no absolute path of this machine)."""
     import shlex
 
-    return "splitter " + shlex.join(sys.argv[1:])
+    from splitter.io.paths import portable_text, shown
+
+    return "splitter " + shlex.join(shown(a) if a.startswith("/") else portable_text(a) for a in sys.argv[1:])
 
 
 def progress():

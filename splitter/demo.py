@@ -40,8 +40,11 @@ def demo_data_dir(fallback: Path) -> Path:
     return fallback
 
 
-def _cmd(*parts) -> str:
-    return "splitter " + shlex.join([str(p) for p in parts])
+def _cmd(*parts, root=None) -> str:
+    """A command line as the run records it: files relative to the demo folder (``root``)."""
+    from splitter.io.paths import shown
+
+    return "splitter " + shlex.join([shown(p, root) if isinstance(p, Path) else str(p) for p in parts])
 
 
 def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, folds: int = 5,
@@ -73,11 +76,17 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     from splitter.rangefinder import estimate_range_from_rasters
     from splitter.report.appendix import build_appendix
 
+    from splitter.io.paths import shown
+
     say = step or (lambda s: None)
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise InputError(f"{out}: exists and is not a folder; give another OUT_DIR.")
     out.mkdir(parents=True, exist_ok=True)
+
+    def cmd(*parts):
+        return _cmd(*parts, root=out)
+
     data = demo_data_dir(out / "demo_data")
     env = [data / f for f in COVARIATES]
     records = data / RECORDS
@@ -86,7 +95,7 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     say("estimating the covariates' autocorrelation range")
     est = estimate_range_from_rasters(env, seed=seed)
     range_km = float(est.suggested_block_km)
-    write_range(est, out / "range", extra={"command": _cmd("range", *env_args, "--seed", seed, "--out", out / "range"), "seed": seed})
+    write_range(est, out / "range", extra={"command": cmd("range", *env_args, "--seed", seed, "--out", out / "range"), "seed": seed})
     buffer_km = round(range_km, 1)
 
     plans = {
@@ -101,14 +110,14 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
         args = ["design", records, "--method", kw["method"], "--folds", kw["folds"]]
         if "block_size" in kw:
             args += ["--block-size", kw["block_size"], "--buffer", kw["buffer"]]
-        command = _cmd(*args, *env_args, "--seed", seed, "--out", split_dir / "folds.csv")
+        command = cmd(*args, *env_args, "--seed", seed, "--out", split_dir / "folds.csv")
         write_design(assignment, split_dir / "folds.csv", command=command)
         _, table_assignment, names = read_fold_table(split_dir / "folds.csv")
 
         say(f"auditing the {name} split")
         result, context = audit(table_assignment, env=env, range_km=range_km, seed=seed, fold_names=names)
-        context["range_source"] = f"estimated from the covariate rasters ({out / 'range' / 'range.json'})"
-        context["command"] = _cmd("audit", split_dir / "folds.csv", *env_args, "--range-from", out / "range",
+        context["range_source"] = "estimated from the covariate rasters (range/range.json)"
+        context["command"] = cmd("audit", split_dir / "folds.csv", *env_args, "--range-from", out / "range",
                                   "--seed", seed, "--out", split_dir / "audit")
         write_audit(result, context, split_dir / "audit")
 
@@ -116,9 +125,9 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
         ev = evaluate(table_assignment, model="baseline", env=env, threshold="quantile:0.1", omission=0.05,
                       replicates=replicates, alpha=0.05, seed=seed, prediction_dir=split_dir / "evaluation" / "predictions",
                       fold_names=names)
-        ev_cmd = _cmd("evaluate", split_dir / "folds.csv", "--model", "baseline", *env_args, "--threshold", "quantile:0.1",
+        ev_cmd = cmd("evaluate", split_dir / "folds.csv", "--model", "baseline", *env_args, "--threshold", "quantile:0.1",
                       "--omission", 0.05, "--replicates", replicates, "--seed", seed, "--out", split_dir / "evaluation")
-        write_evaluation(ev, split_dir / "evaluation", extra={"command": ev_cmd, "fold_table": str(split_dir / "folds.csv")})
+        write_evaluation(ev, split_dir / "evaluation", extra={"command": ev_cmd, "fold_table": shown(split_dir / "folds.csv", out)})
         splits[name] = {"dir": split_dir, "audit": result, "evaluation": ev, "assignment": table_assignment,
                         "fold_names": names}
 
@@ -129,7 +138,7 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
                               blocks["assignment"].records.points, covariate_names=[p.stem for p in env],
                               names=("blocks", "random"), fold_names=(blocks["fold_names"], random["fold_names"]),
                               threshold="quantile:0.1", omission=0.05, seed=seed)
-    write_optimism(optimism, out, extra={"fold_tables": {n: str(splits[n]["dir"] / "folds.csv") for n in splits}})
+    write_optimism(optimism, out, extra={"fold_tables": {n: shown(splits[n]["dir"] / "folds.csv", out) for n in splits}})
 
     say("writing the methods appendix")
     appendix = build_appendix(out, out / "appendix")

@@ -10,6 +10,7 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
+from splitter.io.paths import portable
 from splitter.io.records import Records, read_records
 from splitter.partition.assignment import FoldAssignment
 from splitter.partition.testability import check_folds
@@ -27,8 +28,10 @@ def companion(path, suffix: str) -> Path:
     return path.with_name(path.stem + suffix)
 
 
-def to_json(obj) -> str:
-    """Stable JSON text: sorted keys, NaN as null, numpy scalars as Python."""
+def to_json(obj, root=None) -> str:
+    """Stable JSON text: sorted keys, NaN as null, numpy scalars as Python, and no
+    absolute path of this machine (files named as :func:`splitter.io.paths.shown`
+    names them, relative to ``root`` when inside it)."""
 
     def clean(o):
         if isinstance(o, dict):
@@ -46,7 +49,7 @@ def to_json(obj) -> str:
             return bool(o)
         return o
 
-    return json.dumps(clean(obj), indent=2, sort_keys=True, allow_nan=False) + "\n"
+    return json.dumps(portable(clean(obj), root), indent=2, sort_keys=True, allow_nan=False) + "\n"
 
 
 def write_table(frame: pd.DataFrame, path, points=None) -> Path:
@@ -142,7 +145,7 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     if command:
         summary["command"] = command
     with atomic_write(side, "w") as f:
-        f.write(to_json(summary))
+        f.write(to_json(summary, root=out.parent))
     paths["design"] = side
     return paths
 

@@ -26,6 +26,7 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
+from splitter.io.paths import portable_text
 from splitter.io.results import write_csv
 from splitter.report import paragraph as P
 from splitter.report.document import Bullets, Code, Document, Figure, Heading, Table, Text, to_markdown
@@ -862,9 +863,10 @@ def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> A
     md = out / "appendix.md"
     html_path = out / "appendix.html"
     _clean_stale(out, {p.resolve() for p in w.tables + w.figures})
+    # Commands and inputs recorded by older runs may name absolute paths: never in the appendix.
     with atomic_write(md, "w") as f:
-        f.write(to_markdown(doc))
-    page = to_html(doc, out)
+        f.write(portable_text(to_markdown(doc), run.folder))
+    page = portable_text(to_html(doc, out), run.folder)
     with atomic_write(html_path, "w") as f:
         f.write(page)
     return Appendix(markdown=md, html=html_path, tables=list(w.tables), figures=list(w.figures),
