@@ -28,6 +28,25 @@ def companion(path, suffix: str) -> Path:
     return path.with_name(path.stem + suffix)
 
 
+def crs_text(crs) -> str:
+    """A CRS as the sidecar records it: ``EPSG:n`` when it has a code, else its WKT."""
+    code = crs.to_epsg()
+    return f"EPSG:{code}" if code else crs.to_wkt()
+
+
+def reading_options(path) -> dict:
+    """The record options a design wrote in the sidecar beside ``path`` ({} without one)."""
+    side = companion(path, ".design.json")
+    if not side.is_file():
+        return {}
+    try:
+        doc = json.loads(side.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+    reading = doc.get("reading") or {}
+    return {k: reading[k] for k in ("x", "y", "crs") if reading.get(k)}
+
+
 def to_json(obj, root=None) -> str:
     """Stable JSON text: sorted keys, NaN as null, numpy scalars as Python, and no
     absolute path of this machine (files named as :func:`splitter.io.paths.shown`
@@ -125,13 +144,18 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     out = Path(out)
     frame = assignment.to_frame(text=True)
     pts = assignment.records.points if assignment.records is not None else None
-    if out.suffix.lower() == ".csv" and pts is not None and assignment.records.x_column is None:
-        # Vector input written as CSV: carry the coordinates as plain columns.
-        names = ("longitude", "latitude") if pts.geographic else ("x", "y")
-        pos = list(frame.columns).index("record_id") if "record_id" in frame.columns else len(frame.columns)
-        for off, (name, vals) in enumerate(zip(names, (pts.x, pts.y))):
-            if name not in frame.columns:
-                frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
+    reading = {}
+    if out.suffix.lower() == ".csv" and pts is not None:
+        xy = (assignment.records.x_column, assignment.records.y_column)
+        if xy[0] is None:
+            # Vector input written as CSV: carry the coordinates as plain columns.
+            xy = ("longitude", "latitude") if pts.geographic else ("x", "y")
+            pos = list(frame.columns).index("record_id") if "record_id" in frame.columns else len(frame.columns)
+            for off, (name, vals) in enumerate(zip(xy, (pts.x, pts.y))):
+                if name not in frame.columns:
+                    frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
+        # How to read the table back (audit, evaluate and appendix use it: no record option is repeated).
+        reading = {"x": xy[0], "y": xy[1], "crs": crs_text(pts.crs)}
     paths = {"folds": write_table(frame, out, pts)}
     gaps_path = companion(out, ".gaps.csv")
     if (assignment.parameters.get("buffer_km", 0) or 0) > 0 or assignment.gap_rows.size:  # buffer or space-and-time gaps
@@ -141,6 +165,8 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     side = companion(out, ".design.json")
     summary = design_summary(assignment)
     summary["checks"] = checks.to_dict()
+    if reading:
+        summary["reading"] = reading
     summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
     if command:
         summary["command"] = command
@@ -158,13 +184,20 @@ def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str 
     only, empty = not used) or names (each distinct name becomes a fold,
     numbered in sorted order). A role column holding calibration/evaluation
     (or train/test) makes a single fold. Gaps are read from ``<stem>.gaps.csv``
-    when it exists beside the table.
+    when it exists beside the table. Without ``x``, ``y`` and ``crs``, the
+    coordinate columns and CRS recorded by ``design`` in ``<stem>.design.json``
+    are used.
 
     Returns
     -------
     records, assignment, fold_names (fold number -> original label)
     """
     path = Path(path)
+    # Our own fold table: options not given are read as the design wrote them (the sidecar says how).
+    given = reading_options(path)
+    x = x if x is not None else given.get("x")
+    y = y if y is not None else given.get("y")
+    crs = crs if crs is not None else given.get("crs")
     recs = read_records(path, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
     table = recs.table
     n = len(table)
