@@ -36,11 +36,11 @@ from splitter._version import __version__
 
 # Public name -> (module, attribute). Nothing is imported until the name is used.
 _EXPORTS = {
-    "design": ("splitter.fold_design", "design"),
-    "add_background": ("splitter.fold_design", "add_background"),
-    "audit": ("splitter.auditor", "audit"),
-    "evaluate": ("splitter.evaluation", "evaluate"),
-    "estimate_range": ("splitter.rangefinder", "estimate_range"),
+    "design": ("splitter.workflow.design", "design"),
+    "add_background": ("splitter.workflow.design", "add_background"),
+    "audit": ("splitter.workflow.audit", "audit"),
+    "evaluate": ("splitter.workflow.evaluation", "evaluate"),
+    "estimate_range": ("splitter.workflow.range_estimate", "estimate_range"),
     "build_appendix": ("splitter.report.appendix", "build_appendix"),
     "run_demo": ("splitter.demo", "run_demo"),
     "run_batch": ("splitter.batch", "run_batch"),
@@ -53,7 +53,7 @@ _EXPORTS = {
     "FoldAssignment": ("splitter.partition.assignment", "FoldAssignment"),
     # split rules: splitter.SpatialBlocks(folds=5, block_size=120)
     # (the core rules in splitter.partition, with reading records added by the shell)
-    **{name: ("splitter.fold_design", name) for name in (
+    **{name: ("splitter.workflow.design", name) for name in (
         "SpatialBlocks", "Hexagons", "Checkerboard", "EnvironmentClusters", "Groups", "HoldoutGroup",
         "Periods", "HoldoutPeriod", "LaterPeriod", "RandomFolds", "LeaveOneOut")},
     "FoldRule": ("splitter.partition", "FoldRule"),

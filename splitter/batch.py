@@ -452,11 +452,11 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     """
     import numpy as np
 
-    from splitter.auditor import audit
-    from splitter.evaluation import evaluate
-    from splitter.fold_design import design
+    from splitter.workflow.audit import audit
+    from splitter.workflow.evaluation import evaluate
+    from splitter.workflow.design import design
     from splitter.io.foldtable import read_fold_table, write_design
-    from splitter.loading import load_records
+    from splitter.workflow.loading import load_records
     from splitter.partition.testability import check_folds
     from splitter.report.outputs import write_audit, write_evaluation
 

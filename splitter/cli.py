@@ -264,11 +264,11 @@ def design(
 ):
     """Design calibration/evaluation folds before modelling, and say what each fold's tests can show."""
     from splitter.io.foldtable import write_design
-    from splitter.loading import load_records
+    from splitter.workflow.loading import load_records
     from splitter.partition.testability import check_folds
 
     with progress() as bar, flag_names():
-        from splitter.fold_design import rule_for
+        from splitter.workflow.design import rule_for
 
         rule = rule_for(method, folds=folds, block_size=block_size, buffer=buffer, env=env, covariates=covariate_column,
                         group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
@@ -425,7 +425,7 @@ def evaluate(
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Test each fold's predictions: significance first, then performance."""
-    from splitter.evaluation import evaluate as run_evaluate
+    from splitter.workflow.evaluation import evaluate as run_evaluate
     from splitter.io.foldtable import read_fold_table
     from splitter.report.outputs import write_evaluation
 
@@ -475,7 +475,7 @@ def range_command(
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Estimate the autocorrelation range (from rasters or the records' own columns) and suggest a block size."""
-    from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records
+    from splitter.workflow.range_estimate import estimate_range_from_rasters, estimate_range_from_records
     from splitter.report.outputs import write_range
 
     if records is None and (covariate_column or response):
@@ -556,7 +556,7 @@ def audit(
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Audit a split for residual dependence between calibration and evaluation data."""
-    from splitter.auditor import audit as run_audit
+    from splitter.workflow.audit import audit as run_audit
     from splitter.io.foldtable import read_fold_table
     from splitter.report.outputs import write_audit
 

@@ -65,15 +65,15 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     -------
     DemoRun
     """
-    from splitter.auditor import audit
-    from splitter.fold_design import design
-    from splitter.evaluation import evaluate
+    from splitter.workflow.audit import audit
+    from splitter.workflow.design import design
+    from splitter.workflow.evaluation import evaluate
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.evaluate.optimism import split_optimism
     from splitter.io.rasters import sample_rasters
     from splitter.io.results import write_optimism
     from splitter.report.outputs import write_audit, write_evaluation, write_range
-    from splitter.rangefinder import estimate_range_from_rasters
+    from splitter.workflow.range_estimate import estimate_range_from_rasters
     from splitter.report.appendix import build_appendix
 
     from splitter.io.paths import shown

@@ -202,9 +202,9 @@ def test_outputs_equal_the_single_commands(first, tmp_path):
         assert (out / "sp01" / rel).read_bytes() == (d / rel).read_bytes(), rel  # reference: splitter design
 
     # sp14: the user's prediction table, through the Python API.
-    from splitter.auditor import audit
-    from splitter.fold_design import design
-    from splitter.evaluation import evaluate
+    from splitter.workflow.audit import audit
+    from splitter.workflow.design import design
+    from splitter.workflow.evaluation import evaluate
     from splitter.io.foldtable import read_fold_table, write_design
     from splitter.report.outputs import write_audit, write_evaluation
 

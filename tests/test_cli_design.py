@@ -220,7 +220,7 @@ def test_block_size_auto_uses_the_estimated_range(tmp_path):
 def test_an_unexpected_error_is_one_line_and_exit_3(tmp_path, monkeypatch):
     import sys
 
-    design_module = sys.modules["splitter.fold_design"]
+    design_module = sys.modules["splitter.workflow.design"]
 
     def boom(*a, **k):
         raise ZeroDivisionError("division by zero")

@@ -101,7 +101,7 @@ def test_the_graph_reader_sees_what_it_must():
     # edges, both module-level and inside functions (cli imports the API lazily).
     edges = _graph()
     assert ("io", "geo") in edges  # io.records reads coordinates into geo.Points
-    assert ("cli", "fold_design") in edges  # inside the design command
+    assert ("cli", "workflow") in edges  # inside the design command
     assert _cycle({("a", "b"), ("b", "c"), ("c", "a")}) == ["a", "b", "c", "a"]
     assert _cycle({("a", "b"), ("b", "c")}) is None
 
@@ -119,6 +119,17 @@ def test_io_imports_nothing_from_report_and_the_core_no_shell():
     for core in CORE:
         for shell in SHELLS:
             assert (core, shell) not in edges, edges[(core, shell)]
+
+
+def test_the_workflow_sits_between_core_and_shells():
+    # The steps of a job use the core and io; they neither draw, nor talk to users, nor run batches.
+    edges = _graph()
+    for shell in ("report", "cli", "batch", "demo"):
+        assert ("workflow", shell) not in edges, edges[("workflow", shell)]
+    for core in CORE + ("io",):
+        assert (core, "workflow") not in edges, edges[(core, "workflow")]
+    top = {p.stem for p in PACKAGE.glob("*.py")}
+    assert not top & {"fold_design", "auditor", "evaluation", "rangefinder", "matching", "loading"}
 
 
 def test_batch_does_not_import_the_cli_and_nothing_imports_the_package_root():
@@ -164,8 +175,8 @@ def test_the_cli_module_loads_only_typer():
 
 def test_lazy_names_are_the_real_objects():
     code = ("import splitter, sys; from splitter.evaluate import binomial as b; "
-            "from splitter.evaluation import evaluate; from splitter.fold_design import design; "
-            "from splitter.auditor import audit; "
+            "from splitter.workflow.evaluation import evaluate; from splitter.workflow.design import design; "
+            "from splitter.workflow.audit import audit; "
             "print(splitter.evaluate is evaluate, splitter.design is design, splitter.audit is audit, "
             "callable(b.binomial_test), sorted(set(splitter.__all__) - set(dir(splitter))))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,

@@ -260,7 +260,7 @@ class FoldRule:
 
     The core rule works on arrays only. Reading records (a path or a data
     frame), ``assign`` and scikit-learn's ``split`` are added by the public
-    classes in :mod:`splitter.fold_design` (``splitter.SpatialBlocks`` and so on).
+    classes in :mod:`splitter.workflow.design` (``splitter.SpatialBlocks`` and so on).
     """
 
     method: str = ""

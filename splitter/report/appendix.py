@@ -840,7 +840,7 @@ def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> A
 
     >>> import tempfile
     >>> from pathlib import Path
-    >>> from splitter.fold_design import design
+    >>> from splitter.workflow.design import design
     >>> from splitter.io.foldtable import write_design
     >>> tmp = tempfile.TemporaryDirectory()
     >>> folds = design("demo_data/records_with_background.csv", method="blocks", folds=5, block_size=120, seed=1)

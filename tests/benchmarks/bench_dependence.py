@@ -72,7 +72,7 @@ def bench_range_rasters(cells=10_000_000, sample=2000, seed=0):
     from affine import Affine
 
     from splitter.io.rasters import write_geotiff
-    from splitter.rangefinder import estimate_range_from_rasters
+    from splitter.workflow.range_estimate import estimate_range_from_rasters
 
     nx = 4000
     ny = cells // nx

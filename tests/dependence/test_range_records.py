@@ -10,7 +10,7 @@ import skgstat
 from splitter.dependence.variogram import fit_variogram
 from splitter.errors import InputError
 from splitter.io.records import read_records
-from splitter.rangefinder import estimate_range, estimate_range_from_records
+from splitter.workflow.range_estimate import estimate_range, estimate_range_from_records
 from splitter.synthetic import gaussian_field
 
 RANGE_KM = 40.0

@@ -15,7 +15,7 @@ from sklearn.preprocessing import StandardScaler
 import splitter
 from splitter.errors import InputError
 from splitter.io.foldtable import write_design
-from splitter.fold_design import RULES
+from splitter.workflow.design import RULES
 from splitter.partition import DesignParameters, FoldRule
 from tests.conftest import write_records_csv
 

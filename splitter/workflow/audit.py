@@ -62,7 +62,7 @@ def audit(
         range_km = float(json.loads(p.read_text())["suggested_block_km"])
         context["range_source"] = f"{p}"
     elif env:
-        from splitter.rangefinder import estimate_range_from_rasters
+        from splitter.workflow.range_estimate import estimate_range_from_rasters
 
         est = estimate_range_from_rasters(env, seed=seed, region=region)
         range_km = float(est.suggested_block_km)
@@ -99,7 +99,7 @@ def audit(
         prediction_points = sample_valid_locations(env, prediction_sample, seed, region=reg)
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area over the rasters' valid cells (seed {seed})"
     elif reg is not None:
-        from splitter.fold_design import sample_in_polygon
+        from splitter.workflow.design import sample_in_polygon
 
         prediction_points = sample_in_polygon(region, prediction_sample, seed)
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area inside the region (seed {seed})"

@@ -45,7 +45,7 @@ def load_records(records, *, x=None, y=None, crs=None, id_column=None, kind_colu
         bg = read_records(background, x=x, y=y, crs=crs, id_column=id_column, default_kind="background")
         recs = combine(recs, bg, kind="background")
     if background_count:
-        from splitter.fold_design import add_background
+        from splitter.workflow.design import add_background
 
         recs = add_background(recs, int(background_count), env=list(env), region=region, seed=seed)
     return recs

@@ -127,7 +127,7 @@ def choose_block_size(rule, data: RuleInput) -> RuleInput:
     if choice not in ("auto", "match"):
         return data
     if choice == "auto":
-        from splitter.rangefinder import estimate_range_from_rasters, estimate_range_from_records  # reads the rasters
+        from splitter.workflow.range_estimate import estimate_range_from_rasters, estimate_range_from_records  # reads the rasters
 
         if inner.env:
             est = estimate_range_from_rasters(list(inner.env), sample=inner.range_sample, seed=inner.seed)
@@ -137,7 +137,7 @@ def choose_block_size(rule, data: RuleInput) -> RuleInput:
         size = float(est.suggested_block_km)
         how = {"block_size_rule": "auto", "range_km": size, "range_summary": est.to_dict()}
     else:
-        from splitter.matching import match_block_size
+        from splitter.workflow.block_matching import match_block_size
 
         pts = data.points
         x_km, y_km = planar_km(pts, pts.crs if not pts.geographic else equal_area_crs(pts))
