@@ -26,6 +26,7 @@ files' bytes and the software version) still matches, and redoes the others.
 
 from __future__ import annotations
 
+import dataclasses
 import glob
 import hashlib
 import io as _io
@@ -33,7 +34,6 @@ import json
 import os
 import re
 import secrets
-import shlex
 import shutil
 import time
 from dataclasses import dataclass, field
@@ -42,38 +42,11 @@ from typing import Optional
 
 from splitter._version import __version__
 from splitter.errors import InputError
+from splitter.workflow.job import JobOptions, parse_option
 
-# Manifest columns: name -> (kind, default). Kinds say how a cell is read and checked
-# before any work starts; defaults are those of the single commands.
-OPTIONS = {
-    "method": ("method", "blocks"),
-    "folds": ("int", 5),
-    "block_size": ("block_size", None),
-    "buffer": ("float", 0.0),
-    "env": ("paths", ()),
-    "covariate_column": ("names", ()),
-    "group_column": ("text", None),
-    "calibrate_on": ("text", None),
-    "evaluate_on": ("text", None),
-    "seed": ("int", 0),
-    "background": ("path", None),
-    "background_count": ("int", None),
-    "region": ("path", None),
-    "x": ("text", None),
-    "y": ("text", None),
-    "crs": ("text", None),
-    "id_column": ("text", None),
-    "kind_column": ("text", None),
-    "predictions": ("pattern", None),
-    "prediction_table": ("path", None),
-    "model": ("model", None),
-    "threshold": ("threshold", "quantile:0.1"),
-    "omission": ("float", 0.05),
-    "replicates": ("int", 1000),
-    "alpha": ("float", 0.05),
-    "range_km": ("float", None),
-    "audit": ("yesno", True),
-}
+# Manifest columns: every option of a job (splitter.workflow.job.JobOptions, where the
+# defaults and the way each cell is read live), besides the run id and the records file.
+OPTIONS = JobOptions.names()
 REQUIRED = ("run", "records")
 KNOWN = REQUIRED + tuple(OPTIONS)
 BATCH_COLUMNS = ("run", "status", "error", "method", "folds", "n_presence", "audit_verdict",
@@ -97,9 +70,9 @@ class RunSpec:
         Line of the manifest file the row is on (header = line 1).
     records : str
         Absolute path of the records file.
-    options : dict
-        Every option of :data:`OPTIONS`, parsed, with defaults filled in and
-        paths made absolute against the manifest's folder.
+    options : JobOptions
+        Every option, parsed, with defaults filled in and paths made absolute
+        against the manifest's folder.
     cells : dict
         The non-empty cells as written in the manifest (for run.json and the fingerprint).
     """
@@ -107,13 +80,12 @@ class RunSpec:
     run: str
     line: int
     records: str
-    options: dict
+    options: JobOptions
     cells: dict = field(default_factory=dict)
 
     @property
     def evaluates(self) -> bool:
-        o = self.options
-        return any(o[k] is not None for k in ("predictions", "prediction_table", "model"))
+        return self.options.evaluates
 
 
 @dataclass(frozen=True)
@@ -178,67 +150,10 @@ def _bad(path, line, column, value, what) -> InputError:
 
 
 def _parse_cell(path, line, column, value, base: Path):
-    kind, _ = OPTIONS[column]
-    if kind == "int":
-        try:
-            f = float(value)
-        except ValueError:
-            raise _bad(path, line, column, value, "is not a number; give a whole number.") from None
-        if not f.is_integer():
-            raise _bad(path, line, column, value, "is not a whole number; give a whole number.")
-        return int(f)
-    if kind == "float":
-        try:
-            f = float(value)
-        except ValueError:
-            raise _bad(path, line, column, value, "is not a number; give a number (use '.' for decimals).") from None
-        if f != f or f in (float("inf"), float("-inf")):
-            raise _bad(path, line, column, value, "is not a finite number; give a number.")
-        return f
-    if kind == "block_size":
-        if value.lower() in ("auto", "match"):
-            return value.lower()
-        try:
-            f = float(value)
-        except ValueError:
-            raise _bad(path, line, column, value, "is not a size; give a size in km, 'auto' or 'match'.") from None
-        if not f > 0:
-            raise _bad(path, line, column, value, "is not a positive size; give a size in km, 'auto' or 'match'.")
-        return value
-    if kind == "method":
-        from splitter.partition import METHODS
-
-        if value not in METHODS:
-            raise _bad(path, line, column, value, f"is not a method; choose one of {', '.join(METHODS)}.")
-        return value
-    if kind == "model":
-        if value != "baseline":
-            raise _bad(path, line, column, value, "is not a model; the built-in model is 'baseline' (leave empty for none).")
-        return value
-    if kind == "threshold":
-        from splitter.evaluate import ThresholdRule
-
-        try:
-            ThresholdRule.parse(value)
-        except InputError as e:
-            raise _bad(path, line, column, value, f"is not a threshold rule ({e})") from None
-        return value
-    if kind == "yesno":
-        if value.lower() not in YES:
-            raise _bad(path, line, column, value, "is not yes or no.")
-        return YES[value.lower()]
-    if kind == "path":
-        return str((base / value).resolve())
-    if kind == "paths":
-        parts = [p.strip() for p in value.split(";") if p.strip()]
-        return tuple(str((base / p).resolve()) for p in parts)
-    if kind == "names":
-        return tuple(p.strip() for p in value.split(";") if p.strip())
-    if kind == "pattern":
-        if "{fold}" not in value:
-            raise _bad(path, line, column, value, "has no {fold}; give a raster pattern such as preds/fold_{fold}.tif.")
-        return str((base / value).resolve())
-    return value  # text
+    try:
+        return parse_option(column, value, base)
+    except InputError as e:
+        raise InputError(f"{path}: line {line}, column '{column}': {e}") from None
 
 
 def read_manifest(path) -> tuple:
@@ -272,7 +187,7 @@ def read_manifest(path) -> tuple:
     ...                         "sp01,demo_data/records.csv,blocks,100\\n"
     ...                         "sp02,demo_data/records.csv,random,\\n")
     >>> specs = read_manifest(manifest)
-    >>> [(s.run, s.options["method"], s.options["block_size"], s.options["folds"]) for s in specs]
+    >>> [(s.run, s.options.method, s.options.block_size, s.options.folds) for s in specs]
     [('sp01', 'blocks', '100', 5), ('sp02', 'random', None, 5)]
     """
     import pandas as pd
@@ -325,10 +240,7 @@ def read_manifest(path) -> tuple:
         seen[key] = line
         if "records" not in cells:
             raise InputError(f"{path}: line {line}, column 'records': empty; give the records file of run '{run}'.")
-        options = {k: default for k, (_, default) in OPTIONS.items()}
-        for k, v in cells.items():
-            if k in OPTIONS:
-                options[k] = _parse_cell(path, line, k, v, base)
+        options = JobOptions(**{k: _parse_cell(path, line, k, v, base) for k, v in cells.items() if k in OPTIONS})
         specs.append(RunSpec(run=run, line=line, records=str((base / cells["records"]).resolve()),
                              options=options, cells=cells))
     return tuple(specs)
@@ -343,12 +255,12 @@ def _input_files(spec: RunSpec) -> list:
     o = spec.options
     files = [("records", spec.records)]
     for k in ("background", "region", "prediction_table"):
-        if o[k] is not None:
-            files.append((k, o[k]))
-    files += [(f"env[{i}]", p) for i, p in enumerate(o["env"])]
-    if o["predictions"] is not None:
+        if getattr(o, k) is not None:
+            files.append((k, getattr(o, k)))
+    files += [(f"env[{i}]", p) for i, p in enumerate(o.env)]
+    if o.predictions is not None:
         # Every raster the pattern can name (the fold labels are known only after the design).
-        for p in sorted(glob.glob(glob.escape(o["predictions"]).replace("{fold}", "*"))):
+        for p in sorted(glob.glob(glob.escape(o.predictions).replace("{fold}", "*"))):
             files.append((f"predictions[{Path(p).name}]", p))
     return files
 
@@ -405,99 +317,25 @@ def one_line(exc: BaseException) -> str:
     return " ".join(text.split())
 
 
-def _cmd(*parts) -> str:
-    return "splitter " + shlex.join([str(p) for p in parts if p is not None])
-
-
-def _opt(name, value):
-    """['--name', value] for a given option, [] for an unset one."""
-    if value is None or value == () or value is False:
-        return []
-    if isinstance(value, (tuple, list)):
-        return [a for v in value for a in (name, v)]
-    return [name, value]
-
-
-def _commands(spec: RunSpec, final: Path) -> dict:
-    """The single commands that would write this run's outputs (for the sidecars)."""
-    o = spec.options
-    reading = [*_opt("--x", o["x"]), *_opt("--y", o["y"]), *_opt("--crs", o["crs"])]
-    env = _opt("--env", o["env"])
-    folds_csv = final / "folds.csv"
-    out = {"design": _cmd(
-        "design", spec.records, "--method", o["method"], "--folds", o["folds"], *_opt("--block-size", o["block_size"]),
-        "--buffer", o["buffer"], *env, *_opt("--covariate-column", o["covariate_column"]),
-        *_opt("--group-column", o["group_column"]), *_opt("--calibrate-on", o["calibrate_on"]),
-        *_opt("--evaluate-on", o["evaluate_on"]), *_opt("--background", o["background"]),
-        *_opt("--background-count", o["background_count"]), *_opt("--region", o["region"]), *reading,
-        *_opt("--id-column", o["id_column"]), *_opt("--kind-column", o["kind_column"]),
-        "--seed", o["seed"], "--out", folds_csv)}
-    if o["audit"]:
-        out["audit"] = _cmd("audit", folds_csv, *env, *_opt("--range-km", o["range_km"]),
-                            *_opt("--group-column", o["group_column"]), *_opt("--region", o["region"]), *reading,
-                            "--seed", o["seed"], "--out", final / "audit")
-    if spec.evaluates:
-        out["evaluate"] = _cmd("evaluate", folds_csv, *_opt("--predictions", o["predictions"]),
-                               *_opt("--prediction-table", o["prediction_table"]), *_opt("--model", o["model"]),
-                               *env, *_opt("--region", o["region"]), "--threshold", o["threshold"],
-                               "--omission", o["omission"], "--replicates", o["replicates"], "--alpha", o["alpha"],
-                               *reading, "--seed", o["seed"], "--out", final / "evaluation")
-    return out
-
-
 def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
-    """design -> write -> read back -> audit -> evaluate, as the single commands do.
+    """The job (design -> write -> read back -> audit -> evaluate), as the single commands do it.
 
     Returns the batch.csv fields of the run and the equivalent single commands.
     """
     import numpy as np
 
-    from splitter.workflow.audit import audit
-    from splitter.workflow.evaluation import evaluate
-    from splitter.workflow.design import design
-    from splitter.io.foldtable import read_fold_table, write_design
-    from splitter.workflow.loading import load_records
-    from splitter.partition.testability import check_folds
-    from splitter.report.outputs import write_audit, write_evaluation
+    from splitter.workflow.job import run_job
 
-    o = spec.options
-    commands = _commands(spec, final)
-    env = list(o["env"])
-    # Same reading as 'splitter design'.
-    recs = load_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
-                        kind_column=o["kind_column"], background=o["background"],
-                        background_count=o["background_count"], env=env, region=o["region"], seed=o["seed"])
-    assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
-                        env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
-                        calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"])
-    # The design checks at the row's own alpha and omission (batch adjusts with Holm, evaluate's default).
-    write_design(assignment, work / "folds.csv", command=commands["design"],
-                 checks=check_folds(assignment, alpha=o["alpha"], omission=o["omission"]))
-    check()
-    summary = {"method": assignment.method, "folds": int(assignment.n_folds),
-               "n_presence": int(np.sum((assignment.fold >= 0) & (assignment.kind == "presence"))),
-               "audit_verdict": None, "folds_significant": None, "folds_evaluated": None}
-
-    # Audit and evaluation read the written fold table back, as the commands do.
-    _, table_assignment, names = read_fold_table(work / "folds.csv", x=o["x"], y=o["y"], crs=o["crs"])
-    if o["audit"]:
-        result, context = audit(table_assignment, env=env, range_km=o["range_km"], group_column=o["group_column"],
-                                region=o["region"], seed=o["seed"], fold_names=names)
-        context["command"] = commands["audit"]
-        write_audit(result, context, work / "audit")
-        summary["audit_verdict"] = result.verdict
-        check()
-    if spec.evaluates:
-        ev = evaluate(table_assignment, predictions=o["predictions"], prediction_table=o["prediction_table"],
-                      model=o["model"], env=env, region=o["region"], threshold=o["threshold"], omission=o["omission"],
-                      replicates=o["replicates"], alpha=o["alpha"], seed=o["seed"],
-                      prediction_dir=work / "evaluation" / "predictions" if o["model"] else None, fold_names=names)
-        write_evaluation(ev, work / "evaluation", extra={"fold_table": str(final / "folds.csv"),
-                                                         "command": commands["evaluate"]})
-        summary["folds_significant"] = int(sum(bool(f.row["significant"]) for f in ev.folds))
-        summary["folds_evaluated"] = len(ev.folds)
-        check()
-    return summary, commands
+    job = run_job(spec.records, spec.options, work, final_dir=final, check=check)
+    a = job.assignment
+    summary = {"method": a.method, "folds": int(a.n_folds),
+               "n_presence": int(np.sum((a.fold >= 0) & (a.kind == "presence"))),
+               "audit_verdict": job.audit.verdict if job.audit is not None else None,
+               "folds_significant": None, "folds_evaluated": None}
+    if job.evaluation is not None:
+        summary["folds_significant"] = int(sum(bool(f.row["significant"]) for f in job.evaluation.folds))
+        summary["folds_evaluated"] = len(job.evaluation.folds)
+    return summary, job.commands
 
 
 def _point_json_at(work: Path, final: Path) -> None:
@@ -559,8 +397,8 @@ def execute_run(spec: RunSpec, out_dir: str, fingerprint_hex: str, inputs: dict)
     t0 = time.perf_counter()
     out = Path(out_dir)
     final = out / spec.run
-    row = {"run": spec.run, "status": "ok", "error": "", "method": spec.options["method"],
-           "folds": spec.options["folds"], "n_presence": None, "audit_verdict": None,
+    row = {"run": spec.run, "status": "ok", "error": "", "method": spec.options.method,
+           "folds": spec.options.folds, "n_presence": None, "audit_verdict": None,
            "folds_significant": None, "folds_evaluated": None, "seconds": None}
     work, installing = None, False
     try:
@@ -578,7 +416,7 @@ def execute_run(spec: RunSpec, out_dir: str, fingerprint_hex: str, inputs: dict)
         summary, commands = _steps(spec, work, final, check)
         seconds = time.perf_counter() - t0
         doc = {"run": spec.run, "fingerprint": fingerprint_hex, "software": f"splitter {__version__}",
-               "manifest_line": spec.line, "cells": spec.cells, "options": spec.options, "inputs": inputs,
+               "manifest_line": spec.line, "cells": spec.cells, "options": dataclasses.asdict(spec.options), "inputs": inputs,
                "commands": commands, "summary": summary, "seconds": round(seconds, 3)}
         with atomic_write(work / "run.json", "w") as f:
             f.write(to_json(doc))
@@ -822,8 +660,8 @@ def run_batch(manifest, out_dir, *, workers: Optional[int] = None, scheduler: Op
                     row = fut.result()
                 except Exception as e:  # the task itself died (worker lost, unpicklable...)
                     row = {k: None for k in BATCH_COLUMNS}
-                    row.update(run=spec.run, status="failed", error=one_line(e), method=spec.options["method"],
-                               folds=spec.options["folds"])
+                    row.update(run=spec.run, status="failed", error=one_line(e), method=spec.options.method,
+                               folds=spec.options.folds)
                 rows[spec.run] = row
                 done += 1
                 if progress is not None:

@@ -65,18 +65,14 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     -------
     DemoRun
     """
-    from splitter.workflow.audit import audit
-    from splitter.workflow.design import design
-    from splitter.workflow.evaluation import evaluate
-    from splitter.io.foldtable import read_fold_table, write_design
     from splitter.evaluate.optimism import split_optimism
+    from splitter.io.paths import shown
     from splitter.io.rasters import sample_rasters
     from splitter.io.results import write_optimism
-    from splitter.report.outputs import write_audit, write_evaluation, write_range
-    from splitter.workflow.range_estimate import estimate_range_from_rasters
     from splitter.report.appendix import build_appendix
-
-    from splitter.io.paths import shown
+    from splitter.report.outputs import write_range
+    from splitter.workflow.job import JobOptions, run_job
+    from splitter.workflow.range_estimate import estimate_range_from_rasters
 
     say = step or (lambda s: None)
     out = Path(out_dir)
@@ -98,38 +94,19 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     write_range(est, out / "range", extra={"command": cmd("range", *env_args, "--seed", seed, "--out", out / "range"), "seed": seed})
     buffer_km = round(range_km, 1)
 
+    # Both splits: the same records, covariates, baseline model and tests; only the folds differ.
+    common = JobOptions(folds=folds, env=tuple(str(p) for p in env), seed=seed, range_from=str(out / "range"),
+                        model="baseline", replicates=replicates)
     plans = {
-        "blocks": dict(method="blocks", folds=folds, block_size="auto", buffer=buffer_km),
-        "random": dict(method="random", folds=folds),
+        "blocks": common.replace(method="blocks", block_size="auto", buffer=buffer_km),
+        "random": common.replace(method="random"),
     }
     splits = {}
-    for name, kw in plans.items():
-        split_dir = out / name
-        say(f"designing {name} folds")
-        assignment = design(records, env=env, seed=seed, **kw)
-        args = ["design", records, "--method", kw["method"], "--folds", kw["folds"]]
-        if "block_size" in kw:
-            args += ["--block-size", kw["block_size"], "--buffer", kw["buffer"]]
-        command = cmd(*args, *env_args, "--seed", seed, "--out", split_dir / "folds.csv")
-        write_design(assignment, split_dir / "folds.csv", command=command)
-        _, table_assignment, names = read_fold_table(split_dir / "folds.csv")
-
-        say(f"auditing the {name} split")
-        result, context = audit(table_assignment, env=env, range_km=range_km, seed=seed, fold_names=names)
-        context["range_source"] = "estimated from the covariate rasters (range/range.json)"
-        context["command"] = cmd("audit", split_dir / "folds.csv", *env_args, "--range-from", out / "range",
-                                  "--seed", seed, "--out", split_dir / "audit")
-        write_audit(result, context, split_dir / "audit")
-
-        say(f"fitting the baseline model per fold and evaluating the {name} split")
-        ev = evaluate(table_assignment, model="baseline", env=env, threshold="quantile:0.1", omission=0.05,
-                      replicates=replicates, alpha=0.05, seed=seed, prediction_dir=split_dir / "evaluation" / "predictions",
-                      fold_names=names)
-        ev_cmd = cmd("evaluate", split_dir / "folds.csv", "--model", "baseline", *env_args, "--threshold", "quantile:0.1",
-                      "--omission", 0.05, "--replicates", replicates, "--seed", seed, "--out", split_dir / "evaluation")
-        write_evaluation(ev, split_dir / "evaluation", extra={"command": ev_cmd, "fold_table": shown(split_dir / "folds.csv", out)})
-        splits[name] = {"dir": split_dir, "audit": result, "evaluation": ev, "assignment": table_assignment,
-                        "fold_names": names}
+    for name, options in plans.items():
+        say(f"designing, auditing and evaluating the {name} split (the baseline model is fitted per fold)")
+        job = run_job(records, options, out / name, root=out)
+        splits[name] = {"dir": out / name, "audit": job.audit, "evaluation": job.evaluation,
+                        "assignment": job.assignment, "fold_names": job.fold_names}
 
     say("fitting one flexible model with coordinates under both splits")
     blocks, random = splits["blocks"], splits["random"]

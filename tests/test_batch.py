@@ -293,11 +293,11 @@ def test_manifest_cells_defaults_and_paths(tmp_path):
     m.write_text("Run,Records,Block-Size,env,audit\nx,../r.csv,auto,a.tif; b.tif,No\ny,r.csv,,,\n")
     x, y = read_manifest(m)
     assert x.records == str(tmp_path / "r.csv") and y.records == str(tmp_path / "sub" / "r.csv")
-    assert x.options["env"] == (str(tmp_path / "sub" / "a.tif"), str(tmp_path / "sub" / "b.tif"))
-    assert x.options["block_size"] == "auto" and x.options["audit"] is False
+    assert x.options.env == (str(tmp_path / "sub" / "a.tif"), str(tmp_path / "sub" / "b.tif"))
+    assert x.options.block_size == "auto" and x.options.audit is False
     # defaults: those of the single commands (splitter design/evaluate --help)
-    assert (y.options["method"], y.options["folds"], y.options["seed"], y.options["audit"]) == ("blocks", 5, 0, True)
-    assert (y.options["threshold"], y.options["replicates"], y.options["alpha"]) == ("quantile:0.1", 1000, 0.05)
+    assert (y.options.method, y.options.folds, y.options.seed, y.options.audit) == ("blocks", 5, 0, True)
+    assert (y.options.threshold, y.options.replicates, y.options.alpha) == ("quantile:0.1", 1000, 0.05)
 
 
 def _children() -> set:
