@@ -131,7 +131,8 @@ X_OPTION = typer.Option(None, "--x", metavar="COLUMN", help="Longitude / easting
 Y_OPTION = typer.Option(None, "--y", metavar="COLUMN", help="Latitude / northing column.")
 CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV).")
 ID_OPTION = typer.Option(None, "--id-column", metavar="COLUMN", help="Record id column (default: record_id, else row number).")
-KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0) column (default: kind).")
+KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0 with --zero-means) column (default: kind).")
+ZERO_OPTION = typer.Option(None, "--zero-means", metavar="KIND", help="What 0 (FALSE, no) means in a 0/1 kind column: 'absence' (a survey: surveyed, not found) or 'background'.")
 
 
 def _fail(message: str, code: int = 2):
@@ -213,21 +214,32 @@ def main(version: bool = typer.Option(False, "--version", callback=version_callb
 
 
 def fold_summary_table(assignment, title: str):
+    import numpy as np
+
     counts = assignment.counts()
+    kept = assignment.fold >= 0
+    # A column per kind the records hold: absences are never shown as background.
+    kinds = ["presence"] + [k for k in ("absence", "background") if np.any(kept & (assignment.kind == k))]
     t = _table(title)
     t.add_column("fold", justify="right")
-    t.add_column("eval presence", justify="right")
-    t.add_column("eval background", justify="right")
-    t.add_column("calib presence", justify="right")
-    t.add_column("calib background", justify="right")
+    for role, short in (("evaluation", "eval"), ("calibration", "calib")):
+        for k in kinds:
+            t.add_column(f"{short} {k}", justify="right")
     t.add_column("in buffer gap", justify="right")
     show = counts if len(counts) <= 25 else counts.head(25)
-    for r in show.itertuples():
-        t.add_row(str(r.fold), str(r.evaluation_presence), str(r.evaluation_background),
-                  str(r.calibration_presence), str(r.calibration_background), str(r.gap))
+    for r in show.to_dict(orient="records"):
+        t.add_row(str(r["fold"]), *[str(r[f"{role}_{k}"]) for role in ("evaluation", "calibration") for k in kinds],
+                  str(r["gap"]))
     if len(counts) > 25:
         t.caption = f"... {len(counts) - 25} more folds in the sidecar"
     return t
+
+
+def imbalance_line(p) -> str | None:
+    """Fold imbalance per kind the design holds (None when it was not measured)."""
+    parts = [f"{word} {v:.3f}" for word, v in (("presences", p.presence_imbalance), ("absences", p.absence_imbalance),
+                                               ("background", p.background_imbalance)) if v is not None]
+    return "fold imbalance (max-min)/mean: " + ", ".join(parts) if p.presence_imbalance is not None else None
 
 
 @guarded
@@ -253,6 +265,7 @@ def design(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for every random step."),
     out_path: Path = typer.Option(..., "--out", metavar="PATH", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
@@ -267,7 +280,7 @@ def design(
                         group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                         time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed)
         bar.add_task("reading records", total=None)
-        recs = load_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
+        recs = load_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means,
                             background=background, background_count=background_count, env=env, region=region,
                             seed=seed)
         bar.add_task(f"making {method} folds", total=None)
@@ -286,6 +299,7 @@ FLAGS = {
     "predictions": "--predictions", "prediction_table": "--prediction-table", "threshold": "--threshold",
     "omission": "--omission", "replicates": "--replicates", "alpha": "--alpha", "adjust": "--adjust",
     "null_splits": "--null-splits", "fold_column": "--fold-column", "role_column": "--role-column",
+    "zero_means": "--zero-means", "model": "--model",
 }
 
 
@@ -323,8 +337,8 @@ def _print_design(assignment, paths):
     _out().print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
     if p.block_size_km:
         _out().print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
-    if p.presence_imbalance is not None:
-        _out().print(f"fold imbalance (max-min)/mean: presences {p.presence_imbalance:.3f}, background {p.background_imbalance:.3f}")
+    if imbalance_line(p):
+        _out().print(imbalance_line(p))
     if p.fold_periods:
         _out().print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
     if p.calibrate_before is not None:
@@ -379,6 +393,7 @@ def evaluate(
     prediction_table: Optional[Path] = typer.Option(None, "--prediction-table", metavar="PATH", help="CSV with record_id, fold, prediction."),
     model: Optional[str] = typer.Option(None, "--model", metavar="NAME", help="'baseline': fit the built-in model per fold over --env rasters."),
     env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF for --model (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column of the fold table for --model, instead of --env (repeatable or comma-separated)."),
     region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file cutting the testing region."),
     fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column holding the folds."),
     threshold: str = typer.Option("quantile:0.1", "--threshold", metavar="RULE", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
@@ -391,6 +406,7 @@ def evaluate(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the bootstrap and the null."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'not-significant': exit 1 when any fold is not significant."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
@@ -407,12 +423,13 @@ def evaluate(
     if adjust not in ("holm", "none"):
         raise InputError(f"--adjust {adjust}: use 'holm' (Holm's adjustment across folds) or 'none'.")
     _, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
-                                           id_column=id_column, kind_column=kind_column)
+                                           id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     with progress() as bar:
         steps = assignment.n_folds * (2 if model else 1)
         task = bar.add_task("evaluating folds", total=steps)
         result = run_evaluate(
             assignment, predictions=predictions, prediction_table=prediction_table, model=model, env=env,
+            covariates=covariate_column,
             region=region, threshold=threshold, omission=omission, replicates=replicates, alpha=alpha,
             adjust=adjust, seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
             progress=lambda: bar.advance(task),
@@ -442,6 +459,7 @@ def range_command(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the cell or record sample."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
@@ -470,7 +488,7 @@ def range_command(
             from splitter.io.records import read_records
 
             bar.add_task("reading records and fitting variograms", total=None)
-            recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+            recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
             est = estimate_range_from_records(recs, covariates=covariate_column, response=response, sample=sample, seed=seed)
             source = {"records": str(records), "covariate_columns": list(covariate_column), "response": bool(response)}
         paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, **source, "command": command_line()})
@@ -521,6 +539,7 @@ def audit(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
     null_splits: int = typer.Option(199, "--null-splits", metavar="N", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'dependent': exit 1 when any fold is flagged."),
@@ -536,7 +555,7 @@ def audit(
     if null_splits < 19:
         raise InputError(f"--null-splits {null_splits}: give at least 19 random re-splits (199 is the default).")
     _, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
-                                           x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+                                           x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
         result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,

@@ -104,6 +104,7 @@ def design(
     crs=None,
     x: str | None = None,
     y: str | None = None,
+    zero_means: str | None = None,
 ) -> FoldAssignment:
     """Make calibration/evaluation folds for occurrence records.
 
@@ -149,6 +150,8 @@ def design(
     crs, x, y
         For a DataFrame (or CSV): the coordinates' CRS (default EPSG:4326) and
         their columns (detected from common spellings when omitted).
+    zero_means : {"absence", "background"}
+        What 0 means in a 0/1 kind column (required when there is one).
 
     Returns
     -------
@@ -165,11 +168,11 @@ def design(
                     group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                     time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed,
                     random_offset=random_offset, range_sample=range_sample)
-    return rule.assign(records, crs=crs, x=x, y=y)
+    return rule.assign(records, crs=crs, x=x, y=y, zero_means=zero_means)
 
 
 def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None,
-                   labels=None, groups=None) -> FoldAssignment:
+                   labels=None, groups=None, zero_means=None) -> FoldAssignment:
     """The shell around a rule: read the records, sample covariates, ask the rule
     for folds, apply the buffer, and record how it was done.
 
@@ -177,7 +180,7 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
     kinds when the records have no kind column; ``groups`` stand in for a
     group column.
     """
-    recs = as_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    recs = as_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     if labels is not None:
         recs = _kinds_from_labels(recs, labels, kind_column)
     if groups is not None and len(groups) != len(recs):
@@ -207,12 +210,16 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
     params = rule.design_parameters(n_folds).replace(**made.measured)
 
     kept_now = fold >= 0
-    if params.presence_imbalance is None and n_folds >= 2:
-        # Rules that do not balance (checkerboard, clusters, groups...) still report it.
-        params = params.replace(
-            presence_imbalance=imbalance(np.bincount(fold[kept_now & (kinds == "presence")], minlength=n_folds + 1)[1:]),
-            background_imbalance=imbalance(np.bincount(fold[kept_now & (kinds == "background")], minlength=n_folds + 1)[1:]),
-        )
+    if n_folds >= 2:
+        # Counted per kind on the final folds, for every rule (balancing rules deal
+        # presences first and the other records second; absences and background are
+        # reported apart so an absence imbalance is never shown as background).
+        per_kind = {k: imbalance(np.bincount(fold[kept_now & (kinds == k)], minlength=n_folds + 1)[1:])
+                    if np.any(kept_now & (kinds == k)) else None for k in ("presence", "absence", "background")}
+        params = params.replace(presence_imbalance=per_kind["presence"], absence_imbalance=per_kind["absence"],
+                                background_imbalance=per_kind["background"])
+    if recs.zero_means is not None:
+        params = params.replace(zero_means=recs.zero_means)
     rows, gfolds = np.zeros(0, np.int64), np.zeros(0, np.int64)
     if rule.buffer > 0:
         rows, gfolds = buffer_gaps(recs.points, np.where(kept_now, fold, -1), rule.buffer)

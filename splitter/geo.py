@@ -84,6 +84,58 @@ class Points:
         return self.to_crs(WGS84)
 
 
+# Planar coordinates with a stated unit and no known projection (a survey's local
+# grid): an ISO 19111 engineering CRS, so files that carry a CRS can say so.
+PLANAR_UNITS = {"km": ("kilometre", 1000.0), "m": ("metre", 1.0)}
+
+
+def planar_crs(unit: str) -> pyproj.CRS:
+    """The engineering CRS (WKT ``ENGCRS``) of a local planar grid in ``unit`` ("km" or "m").
+
+    Examples
+    --------
+    >>> c = planar_crs("km")
+    >>> c.type_name, c.axis_info[0].unit_conversion_factor, crs_text(c)
+    ('Engineering CRS', 1000.0, 'planar:km')
+    """
+    if unit not in PLANAR_UNITS:
+        raise InputError(f"crs='planar:{unit}': a planar grid's unit is km or m (planar:km, planar:m); "
+                         "rescale other units first (e.g. 100 m grid units: multiply by 0.1 for km).")
+    name, factor = PLANAR_UNITS[unit]
+    axis = lambda label, direction, order: (  # noqa: E731
+        f'AXIS["{label}",{direction},ORDER[{order}],LENGTHUNIT["{name}",{factor:g}]]')
+    return pyproj.CRS.from_wkt(
+        f'ENGCRS["planar grid in {name}s, projection unknown",EDATUM["local survey grid"],'
+        f'CS[Cartesian,2],{axis("easting (x)", "east", 1)},{axis("northing (y)", "north", 2)}]')
+
+
+def is_planar(crs) -> bool:
+    """True for an engineering (local planar) CRS."""
+    return crs is not None and pyproj.CRS.from_user_input(crs).type_name == "Engineering CRS"
+
+
+def parse_crs(crs) -> pyproj.CRS:
+    """A CRS from user input: ``planar:km`` / ``planar:m``, or anything pyproj reads."""
+    if isinstance(crs, str) and crs.strip().lower().startswith("planar"):
+        unit = crs.strip().lower().partition(":")[2].strip()
+        return planar_crs(unit)
+    try:
+        return pyproj.CRS.from_user_input(crs)
+    except pyproj.exceptions.CRSError:
+        raise InputError(f"crs={crs!r}: not a CRS pyproj knows; give e.g. EPSG:4326, EPSG:3035, "
+                         "or planar:km / planar:m for a local grid.") from None
+
+
+def crs_text(crs) -> str:
+    """A CRS as text that :func:`parse_crs` reads back: planar:UNIT, EPSG:N or WKT."""
+    crs = pyproj.CRS.from_user_input(crs)
+    if is_planar(crs):
+        factor = crs.axis_info[0].unit_conversion_factor if crs.axis_info else 1.0
+        return "planar:km" if factor == 1000.0 else "planar:m" if factor == 1.0 else crs.to_wkt()
+    epsg = crs.to_epsg()
+    return f"EPSG:{epsg}" if epsg else crs.to_wkt()
+
+
 def _unit_factor_km(crs: pyproj.CRS) -> float:
     """Kilometres per unit of a projected CRS's first axis."""
     factor = crs.axis_info[0].unit_conversion_factor if crs.axis_info else 1.0

@@ -103,7 +103,24 @@ def design_summary(assignment: FoldAssignment) -> dict:
             "dropped": {str(k): int(v) for k, v in pd.Series(assignment.dropped[~kept]).value_counts().sort_index().items()},
         },
         "folds": counts.to_dict(orient="records"),
+        "read_back": read_back(assignment),
     }
+
+
+def read_back(assignment: FoldAssignment) -> dict:
+    """How later commands read the fold table without asking for record options again."""
+    recs = assignment.records
+    out = {"id_column": "record_id", "kind_column": "kind", "fold_column": "fold"}
+    zero = assignment.parameters.get("zero_means") if hasattr(assignment.parameters, "get") else None
+    if zero:
+        out["zero_means"] = zero  # what 0 meant in the input's own kind column
+    if recs is not None:
+        from splitter.geo import crs_text
+
+        out["crs"] = crs_text(recs.points.crs)
+        if recs.x_column:
+            out["x"], out["y"] = recs.x_column, recs.y_column
+    return out
 
 
 def write_design(assignment: FoldAssignment, out, command: str | None = None) -> dict:
@@ -139,21 +156,33 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
 
 
 def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str | None = None,
-                    x=None, y=None, crs=None, id_column=None, kind_column=None) -> tuple[Records, FoldAssignment, dict]:
+                    x=None, y=None, crs=None, id_column=None, kind_column=None,
+                    zero_means=None) -> tuple[Records, FoldAssignment, dict]:
     """Read a fold table (ours or a user's) as records plus a FoldAssignment.
 
     The fold column may hold numbers (1..k evaluation folds, 0 calibration
     only, empty = not used) or names (each distinct name becomes a fold,
     numbered in sorted order). A role column holding calibration/evaluation
     (or train/test) makes a single fold. Gaps are read from ``<stem>.gaps.csv``
-    when it exists beside the table.
+    when it exists beside the table. Our own tables are read back the way the
+    design sidecar says (coordinate columns, CRS), unless told otherwise.
 
     Returns
     -------
     records, assignment, fold_names (fold number -> original label)
     """
     path = Path(path)
-    recs = read_records(path, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    side = companion(path, ".design.json")
+    sidecar = None
+    if side.exists():
+        try:
+            sidecar = json.loads(side.read_text())
+        except json.JSONDecodeError:
+            sidecar = None
+    back = (sidecar or {}).get("read_back") or {}
+    if path.suffix.lower() == ".csv" and x is None and y is None and crs is None and back:
+        x, y, crs = back.get("x"), back.get("y"), back.get("crs")
+    recs = read_records(path, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     table = recs.table
     n = len(table)
     fold = np.full(n, -1, np.int64)
@@ -223,12 +252,8 @@ def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str 
         gap_rows = pos.loc[g.loc[ok, "record_id"]].to_numpy(np.int64)
         gap_folds = g.loc[ok, "fold"].astype(int).to_numpy(np.int64)
     params = {"source_table": str(path)}
-    side = companion(path, ".design.json")
-    if side.exists():
-        try:
-            params["design"] = json.loads(side.read_text())
-        except json.JSONDecodeError:
-            pass
+    if sidecar is not None:
+        params["design"] = sidecar
     assignment = FoldAssignment(
         record_id=recs.record_id, kind=recs.kind, fold=fold, dropped=dropped, n_folds=k,
         gap_rows=gap_rows, gap_folds=gap_folds, method=method, parameters=params, records=recs,

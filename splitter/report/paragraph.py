@@ -202,10 +202,11 @@ def _design_sentences(split, plane_words: str) -> list[str]:
             out.append("Cells take folds in a fixed pattern so that neighbouring cells differ "
                        "(2 folds: rook neighbours; 4 folds: a 2 x 2 tile; 5 or more: fold = (i + 2j) mod k).")
         elif p.get("occupied_cells") is not None:
+            imb = ", ".join(f"{k} {fmt_share(_num(p.get(f'{k}_imbalance')))}" for k in ("presence", "absence", "background")
+                            if p.get(f"{k}_imbalance") is not None)
             out.append(f"The {fmt_count(p['occupied_cells'])} occupied cells were allotted to folds so that presence "
-                       f"counts (then background counts) per fold are as even as possible "
-                       f"(imbalance reported by the design: presence {fmt_share(_num(p.get('presence_imbalance')))}, "
-                       f"background {fmt_share(_num(p.get('background_imbalance')))}).")
+                       f"counts (then counts of the other records) per fold are as even as possible "
+                       f"(imbalance reported by the design: {imb}).")
     elif method == "clusters":
         covs = p.get("covariates") or []
         out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: k-means (seed {seed}) on "
@@ -297,7 +298,11 @@ def _audit_sentences(split) -> list[str]:
 def _model_words(params: dict) -> str:
     model = params.get("model")
     if model == "baseline":
-        return "the built-in baseline presence-background model, calibrated on each fold's calibration set"
+        absent = any("presence-absence model" in str(n) for n in params.get("notes") or [])
+        covs = params.get("covariates") or []
+        return (f"the built-in baseline {'presence-absence' if absent else 'presence-background'} model"
+                + (f" on the site covariates {fmt_list(covs)}" if covs else "")
+                + ", calibrated on each fold's calibration set")
     if model:
         return f"the model `{model}`, calibrated on each fold's calibration set"
     if params.get("prediction_table"):
@@ -347,6 +352,7 @@ def _evaluation_sentences(split) -> list[str]:
     elif summary.get("combined_test") == "holm":
         out.append(f"The split as a whole was judged by its smallest Holm-adjusted p, "
                    f"{fmt_p(_num(summary.get('p_adjusted')))}.")
+    out.append(_data_used_sentence(rows))
     s = f"{fmt_count(n_sig)} of {fmt_count(k)} folds were significant"
     good = [r for r in rows if r.get("significant")]
     ratios = np.array([_num(r.get("auc_ratio")) for r in good], float)
@@ -362,6 +368,30 @@ def _evaluation_sentences(split) -> list[str]:
                    f"significant: marked \"do not interpret\", and {'their' if len(bad) > 1 else 'its'} performance "
                    f"figures are not findings.")
     return out
+
+
+_OTHER_WORDS = {"absence": "evaluation absences (sites surveyed where the species was not found)",
+                "background": "evaluation background points"}
+
+
+def _data_used_sentence(rows) -> str:
+    """Which kind of data each test set the evaluation presences against."""
+    raster = any(str(r.get("area_source", "")).startswith("raster") for r in rows)
+    others = sorted({str(r.get("other_kind")) for r in rows if str(r.get("other_kind", "")) in _OTHER_WORDS
+                     and (_num(r.get("n_other")) or 0) > 0})
+    other = " or ".join(_OTHER_WORDS[o] for o in others) if others else "no absences or background"
+    if raster:
+        tests = ("the binomial test's expected share and the partial ROC (and full AUC) used the prediction "
+                 "raster's cells, weighted by area")
+    else:
+        tests = (f"with no prediction raster, the binomial test's expected share was the share of {other} predicted "
+                 f"present, and the partial ROC (and full AUC) compared evaluation presences with {other}")
+    meas = {"absence": "true specificity and commission rate (absences are surveyed)",
+            "background": "pseudo-specificity and pseudo-commission rate (background is not known to be unoccupied)"}
+    m = "; ".join(meas[o] for o in others) if others else "not computed"
+    return (f"Data each test used: {tests}; the confusion-matrix measures compared evaluation presences with "
+            f"{other}, giving {m}" + (" (a fold with absences used them, not background)" if len(others) > 1 else "")
+            + ".")
 
 
 def split_paragraph(split, plane_words: str, include_records: bool = False) -> str:
