@@ -505,8 +505,8 @@ def range_command(
         _out().print(f"{role}: {p}")
 
 
-def audit_table(result):
-    t = _table(f"residual dependence per fold: {result.verdict}")
+def audit_table(result, what: str = "presences"):
+    t = _table(f"residual dependence per fold, {what}: {result.verdict}")
     cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D (null share)", "outside env.",
             "shared method (null share)", "verdict", "why")
     for c in cols:
@@ -530,6 +530,7 @@ def audit(
     fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column with fold numbers or names."),
     role_column: Optional[str] = typer.Option(None, "--role-column", metavar="COLUMN", help="Column saying calibration/evaluation (instead of folds)."),
     env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column measured at the sites (repeatable or comma-separated): environment diagnostics without rasters."),
     range_km: Optional[float] = typer.Option(None, "--range-km", metavar="KM", help="Autocorrelation range in km."),
     range_from: Optional[Path] = typer.Option(None, "--range-from", metavar="PATH", help="Folder written by 'splitter range'."),
     group_column: Optional[str] = typer.Option(None, "--group-column", metavar="COLUMN", help="Survey method / source column."),
@@ -558,12 +559,14 @@ def audit(
                                            x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
-        result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,
+        result, context = run_audit(assignment, env=env, covariates=covariate_column, range_km=range_km, range_from=range_from,
                                     group_column=group_column, region=region, seed=seed, fold_names=names,
                                     null_splits=null_splits)
         context["command"] = command_line()
         paths = write_audit(result, context, out_dir)
     _out().print(audit_table(result))
+    if context.get("absences") is not None:
+        _out().print(audit_table(context["absences"], "absences (evaluation absences to calibration absences)"))
     _out().print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
         _out().print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")

@@ -128,3 +128,30 @@ def test_baseline_with_absences_is_a_presence_absence_logistic_model():
     assert np.allclose(predict_suitability(model, grid), ref.predict_proba(grid)[:, 1], atol=1e-6)
     balanced = fit_baseline(Xp, Xa, seed=0)  # background reading: balanced weights, a different model
     assert not np.allclose(predict_suitability(balanced, grid), ref.predict_proba(grid)[:, 1], atol=1e-3)
+
+
+def test_audit_uses_site_covariates_and_audits_absences_too(survey_folds, tmp_path):
+    from pyproj import Geod
+
+    d, df, _ = survey_folds
+    res = run("audit", d / "folds.csv", "--covariate-column", "temp", "--range-km", 30, "--null-splits", 19,
+              "--out", tmp_path / "a")
+    assert res.exit_code == 0, res.output
+    folds = pd.read_csv(d / "folds.csv", dtype=str, keep_default_na=False)
+    temp = folds["temp"].astype(float).to_numpy()
+    lon, lat = folds["lon"].astype(float).to_numpy(), folds["lat"].astype(float).to_numpy()
+    pres = pd.read_csv(tmp_path / "a" / "audit.csv", dtype={"fold": str}).set_index("fold")
+    absn = pd.read_csv(tmp_path / "a" / "audit_absences.csv", dtype={"fold": str}).set_index("fold")
+    geod = Geod(ellps="WGS84")
+    for f in ["1", "2", "3", "4"]:
+        for kind, table in (("presence", pres), ("absence", absn)):
+            ev = np.flatnonzero((folds["fold"] == f) & (folds["kind"] == kind))
+            cal = np.flatnonzero((folds["fold"] != f) & (folds["fold"] != "") & (folds["kind"] == kind))
+            # a plain envelope check: outside the calibration records' temp range (one covariate: MESS < 0)
+            outside = np.mean((temp[ev] < temp[cal].min()) | (temp[ev] > temp[cal].max()))
+            assert table.loc[f, "share_outside_envelope"] == pytest.approx(outside)
+            # reference: pyproj.Geod, brute-force nearest calibration record of the same kind
+            nn = [geod.inv(np.full(cal.size, lon[i]), np.full(cal.size, lat[i]), lon[cal], lat[cal])[2].min() / 1000
+                  for i in ev]
+            assert table.loc[f, "nn_median_km"] == pytest.approx(np.median(nn), rel=1e-6)
+    assert "absences (evaluation absences to calibration absences)" in res.stdout
