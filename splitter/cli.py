@@ -129,7 +129,7 @@ def _table(title: str, **kwargs):
 # Options every command that reads records shares.
 X_OPTION = typer.Option(None, "--x", metavar="COLUMN", help="Longitude / easting column (detected from common spellings if omitted).")
 Y_OPTION = typer.Option(None, "--y", metavar="COLUMN", help="Latitude / northing column.")
-CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV).")
+CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV); planar:km or planar:m for a local grid with no known projection.")
 ID_OPTION = typer.Option(None, "--id-column", metavar="COLUMN", help="Record id column (default: record_id, else row number).")
 KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0 with --zero-means) column (default: kind).")
 ZERO_OPTION = typer.Option(None, "--zero-means", metavar="KIND", help="What 0 (FALSE, no) means in a 0/1 kind column: 'absence' (a survey: surveyed, not found) or 'background'.")
@@ -299,7 +299,7 @@ FLAGS = {
     "predictions": "--predictions", "prediction_table": "--prediction-table", "threshold": "--threshold",
     "omission": "--omission", "replicates": "--replicates", "alpha": "--alpha", "adjust": "--adjust",
     "null_splits": "--null-splits", "fold_column": "--fold-column", "role_column": "--role-column",
-    "zero_means": "--zero-means", "model": "--model",
+    "zero_means": "--zero-means", "model": "--model", "crs": "--crs",
 }
 
 
@@ -354,7 +354,7 @@ def _print_design(assignment, paths):
         reasons = pd.Series(assignment.dropped[assignment.fold < 0]).value_counts().sort_index()
         _out().print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
     for note in p.notes or ():
-        _out().print(f"note: {note}")
+        _out().print(note if note.startswith("warning:") else f"note: {note}", markup=False, soft_wrap=True)
     for role, path in paths.items():
         _out().print(f"{role}: {path}")
 

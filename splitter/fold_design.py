@@ -9,7 +9,7 @@ import numpy as np
 
 from splitter._version import __version__
 from splitter.errors import InputError
-from splitter.geo import Points, equal_area_crs
+from splitter.geo import Points, crs_text, equal_area_crs
 from splitter.io.records import Records, as_records
 from splitter.partition import RULES, FoldAssignment, FoldRule, LaterPeriod, buffer_gaps
 from splitter.partition.base import RuleInput, imbalance
@@ -237,7 +237,7 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
             raise InputError(f"fold {i} has no calibration presences; use fewer folds or another design.")
     geometry_crs = made.geometry_crs if made.geometry_crs is not None else recs.points.crs
     params = params.replace(
-        geometry_crs=geometry_crs.to_wkt() if not geometry_crs.to_epsg() else f"EPSG:{geometry_crs.to_epsg()}",
+        geometry_crs=crs_text(geometry_crs),
         software=f"splitter {__version__}", inputs=dict(recs.sources), notes=tuple(notes),
     )
     if rule.env:

@@ -76,6 +76,13 @@ class Points:
         crs = pyproj.CRS.from_user_input(crs)
         if crs == self.crs:
             return self
+        if is_planar(self.crs) or is_planar(crs):
+            # A local grid has no known relation to the Earth: only its own unit can change.
+            if not (is_planar(self.crs) and is_planar(crs)):
+                raise InputError(f"crs={crs_text(self.crs)}: a planar grid with no known projection cannot be "
+                                 f"moved into {crs_text(crs)[:60]}; give every input in the same grid.")
+            f = _axis_factor(self.crs) / _axis_factor(crs)
+            return Points(self.x * f, self.y * f, crs)
         tr = pyproj.Transformer.from_crs(self.crs, crs, always_xy=True)
         x, y = tr.transform(self.x, self.y)
         return Points(np.asarray(x, float), np.asarray(y, float), crs)
@@ -130,10 +137,14 @@ def crs_text(crs) -> str:
     """A CRS as text that :func:`parse_crs` reads back: planar:UNIT, EPSG:N or WKT."""
     crs = pyproj.CRS.from_user_input(crs)
     if is_planar(crs):
-        factor = crs.axis_info[0].unit_conversion_factor if crs.axis_info else 1.0
+        factor = _axis_factor(crs)
         return "planar:km" if factor == 1000.0 else "planar:m" if factor == 1.0 else crs.to_wkt()
     epsg = crs.to_epsg()
     return f"EPSG:{epsg}" if epsg else crs.to_wkt()
+
+
+def _axis_factor(crs: pyproj.CRS) -> float:
+    return float(crs.axis_info[0].unit_conversion_factor) if crs.axis_info else 1.0
 
 
 def _unit_factor_km(crs: pyproj.CRS) -> float:

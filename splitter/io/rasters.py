@@ -185,6 +185,33 @@ def _same_crs(a: pyproj.CRS, b: pyproj.CRS) -> bool:
     return a == b or a.equals(b, ignore_axis_order=True)
 
 
+def check_planar_grid(records_crs: pyproj.CRS, raster_crs: pyproj.CRS, path) -> bool:
+    """True when records in a local planar grid meet a raster in the same grid and unit.
+
+    A raster with records in a planar grid (planar:km / planar:m) must be in that grid: its
+    CRS an engineering CRS in the same unit. Anything else is refused, since nothing
+    relates a local grid to the Earth.
+    """
+    from splitter.geo import _axis_factor, crs_text, is_planar
+
+    if not is_planar(records_crs):
+        if is_planar(raster_crs):
+            raise InputError(f"{path}: the raster is in a local planar grid but the records are in "
+                             f"{crs_text(records_crs)[:40]}; give the records with --crs planar:km or planar:m.")
+        return False
+    unit = crs_text(records_crs)
+    if raster_crs.is_geographic:
+        raise InputError(f"{path}: the raster has a geographic CRS (longitude/latitude) but the records are a "
+                         f"local planar grid ({unit}); give a raster laid in the records' grid.")
+    if not is_planar(raster_crs):
+        raise InputError(f"{path}: the raster's CRS is {_crs_label(raster_crs)} but the records are a local planar "
+                         f"grid ({unit}) with no known projection; give a raster laid in the records' grid.")
+    if _axis_factor(raster_crs) != _axis_factor(records_crs):
+        raise InputError(f"{path}: the raster's grid unit is {_axis_factor(raster_crs):g} m but the records' is "
+                         f"{unit}; give both in the same unit.")
+    return True
+
+
 def _same_grid(a: RasterInfo, b: RasterInfo) -> bool:
     return (
         _same_crs(a.crs, b.crs)
@@ -396,9 +423,12 @@ def sample_rasters(paths, points: Points, *, max_window_cells: int = WINDOW_CELL
         info = raster_info(path)
         if info.count > 1:
             notes.append(f"used band 1 of {info.count} in {path.name}")
-        if not _same_crs(points.crs, info.crs):
-            notes.append(f"reprojected records to {_crs_label(info.crs)} for {path.name}")
-        pts = points.to_crs(info.crs)
+        if check_planar_grid(points.crs, info.crs, path):
+            pts = Points(points.x, points.y, info.crs)  # the same local grid and unit
+        else:
+            if not _same_crs(points.crs, info.crs):
+                notes.append(f"reprojected records to {_crs_label(info.crs)} for {path.name}")
+            pts = points.to_crs(info.crs)
         with rasterio.open(path) as src:
             values[:, j] = _sample_open(src, info, pts.x, pts.y, max_window_cells)
         missing = int(np.isnan(values[:, j]).sum())

@@ -18,7 +18,7 @@ import pandas as pd
 import pyproj
 
 from splitter.errors import InputError
-from splitter.geo import WGS84, Points
+from splitter.geo import WGS84, Points, is_planar, parse_crs
 
 X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x")
 Y_NAMES = ("latitude", "lat", "decimallatitude", "y")
@@ -294,6 +294,8 @@ def read_records(
                 "between 180 and 360 (the 0..360 convention); subtract 360 from values above 180 to give -180..180."
             )
         dropped[finite & ~(lon_ok & lat_ok)] = "coordinates-out-of-range"
+    elif is_planar(pts.crs):
+        _check_planar(pts, finite, path, x_col, notes)
 
     record_id = _record_ids(table, path, id_column)
     kind = _kinds(table, path, kind_column, default_kind, dropped, zero_means)
@@ -320,10 +322,34 @@ def _csv_points(table, path, x, y, crs, notes):
 
 
 def _given_crs(crs) -> pyproj.CRS:
-    try:
-        return pyproj.CRS.from_user_input(crs)
-    except pyproj.exceptions.CRSError:
-        raise InputError(f"--crs {crs}: not a CRS pyproj knows; give e.g. EPSG:4326 or EPSG:3035.") from None
+    return parse_crs(crs)
+
+
+#: Largest coordinate magnitude a planar grid can have, in km (Earth's circumference):
+#: beyond it the stated unit is wrong (e.g. metres given as planar:km).
+PLANAR_LIMIT_KM = 40_075.0
+
+
+def _check_planar(pts: Points, finite, path, x_col, notes):
+    """Planar coordinates are taken as given; values no grid in the stated unit can hold are refused,
+    and values that look like longitude/latitude get a warning (not a guess)."""
+    from splitter.geo import crs_text
+
+    unit = crs_text(pts.crs)
+    f = pts.crs.axis_info[0].unit_conversion_factor / 1000.0
+    big = finite & ((np.abs(pts.x) * f > PLANAR_LIMIT_KM) | (np.abs(pts.y) * f > PLANAR_LIMIT_KM))
+    if big.any():
+        row = int(np.flatnonzero(big)[0]) + 2
+        raise InputError(
+            f"{path}: row {row} has coordinates ({pts.x[row - 2]:g}, {pts.y[row - 2]:g}) beyond "
+            f"{PLANAR_LIMIT_KM:,.0f} km from the origin, which no grid in the unit of crs={unit} can hold; "
+            "check the unit (planar:m for metres) or rescale the columns.")
+    x, y = pts.x[finite], pts.y[finite]
+    frac = (np.abs(x - np.round(x)) > 0).mean() if x.size else 0.0
+    if x.size and np.all(np.abs(x) <= 180) and np.all(np.abs(y) <= 90) and frac > 0.5 and np.ptp(x) < 20 and np.ptp(y) < 20:
+        notes.append(f"warning: {path}: every coordinate lies within -180..180 / -90..90 with decimals, as "
+                     f"longitude/latitude do; they are read as a planar grid ({unit}) as given; if they are "
+                     "degrees, leave out --crs (EPSG:4326).")
 
 
 def _numbers(column: pd.Series) -> np.ndarray:

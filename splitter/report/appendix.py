@@ -163,6 +163,8 @@ class _Writer:
 def _map_plane(run: Run) -> MapPlane:
     """One equal-area plane for every map: the first spatial split's geometry CRS, else one
     centred on the records."""
+    if run.splits[0].records.crs is not None:  # a local planar grid: maps are drawn in it
+        return MapPlane(run.splits[0].records.crs)
     ordered = sorted(run.splits, key=lambda s: (s.method not in SPATIAL_METHODS, s.name))
     for s in ordered:
         crs = s.geometry_crs
@@ -210,7 +212,8 @@ def _records_frame(split: SplitRun, c: _Coords) -> pd.DataFrame:
     return pd.DataFrame({
         "record_id": r.record_id, "kind": r.kind, "fold": fold, "dropped": r.dropped,
         "left_out_of_calibration_in_folds": gaps,
-        "longitude": c.lon, "latitude": c.lat, "x_km": c.x_km, "y_km": c.y_km,
+        **({"x": c.lon, "y": c.lat} if r.crs is not None else {"longitude": c.lon, "latitude": c.lat}),
+        "x_km": c.x_km, "y_km": c.y_km,
     })
 
 
@@ -455,13 +458,16 @@ def _map_figure(w: _Writer, s: SplitRun, c: _Coords, plane: MapPlane, plane_word
     grid = None
     size = s.parameters.get("block_size_km", s.design.get("block_size_km"))
     gcrs = s.geometry_crs
-    if s.method in SPATIAL_METHODS and size and gcrs is not None and gcrs.is_projected:
+    if s.method in SPATIAL_METHODS and size and gcrs is not None and (gcrs.is_projected or r.crs is not None):
         from splitter.geo import Points, planar_km
 
         ok = np.isfinite(r.lon) & np.isfinite(r.lat)
         gx = np.full(r.lon.shape, np.nan)
         gy = np.full(r.lat.shape, np.nan)
-        if ok.any():
+        if r.crs is not None:  # a local planar grid: the records' own coordinates, in km
+            gcrs = plane.crs
+            gx, gy = plane.from_lonlat(r.lon, r.lat)
+        elif ok.any():
             gx[ok], gy[ok] = planar_km(Points.lonlat(r.lon[ok], r.lat[ok]), gcrs)
         grid = cell_grid(s.method, float(size), s.parameters.get("grid_offset_km") or (0.0, 0.0), gcrs, plane,
                          gx, gy, r.fold, extent, fill=generalise_km is None)

@@ -166,7 +166,7 @@ def range_sentence(range_doc: dict) -> str:
 
 def _design_sentences(split, plane_words: str) -> list[str]:
     crs = split.geometry_crs
-    if crs is not None and crs.is_projected:
+    if crs is not None and (crs.is_projected or crs.type_name == "Engineering CRS"):
         from splitter.report.maps import MapPlane
 
         plane_words = MapPlane(crs).describe()

@@ -36,11 +36,14 @@ class SplitRecords:
     fold : ndarray of int
         1..k evaluation fold, 0 calibration only, -1 dropped.
     lon, lat : ndarray of float
-        WGS84 longitude/latitude (NaN where the row has no coordinates).
+        WGS84 longitude/latitude (NaN where the row has no coordinates); for
+        records in a local planar grid, their own x/y in the grid's unit.
     gap_rows, gap_folds : ndarray of int
         Row ``gap_rows[m]`` is left out of fold ``gap_folds[m]``'s calibration set.
     fold_names : dict
         Fold number -> label as written in the fold table.
+    crs : pyproj.CRS or None
+        The local planar grid (planar:km / planar:m) of ``lon``/``lat``; None for longitude/latitude.
     """
 
     record_id: np.ndarray
@@ -52,6 +55,7 @@ class SplitRecords:
     gap_rows: np.ndarray
     gap_folds: np.ndarray
     fold_names: dict
+    crs: object = None
 
 
 @dataclass(frozen=True)
@@ -91,9 +95,11 @@ class SplitRun:
         text = self.design.get("geometry_crs")
         if not text:
             return None
+        from splitter.geo import parse_crs
+
         try:
-            return pyproj.CRS.from_user_input(text)
-        except pyproj.exceptions.CRSError:
+            return parse_crs(text)  # EPSG:N, WKT or planar:km / planar:m
+        except InputError:
             return None
 
     @property
@@ -154,7 +160,11 @@ def _read_records(table_path: Path, design: dict) -> SplitRecords:
         if not crs:
             raise
         recs, assignment, names = read_fold_table(table_path, crs=crs)
-    ll = recs.points.to_lonlat()
+    from splitter.geo import is_planar
+
+    planar = is_planar(recs.points.crs)
+    # A local grid has no longitude/latitude: its own coordinates are carried instead.
+    ll = recs.points if planar else recs.points.to_lonlat()
     return SplitRecords(
         record_id=np.asarray(assignment.record_id).astype(str),
         kind=np.asarray(assignment.kind).astype(str),
@@ -165,6 +175,7 @@ def _read_records(table_path: Path, design: dict) -> SplitRecords:
         gap_rows=np.asarray(assignment.gap_rows, np.int64),
         gap_folds=np.asarray(assignment.gap_folds, np.int64),
         fold_names={int(k): str(v) for k, v in names.items()},
+        crs=recs.points.crs if planar else None,
     )
 
 
