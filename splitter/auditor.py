@@ -93,7 +93,7 @@ def audit(
     prediction_points = None
     covariates = [c.strip() for v in (covariates or ()) for c in str(v).split(",") if c.strip()]
     if covariates and env:
-        raise InputError("give covariates as `env` rasters or as covariates columns, not both.")
+        raise InputError("give covariates as `env` rasters or as `covariates` columns, not both.")
     reg = None
     if region is not None:
         from splitter.io.rasters import read_region

@@ -357,12 +357,16 @@ def evaluate(
     EvaluationResult
     """
     rule = ThresholdRule.parse(threshold)
+    covariates = [c.strip() for v in (covariates or ()) for c in str(v).split(",") if c.strip()]
     if not 0 < alpha < 1:
         raise InputError(f"alpha={alpha}: give a level between 0 and 1 (e.g. 0.05).")
     if adjust not in ADJUSTMENTS:
         raise InputError(f"adjust={adjust!r}: use 'holm' (Holm's adjustment across folds) or 'none'.")
+    if covariates and model is None:
+        raise InputError("`covariates` columns are for a model fitted here: give `model` (baseline) too.")
     if predictions is None and prediction_table is None and model is None:
-        raise InputError("give predictions: --predictions 'PATTERN_{fold}.tif', --prediction-table FILE or --model baseline --env RASTER.")
+        raise InputError("give predictions: --predictions 'PATTERN_{fold}.tif', --prediction-table FILE or --model "
+                         "baseline with --env RASTER or --covariate-column COLUMN.")
     if assignment.records is None:
         raise InputError("the fold assignment carries no records; build it with splitter.design or splitter.read_fold_table.")
     names = fold_names or {i: str(i) for i in assignment.folds}
@@ -374,11 +378,8 @@ def evaluate(
 
         region_geom = read_region(region) if not hasattr(region, "geometry") else region
 
-    covariates = [c.strip() for v in (covariates or ()) for c in str(v).split(",") if c.strip()]
     if covariates and env:
-        raise InputError("give the model's covariates as `env` rasters or as covariates columns, not both.")
-    if covariates and model is None:
-        raise InputError("covariates columns are for a model fitted here: give `model` (baseline) too.")
+        raise InputError("give the model's covariates as `env` rasters or as `covariates` columns, not both.")
     if model is not None and covariates:
         if predictions is not None or prediction_table is not None:
             raise InputError("give either a `model` to fit or predictions (`predictions`, `prediction_table`), not both.")

@@ -303,7 +303,7 @@ def _model_words(params: dict) -> str:
         return (f"the built-in baseline {'presence-absence' if absent else 'presence-background'} model"
                 + (f" on the site covariates {fmt_list(covs)}" if covs else "")
                 + ", calibrated on each fold's calibration set")
-    if model:
+    if model and model != "user predictions":
         return f"the model `{model}`, calibrated on each fold's calibration set"
     if params.get("prediction_table"):
         return "the analyst's predictions (a prediction table)"
@@ -380,17 +380,18 @@ def _data_used_sentence(rows) -> str:
     others = sorted({str(r.get("other_kind")) for r in rows if str(r.get("other_kind", "")) in _OTHER_WORDS
                      and (_num(r.get("n_other")) or 0) > 0})
     other = " or ".join(_OTHER_WORDS[o] for o in others) if others else "no absences or background"
+    again = " or ".join(_OTHER_WORDS[o].split(" (")[0] for o in others) if others else other
     if raster:
         tests = ("the binomial test's expected share and the partial ROC (and full AUC) used the prediction "
                  "raster's cells, weighted by area")
     else:
         tests = (f"with no prediction raster, the binomial test's expected share was the share of {other} predicted "
-                 f"present, and the partial ROC (and full AUC) compared evaluation presences with {other}")
+                 f"present, and the partial ROC (and full AUC) compared evaluation presences with {again}")
     meas = {"absence": "true specificity and commission rate (absences are surveyed)",
             "background": "pseudo-specificity and pseudo-commission rate (background is not known to be unoccupied)"}
     m = "; ".join(meas[o] for o in others) if others else "not computed"
     return (f"Data each test used: {tests}; the confusion-matrix measures compared evaluation presences with "
-            f"{other}, giving {m}" + (" (a fold with absences used them, not background)" if len(others) > 1 else "")
+            f"{again if not raster else other}, giving {m}" + (" (a fold with absences used them, not background)" if len(others) > 1 else "")
             + ".")
 
 
