@@ -155,3 +155,24 @@ def test_audit_uses_site_covariates_and_audits_absences_too(survey_folds, tmp_pa
                   for i in ev]
             assert table.loc[f, "nn_median_km"] == pytest.approx(np.median(nn), rel=1e-6)
     assert "absences (evaluation absences to calibration absences)" in res.stdout
+
+
+def test_baseline_from_site_covariate_columns_is_fitted_on_calibration_presences_and_absences(survey_folds, tmp_path):
+    d, df, _ = survey_folds
+    res = run("evaluate", d / "folds.csv", "--model", "baseline", "--covariate-column", "temp", "--replicates", 99,
+              "--seed", 1, "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    preds = pd.read_csv(tmp_path / "ev" / "predictions" / "predictions.csv", dtype={"fold": str, "record_id": str})
+    folds = pd.read_csv(d / "folds.csv", dtype=str, keep_default_na=False)
+    temp = folds["temp"].astype(float).to_numpy()[:, None]
+    for f in ["1", "2", "3", "4"]:
+        cal = (folds["fold"] != f) & (folds["fold"] != "")
+        y = (folds.loc[cal, "kind"] == "presence").to_numpy(int)
+        # reference: scikit-learn, the documented terms, presences against absences, no class weights
+        ref = Pipeline([("s", StandardScaler()), ("t", PolynomialFeatures(2, include_bias=False)),
+                        ("l", LogisticRegression(C=1.0, max_iter=2000))]).fit(temp[cal.to_numpy()], y)
+        got = preds[preds["fold"] == f].set_index("record_id")["prediction"]
+        want = pd.Series(ref.predict_proba(temp)[:, 1], index=folds["record_id"]).reindex(got.index)
+        assert np.allclose(got.to_numpy(), want.to_numpy(), atol=1e-6)
+        assert set(got.index) == set(folds["record_id"])  # every record of the fold is scored
+    assert "presence-absence model" in res.stdout
