@@ -260,6 +260,7 @@ def design(
     background: Optional[Path] = typer.Option(None, "--background", metavar="PATH", help="A separate file of background points."),
     background_count: Optional[int] = typer.Option(None, "--background-count", metavar="N", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
     region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file of the study region (for --background-count)."),
+    thin: Optional[str] = typer.Option(None, "--thin", metavar="cell|KM", help="Thin presences first: 'cell' keeps one per cell of the first --env raster, KM keeps no two closer than KM km (seeded); thinned rows stay, dropped as 'thinned'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
@@ -284,7 +285,7 @@ def design(
                             background=background, background_count=background_count, env=env, region=region,
                             seed=seed)
         bar.add_task(f"making {method} folds", total=None)
-        assignment = rule.assign(recs)
+        assignment = rule.assign(recs, thin=thin)
         bar.add_task("writing outputs", total=None)
         paths = write_design(assignment, out_path, command=command_line())
     _print_design(assignment, paths)
@@ -299,7 +300,7 @@ FLAGS = {
     "predictions": "--predictions", "prediction_table": "--prediction-table", "threshold": "--threshold",
     "omission": "--omission", "replicates": "--replicates", "alpha": "--alpha", "adjust": "--adjust",
     "null_splits": "--null-splits", "fold_column": "--fold-column", "role_column": "--role-column",
-    "zero_means": "--zero-means", "model": "--model", "crs": "--crs",
+    "zero_means": "--zero-means", "model": "--model", "crs": "--crs", "thin": "--thin",
 }
 
 
@@ -339,6 +340,10 @@ def _print_design(assignment, paths):
         _out().print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
     if imbalance_line(p):
         _out().print(imbalance_line(p))
+    if p.presence_before_thinning is not None:
+        how = "one per raster cell" if p.thin == "cell" else f"none closer than {p.thin:g} km"
+        _out().print(f"thinning ({how}): {p.presence_before_thinning} presences -> {p.presence_after_thinning} "
+                     f"({p.presence_before_thinning - p.presence_after_thinning} thinned)")
     if p.fold_periods:
         _out().print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
     if p.calibrate_before is not None:

@@ -13,6 +13,7 @@ from splitter.geo import Points, crs_text, equal_area_crs
 from splitter.io.records import Records, as_records
 from splitter.partition import RULES, FoldAssignment, FoldRule, LaterPeriod, buffer_gaps
 from splitter.partition.base import RuleInput, imbalance
+from splitter.partition.thin import check_thin
 
 
 def attach_covariates(records: Records, env=(), covariates=()) -> tuple[Records, np.ndarray | None, list[str], list[str]]:
@@ -105,6 +106,7 @@ def design(
     x: str | None = None,
     y: str | None = None,
     zero_means: str | None = None,
+    thin=None,
 ) -> FoldAssignment:
     """Make calibration/evaluation folds for occurrence records.
 
@@ -152,6 +154,9 @@ def design(
         their columns (detected from common spellings when omitted).
     zero_means : {"absence", "background"}
         What 0 means in a 0/1 kind column (required when there is one).
+    thin : "cell" or float, optional
+        Thin presences first: one per cell of the first ``env`` raster, or no two
+        closer than this many km (seeded). Thinned rows stay, dropped as ``thinned``.
 
     Returns
     -------
@@ -168,11 +173,11 @@ def design(
                     group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                     time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed,
                     random_offset=random_offset, range_sample=range_sample)
-    return rule.assign(records, crs=crs, x=x, y=y, zero_means=zero_means)
+    return rule.assign(records, crs=crs, x=x, y=y, zero_means=zero_means, thin=thin)
 
 
 def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None,
-                   labels=None, groups=None, zero_means=None) -> FoldAssignment:
+                   labels=None, groups=None, zero_means=None, thin=None) -> FoldAssignment:
     """The shell around a rule: read the records, sample covariates, ask the rule
     for folds, apply the buffer, and record how it was done.
 
@@ -185,8 +190,14 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
         recs = _kinds_from_labels(recs, labels, kind_column)
     if groups is not None and len(groups) != len(recs):
         raise InputError(f"groups has {len(groups)} values but the records have {len(recs)} rows.")
+    thin = check_thin(thin)
+    if thin == "cell" and not rule.env:
+        raise InputError("thin='cell': one presence per cell needs `env` rasters (the first one's cells).")
     recs, env_matrix, env_names, notes = attach_covariates(recs, rule.env, rule.covariates)
     notes = list(recs.notes) + notes
+    thinning = None
+    if thin is not None:
+        recs, thinning = thin_records(recs, thin, rule.env, rule.seed)
 
     kinds = recs.kind
     if not np.any(recs.kept & (kinds == "presence")):
@@ -220,6 +231,8 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
                                 background_imbalance=per_kind["background"])
     if recs.zero_means is not None:
         params = params.replace(zero_means=recs.zero_means)
+    if thinning is not None:
+        params = params.replace(**thinning.to_dict())
     rows, gfolds = np.zeros(0, np.int64), np.zeros(0, np.int64)
     if rule.buffer > 0:
         rows, gfolds = buffer_gaps(recs.points, np.where(kept_now, fold, -1), rule.buffer)
@@ -243,6 +256,20 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
     if rule.env:
         params = params.replace(env=tuple(rule.env), covariates=tuple(env_names))
     return replace(assignment, parameters=params, records=recs, covariates=env_matrix, covariate_names=tuple(env_names))
+
+
+def thin_records(recs: Records, thin, env, seed: int):
+    """Mark presences removed by thinning as dropped (``thinned``); return the records and the Thinning."""
+    from splitter.partition.thin import thin_cells, thin_distance
+
+    candidate = recs.kept & (recs.kind == "presence")
+    if thin == "cell":
+        from splitter.io.rasters import cell_of
+
+        t = thin_cells(cell_of(env[0], recs.points), candidate, seed=seed)
+    else:
+        t = thin_distance(recs.points, candidate, float(thin), seed=seed)
+    return recs.with_dropped(~t.keep, "thinned"), t
 
 
 def _kinds_from_labels(recs: Records, labels, kind_column) -> Records:

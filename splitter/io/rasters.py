@@ -212,6 +212,31 @@ def check_planar_grid(records_crs: pyproj.CRS, raster_crs: pyproj.CRS, path) -> 
     return True
 
 
+def cell_of(path, points: Points) -> np.ndarray:
+    """Index (row * width + column) of the raster cell holding each point; -1 outside or missing.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from rasterio.transform import from_origin
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "c.tif"
+    >>> write_geotiff(p, np.zeros((2, 3)), from_origin(0, 2, 1, 1), "EPSG:4326")
+    >>> cell_of(p, Points.lonlat([0.5, 2.5, 9.0], [1.5, 0.5, 0.5])).tolist()
+    [0, 5, -1]
+    """
+    info = raster_info(path)
+    if check_planar_grid(points.crs, info.crs, path):
+        pts = Points(points.x, points.y, info.crs)
+    else:
+        pts = points.to_crs(info.crs)
+    col, row = _apply(~info.transform, pts.x, pts.y)
+    ok = np.isfinite(col) & np.isfinite(row)
+    c = np.floor(np.where(ok, col, -1)).astype(np.int64)
+    r = np.floor(np.where(ok, row, -1)).astype(np.int64)
+    inside = ok & (c >= 0) & (c < info.width) & (r >= 0) & (r < info.height)
+    return np.where(inside, r * info.width + c, -1)
+
+
 def _same_grid(a: RasterInfo, b: RasterInfo) -> bool:
     return (
         _same_crs(a.crs, b.crs)

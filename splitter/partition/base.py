@@ -178,6 +178,9 @@ class DesignParameters(Mapping):
     background_imbalance: float | None = None
     absence_imbalance: float | None = None
     zero_means: str | None = None
+    thin: object = None
+    presence_before_thinning: int | None = None
+    presence_after_thinning: int | None = None
     covariates: tuple | None = None
     standardised_on: str | None = None
     group_column: str | None = None
@@ -299,7 +302,8 @@ class FoldRule:
         return DesignParameters(method=self.method, folds=int(n_folds), seed=self.seed, buffer_km=self.buffer, rule=self)
 
     # -- shared steps
-    def assign(self, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None, zero_means=None):
+    def assign(self, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None, zero_means=None,
+               thin=None):
         """Folds for ``records``: a path, a pandas DataFrame with coordinate
         columns (``crs`` names their CRS, default EPSG:4326), a GeoDataFrame or a
         :class:`splitter.Records`.
@@ -311,7 +315,7 @@ class FoldRule:
         from splitter.fold_design import assign_records  # the shell reads files and rasters
 
         return assign_records(self, records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
-                              zero_means=zero_means)
+                              zero_means=zero_means, thin=thin)
 
     def get_n_splits(self, X=None, y=None, groups=None) -> int:
         """Number of (calibration, evaluation) pairs ``split`` yields."""

@@ -139,7 +139,16 @@ def records_sentence(design: dict) -> str:
         text += " (" + ", ".join(f"{k}: {fmt_count(v)}" for k, v in sorted(dropped.items())) + ")"
     if int(rec.get("calibration_only", 0) or 0):
         text += f", and {fmt_count(rec['calibration_only'])} records are used for calibration only"
-    return text + "."
+    text += "."
+    p = design.get("parameters", {}) or {}
+    if p.get("presence_before_thinning") is not None:
+        how = ("one presence was kept per cell of the first covariate raster" if p.get("thin") == "cell" else
+               f"presences were thinned so that no two lie closer than {fmt_km(_num(p.get('thin')))}")
+        text += (f" Before folds were made, {how} (chosen at random, seed {design.get('seed', p.get('seed'))}): "
+                 f"{fmt_count(p['presence_before_thinning'])} presences before thinning, "
+                 f"{fmt_count(p['presence_after_thinning'])} after; the others are kept in the fold table, "
+                 f"dropped as \"thinned\".")
+    return text
 
 
 def range_sentence(range_doc: dict) -> str:
