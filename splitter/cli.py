@@ -260,6 +260,7 @@ def design(
     background: Optional[Path] = typer.Option(None, "--background", metavar="PATH", help="A separate file of background points."),
     background_count: Optional[int] = typer.Option(None, "--background-count", metavar="N", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
     region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file of the study region (for --background-count)."),
+    generalise: Optional[float] = typer.Option(None, "--generalise", metavar="KM", help="Write every coordinate of the fold table as the centre of its KM km cell (sensitive species); folds are made from the exact ones."),
     thin: Optional[str] = typer.Option(None, "--thin", metavar="cell|KM", help="Thin presences first: 'cell' keeps one per cell of the first --env raster, KM keeps no two closer than KM km (seeded); thinned rows stay, dropped as 'thinned'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
@@ -274,6 +275,8 @@ def design(
     from splitter.io.foldtable import write_design
     from splitter.loading import load_records
 
+    if generalise is not None and not generalise > 0:
+        raise InputError(f"--generalise {generalise}: give a grid size in km greater than 0.")
     with progress() as bar, flag_names():
         from splitter.fold_design import rule_for
 
@@ -287,8 +290,10 @@ def design(
         bar.add_task(f"making {method} folds", total=None)
         assignment = rule.assign(recs, thin=thin)
         bar.add_task("writing outputs", total=None)
-        paths = write_design(assignment, out_path, command=command_line())
+        paths = write_design(assignment, out_path, command=command_line(), generalise_km=generalise)
     _print_design(assignment, paths)
+    if generalise is not None:
+        _out().print(f"coordinates written generalised to {generalise:g} km cells (folds made from the exact ones)")
 
 
 # Python parameter -> command-line option, for the design settings (the one place they meet).

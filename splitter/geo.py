@@ -179,6 +179,37 @@ def planar_km(points: Points, crs: pyproj.CRS) -> tuple[np.ndarray, np.ndarray]:
     return p.x * f, p.y * f
 
 
+def generalise_points(points: Points, cell_km: float, plane: pyproj.CRS | None = None) -> Points:
+    """Points moved to the centres of ``cell_km`` square cells of a planar grid (same CRS back).
+
+    The grid lies in ``plane`` (a projected CRS; default: the points' own CRS when
+    projected or a local planar grid, else the equal-area CRS centred on them),
+    anchored at its origin: cell ``(i, j)`` spans ``[i L, (i + 1) L)`` km and its centre
+    is ``(i + 0.5) L``. Missing coordinates stay missing. For sharing locations of
+    sensitive species; computations use the exact points.
+
+    Examples
+    --------
+    >>> p = generalise_points(Points([0.2e3, 12.9e3], [5.0e3, 7.4e3], "EPSG:3035"), 10.0)
+    >>> p.x.tolist(), p.y.tolist()
+    ([5000.0, 15000.0], [5000.0, 5000.0])
+    """
+    cell = float(cell_km) if isinstance(cell_km, (int, float, np.number)) and not isinstance(cell_km, bool) else np.nan
+    if not np.isfinite(cell) or cell <= 0:
+        raise InputError(f"generalise_km={cell_km!r}: give a cell size in km greater than 0.")
+    if plane is None:
+        plane = points.crs if not points.geographic else equal_area_crs(points)
+    ok = np.isfinite(points.x) & np.isfinite(points.y)
+    x, y = np.full(len(points), np.nan), np.full(len(points), np.nan)
+    if ok.any():
+        f = _unit_factor_km(plane)
+        px, py = planar_km(points.take(np.flatnonzero(ok)), plane)
+        snapped = Points((np.floor(px / cell) + 0.5) * cell / f, (np.floor(py / cell) + 0.5) * cell / f, plane)
+        back = snapped.to_crs(points.crs)
+        x[ok], y[ok] = back.x, back.y
+    return Points(x, y, points.crs)
+
+
 def distance_km(a: Points, b: Points) -> np.ndarray:
     """Element-wise distance between two equally long point sets (km).
 

@@ -123,14 +123,28 @@ def read_back(assignment: FoldAssignment) -> dict:
     return out
 
 
-def write_design(assignment: FoldAssignment, out, command: str | None = None) -> dict:
+def write_design(assignment: FoldAssignment, out, command: str | None = None,
+                 generalise_km: float | None = None) -> dict:
     """Write the fold table, its gaps file (with a buffer) and the design sidecar.
+
+    With ``generalise_km`` every coordinate written (coordinate columns, geometry) is
+    the centre of its ``generalise_km`` cell in the design's planar grid (the
+    equal-area or planar system), a ``generalised_km`` column says so on every row,
+    and the sidecar records it; the folds were made from the exact coordinates.
 
     Returns the paths written, by role.
     """
     out = Path(out)
     frame = assignment.to_frame(text=True)
     pts = assignment.records.points if assignment.records is not None else None
+    if generalise_km is not None and pts is not None:
+        pts = _generalised(assignment, pts, generalise_km)
+        recs = assignment.records
+        if recs.x_column is not None:
+            for col, vals in ((recs.x_column, pts.x), (recs.y_column, pts.y)):
+                text = frame[col].astype(str).to_numpy(object)
+                frame[col] = np.where(np.isfinite(vals), [f"{v:.10g}" for v in vals], text)
+        frame["generalised_km"] = f"{float(generalise_km):g}"
     if out.suffix.lower() == ".csv" and pts is not None and assignment.records.x_column is None:
         # Vector input written as CSV: carry the coordinates as plain columns.
         names = ("longitude", "latitude") if pts.geographic else ("x", "y")
@@ -146,6 +160,12 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
         paths["gaps"] = gaps_path
     side = companion(out, ".design.json")
     summary = design_summary(assignment)
+    if generalise_km is not None:
+        summary["generalised_km"] = float(generalise_km)
+        summary["notes"] = list(summary.get("notes") or []) + [
+            f"coordinates in the fold table are generalised to the centres of {float(generalise_km):g} km cells of "
+            f"the design's planar grid ({assignment.parameters.get('geometry_crs', '')[:60]}); folds were made from "
+            "the exact coordinates"]
     summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
     if command:
         summary["command"] = command
@@ -153,6 +173,20 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None) ->
         f.write(to_json(summary))
     paths["design"] = side
     return paths
+
+
+def _generalised(assignment: FoldAssignment, pts, cell_km):
+    """Generalised points in the design's own planar grid (its geometry CRS when projected or planar)."""
+    from splitter.geo import generalise_points, is_planar, parse_crs
+
+    plane = None
+    text = assignment.parameters.get("geometry_crs") if hasattr(assignment.parameters, "get") else None
+    if text:
+        crs = parse_crs(text)
+        plane = crs if (crs.is_projected or is_planar(crs)) else None
+    if plane is not None and is_planar(plane) != is_planar(pts.crs):
+        plane = None
+    return generalise_points(pts, cell_km, plane)
 
 
 def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str | None = None,

@@ -140,6 +140,9 @@ def records_sentence(design: dict) -> str:
     if int(rec.get("calibration_only", 0) or 0):
         text += f", and {fmt_count(rec['calibration_only'])} records are used for calibration only"
     text += "."
+    if design.get("generalised_km"):
+        text += (f" Its coordinates were written generalised to the centres of {fmt_km(_num(design['generalised_km']))} "
+                 f"cells; the folds were made from the exact coordinates.")
     p = design.get("parameters", {}) or {}
     if p.get("presence_before_thinning") is not None:
         how = ("one presence was kept per cell of the first covariate raster" if p.get("thin") == "cell" else
