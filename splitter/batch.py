@@ -64,6 +64,7 @@ OPTIONS = {
     "crs": ("text", None),
     "id_column": ("text", None),
     "kind_column": ("text", None),
+    "zero_means": ("text", None),
     "predictions": ("pattern", None),
     "prediction_table": ("path", None),
     "model": ("model", None),
@@ -431,7 +432,7 @@ def _commands(spec: RunSpec, final: Path) -> dict:
         *_opt("--evaluate-on", o["evaluate_on"]), *_opt("--background", o["background"]),
         *_opt("--background-count", o["background_count"]), *_opt("--region", o["region"]), *reading,
         *_opt("--id-column", o["id_column"]), *_opt("--kind-column", o["kind_column"]),
-        "--seed", o["seed"], "--out", folds_csv)}
+        *_opt("--zero-means", o["zero_means"]), "--seed", o["seed"], "--out", folds_csv)}
     if o["audit"]:
         out["audit"] = _cmd("audit", folds_csv, *env, *_opt("--range-km", o["range_km"]),
                             *_opt("--group-column", o["group_column"]), *_opt("--region", o["region"]), *reading,
@@ -464,7 +465,7 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
     env = list(o["env"])
     # Same reading as 'splitter design'.
     recs = load_records(spec.records, x=o["x"], y=o["y"], crs=o["crs"], id_column=o["id_column"],
-                        kind_column=o["kind_column"], background=o["background"],
+                        kind_column=o["kind_column"], zero_means=o["zero_means"], background=o["background"],
                         background_count=o["background_count"], env=env, region=o["region"], seed=o["seed"])
     assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
                         env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
