@@ -85,4 +85,5 @@ def test_presence_absence_survey_on_a_local_grid(tmp_path):
     assert "evaluation absences (sites surveyed where the species was not found)" in md
     assert "true specificity" in md and "planar grid in kilometres" in md
     assert "pseudo-specificity" not in md
+    assert "absences as triangles" in md and "background as small squares" not in md
     assert "appendix.html" in app_res.stdout

@@ -477,7 +477,9 @@ def _map_figure(w: _Writer, s: SplitRun, c: _Coords, plane: MapPlane, plane_word
                        extent=extent, generalised_km=generalise_km)
     stem = w.figure(fm.figure, f"map_{_safe(s.name)}")
     label = r.fold_names.get(fm.focus_fold, str(fm.focus_fold))
-    cap = f"Split `{s.name}`. Left: records coloured by evaluation fold (presences as dots, background as small squares)"
+    shown = ["presences as dots"] + (["absences as triangles"] if np.any(r.kind == "absence") else []) + \
+        (["background as small squares"] if np.any(r.kind == "background") else [])
+    cap = f"Split `{s.name}`. Left: records coloured by evaluation fold ({', '.join(shown)})"
     if grid is not None:
         what = "hexagons" if grid.shape == "hexagon" else "square cells"
         cap += (f" over the design's {what} of {P.fmt_km(grid.size_km)}"

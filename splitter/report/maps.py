@@ -392,8 +392,9 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
                    for f in folds]
     else:  # leave-one-out and the like: colours repeat, one key says so
         handles = [Patch(facecolor=colour(0), edgecolor="none", label=f"{len(folds)} folds (colours repeat)")]
-    handles += [Line2D([], [], ls="none", marker="o", color=GREY, ms=4, label="presence"),
-                Line2D([], [], ls="none", marker="s", color=GREY, ms=2, label="background")]
+    handles += [Line2D([], [], ls="none", marker="o", color=GREY, ms=4, label="presence")]
+    if back.any() or not absn.any():  # a survey without background: no key for it
+        handles.append(Line2D([], [], ls="none", marker="s", color=GREY, ms=2, label="background"))
     if absn.any():
         handles.append(Line2D([], [], ls="none", marker="^", color=GREY, ms=4, label="absence"))
     if cal_only.any():
