@@ -133,3 +133,22 @@ def test_lonlat_looking_values_given_as_planar_get_a_warning(tmp_path):
     assert len(ok)
     res = _design(tmp_path / "s.csv", tmp_path / "g.csv")
     assert "warning:" not in res.stdout  # a real grid in km: no warning
+
+
+def test_evaluate_with_prediction_rasters_in_the_grid(km_run, tmp_path):
+    d, _, _ = km_run
+    yy, xx = np.mgrid[0:60, 0:80] + 0.5
+    suit = np.exp(-((5 + 0.2 * xx - 14) ** 2) / 8).astype("float32")
+    for f in range(1, 5):
+        write_geotiff(tmp_path / f"pred_{f}.tif", suit, from_origin(0, 60, 1, 1), planar_crs("km"))
+        write_geotiff(tmp_path / f"ll_{f}.tif", suit, from_origin(10, 50, 0.01, 0.01), "EPSG:4326")
+    res = run("evaluate", d / "folds.csv", "--predictions", str(tmp_path / "pred_{fold}.tif"), "--replicates", 99,
+              "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    ev = pd.read_csv(tmp_path / "ev" / "evaluation.csv", dtype={"fold": str})
+    for _, r in ev[ev["fold"] != "all"].iterrows():
+        # analytic: equal 1 km² cells, so the area predicted present is the share of cells at or above the threshold
+        assert r["area_predicted"] == pytest.approx(np.mean(suit >= r["threshold"]), abs=1e-9)
+    bad = run("evaluate", d / "folds.csv", "--predictions", str(tmp_path / "ll_{fold}.tif"), "--replicates", 99,
+              "--out", tmp_path / "ev2")
+    assert bad.exit_code == 2 and "geographic" in bad.stderr and len(bad.stderr.strip().splitlines()) == 1
