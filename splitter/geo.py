@@ -80,7 +80,7 @@ class Points:
             # A local grid has no known relation to the Earth: only its own unit can change.
             if not (is_planar(self.crs) and is_planar(crs)):
                 raise InputError(f"crs={crs_text(self.crs)}: a planar grid with no known projection cannot be "
-                                 f"moved into {crs_text(crs)[:60]}; give every input in the same grid.")
+                                 f"converted to {crs_text(crs)[:60]}; give every input in the same grid.")
             f = _axis_factor(self.crs) / _axis_factor(crs)
             return Points(self.x * f, self.y * f, crs)
         tr = pyproj.Transformer.from_crs(self.crs, crs, always_xy=True)
