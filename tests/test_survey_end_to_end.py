@@ -86,4 +86,6 @@ def test_presence_absence_survey_on_a_local_grid(tmp_path):
     assert "true specificity" in md and "planar grid in kilometres" in md
     assert "pseudo-specificity" not in md
     assert "absences as triangles" in md and "background as small squares" not in md
+    assert "evaluation absences to calibration absences (verdict:" in md
+    assert (tmp_path / "appendix" / "tables" / "run_audit_absences.csv").exists()
     assert "appendix.html" in app_res.stdout

@@ -271,8 +271,8 @@ def _display_rules(rules: list, names: list) -> Table:
                  columns=("rule", "fires when", "threshold"), rows=rows, css_class="audit-rules")
 
 
-def _display_audit(split: SplitRun, source: str) -> Table:
-    t = split.audit_table
+def _display_audit(split: SplitRun, source: str, absences: bool = False) -> Table:
+    t = split.audit_absences_table if absences else split.audit_table
     if t is None:
         t = pd.DataFrame(split.audit.get("folds", [])).astype(str)
 
@@ -294,7 +294,8 @@ def _display_audit(split: SplitRun, source: str) -> Table:
     keep = [j for j in range(len(spec)) if j < 2 or any(row[j] for row in cells)]
     rows = tuple(tuple(row[j] for j in keep) for row in cells)
     dropped = [spec[j][1] for j in range(len(spec)) if j not in keep]
-    notes = ["NN: distance (geodesic) from an evaluation record to its nearest calibration record. W1: "
+    notes = ["NN: distance (geodesic for longitude/latitude, straight-line in a projected or local grid) from an "
+             "evaluation record to its nearest calibration record" + (" of the same kind" if absences else "") + ". W1: "
              "Wasserstein-1 distance between those distances and the prediction-location-to-record distances. "
              "Envelope: the calibration records' covariate ranges (MESS < 0 outside)."]
     if dropped:
@@ -303,9 +304,12 @@ def _display_audit(split: SplitRun, source: str) -> Table:
         fired = [(str(r["fold"]), str(r["reasons"])) for _, r in t.iterrows()
                  if str(r.get("verdict")) != "independent" and str(r["reasons"]).strip()]
         notes += [f"Fold {f}: {why}." for f, why in fired]
-    return Table(caption=f"Residual dependence audit, split `{split.name}` (verdict: {split.audit.get('verdict')}).",
+    verdict = ((split.audit.get("absences") or {}).get("verdict") if absences else split.audit.get("verdict"))
+    what = ": evaluation absences to calibration absences" if absences else ""
+    return Table(caption=f"Residual dependence audit, split `{split.name}`{what} (verdict: {verdict}).",
                  columns=tuple(spec[j][1] for j in keep), rows=rows, css_class="audit",
-                 element_id=f"audit-{_safe(split.name)}", notes=tuple(notes), source=source)
+                 element_id=f"audit-{_safe(split.name)}" + ("-absences" if absences else ""), notes=tuple(notes),
+                 source=source)
 
 
 PERFORMANCE = [("auc_ratio", "partial AUC ratio (observed)"), ("auc_ratio_null_median", "ratio of random presences (median)"),
@@ -623,6 +627,9 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         t = s.audit_table if s.audit_table is not None else pd.DataFrame(s.audit.get("folds", []))
         src = w.table(_reorder(t, AUDIT_FIRST), f"{tag}_audit")
         blocks.append(_display_audit(s, src))
+        if s.audit_absences_table is not None:  # a survey's absences, audited on their own
+            src = w.table(_reorder(s.audit_absences_table, AUDIT_FIRST), f"{tag}_audit_absences")
+            blocks.append(_display_audit(s, src, absences=True))
         ctx = s.audit.get("context", {}) or {}
         if ctx.get("prediction_locations"):
             blocks.append(Text(f"Prediction locations for the distance comparison: {ctx['prediction_locations']}."))

@@ -72,6 +72,7 @@ class SplitRun:
     records: SplitRecords = field(repr=False)
     audit: dict | None = field(default=None, repr=False)
     audit_table: pd.DataFrame | None = field(default=None, repr=False)
+    audit_absences_table: pd.DataFrame | None = field(default=None, repr=False)
     distance_figure: Path | None = None
     evaluation: dict | None = field(default=None, repr=False)
     evaluation_table: pd.DataFrame | None = field(default=None, repr=False)
@@ -195,7 +196,7 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
         files.append(gaps)
     records = _read_records(table_path, design)
 
-    audit = audit_table = distance_figure = None
+    audit = audit_table = audit_absences_table = distance_figure = None
     audit_json = folder / "audit" / "audit.json"
     if audit_json.exists():
         audit = _load_json(audit_json)
@@ -203,6 +204,9 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
         if (folder / "audit" / "audit.csv").exists():
             audit_table = _read_table(folder / "audit" / "audit.csv")
             files.append(folder / "audit" / "audit.csv")
+        if (folder / "audit" / "audit_absences.csv").exists():
+            audit_absences_table = _read_table(folder / "audit" / "audit_absences.csv")
+            files.append(folder / "audit" / "audit_absences.csv")
         stem = folder / "audit" / "distance_ecdf"
         if stem.with_suffix(".png").exists():
             distance_figure = stem
@@ -217,7 +221,8 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
             files.append(folder / "evaluation" / "evaluation.csv")
     return SplitRun(
         name=name, folder=folder, table_path=table_path, design=design, records=records,
-        audit=audit, audit_table=audit_table, distance_figure=distance_figure,
+        audit=audit, audit_table=audit_table, audit_absences_table=audit_absences_table,
+        distance_figure=distance_figure,
         evaluation=evaluation, evaluation_table=evaluation_table, files=tuple(files),
     )
 
