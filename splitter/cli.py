@@ -446,6 +446,11 @@ def evaluate(
         )
         paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table), "command": command_line()})
     _out().print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
+    others = sorted({f.other_kind for f in result.folds if f.n_other})
+    if others:
+        words = {"absence": "absences (true specificity)", "background": "background (pseudo-specificity)"}
+        _out().print("presences compared with evaluation " + " or ".join(words[o] for o in others)
+                     + ("; folds with absences used them" if len(others) > 1 else ""))
     for w in result.warnings:
         _out().print(f"warning: {w}")
     for n in result.parameters.get("notes", []):

@@ -115,6 +115,7 @@ def test_evaluate_without_raster_sets_presences_against_absences(survey_folds, t
         tn, fp, fn, tp = confusion_matrix(y, np.r_[pres, absn] >= r["threshold"]).ravel()
         assert r["specificity"] == pytest.approx(tn / (tn + fp)) and r["commission_rate"] == pytest.approx(fp / (tn + fp))
         assert r["specificity_name"] == "specificity" and r["commission_name"] == "commission rate"
+    assert "presences compared with evaluation absences (true specificity)" in res.stdout
 
 
 def test_baseline_with_absences_is_a_presence_absence_logistic_model():
