@@ -65,6 +65,8 @@ OPTIONS = {
     "id_column": ("text", None),
     "kind_column": ("text", None),
     "zero_means": ("text", None),
+    "thin": ("text", None),
+    "generalise": ("float", None),
     "predictions": ("pattern", None),
     "prediction_table": ("path", None),
     "model": ("model", None),
@@ -432,7 +434,8 @@ def _commands(spec: RunSpec, final: Path) -> dict:
         *_opt("--evaluate-on", o["evaluate_on"]), *_opt("--background", o["background"]),
         *_opt("--background-count", o["background_count"]), *_opt("--region", o["region"]), *reading,
         *_opt("--id-column", o["id_column"]), *_opt("--kind-column", o["kind_column"]),
-        *_opt("--zero-means", o["zero_means"]), "--seed", o["seed"], "--out", folds_csv)}
+        *_opt("--zero-means", o["zero_means"]), *_opt("--thin", o["thin"]), *_opt("--generalise", o["generalise"]),
+        "--seed", o["seed"], "--out", folds_csv)}
     if o["audit"]:
         out["audit"] = _cmd("audit", folds_csv, *env, *_opt("--range-km", o["range_km"]),
                             *_opt("--group-column", o["group_column"]), *_opt("--region", o["region"]), *reading,
@@ -469,8 +472,10 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
                         background_count=o["background_count"], env=env, region=o["region"], seed=o["seed"])
     assignment = design(recs, method=o["method"], folds=o["folds"], block_size=o["block_size"], buffer=o["buffer"],
                         env=env, covariates=list(o["covariate_column"]), group_column=o["group_column"],
-                        calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"])
-    write_design(assignment, work / "folds.csv", command=commands["design"])
+                        calibrate_on=o["calibrate_on"], evaluate_on=o["evaluate_on"], seed=o["seed"], thin=o["thin"])
+    if o["generalise"] is not None and not o["generalise"] > 0:
+        raise InputError(f"generalise={o['generalise']:g}: give a grid size in km greater than 0.")
+    write_design(assignment, work / "folds.csv", command=commands["design"], generalise_km=o["generalise"])
     check()
     summary = {"method": assignment.method, "folds": int(assignment.n_folds),
                "n_presence": int(np.sum((assignment.fold >= 0) & (assignment.kind == "presence"))),

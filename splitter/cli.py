@@ -338,6 +338,13 @@ def flag_names():
         raise InputError(as_flags(str(e))) from None
 
 
+def _print_warnings(recs):
+    """Warnings the record reader raised (e.g. lon/lat-looking values given as a planar grid)."""
+    for note in getattr(recs, "notes", ()):
+        if note.startswith("warning:"):
+            _out().print(note, markup=False, soft_wrap=True)
+
+
 def _print_design(assignment, paths):
     p = assignment.parameters  # a DesignParameters
     _out().print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
@@ -432,8 +439,9 @@ def evaluate(
         raise InputError(f"--model {model}: the built-in model is 'baseline' (pass other estimators from Python).")
     if adjust not in ("holm", "none"):
         raise InputError(f"--adjust {adjust}: use 'holm' (Holm's adjustment across folds) or 'none'.")
-    _, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
+    recs, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
                                            id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+    _print_warnings(recs)
     with progress() as bar:
         steps = assignment.n_folds * (2 if model else 1)
         task = bar.add_task("evaluating folds", total=steps)
@@ -504,6 +512,7 @@ def range_command(
 
             bar.add_task("reading records and fitting variograms", total=None)
             recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+            _print_warnings(recs)
             est = estimate_range_from_records(recs, covariates=covariate_column, response=response, sample=sample, seed=seed)
             source = {"records": str(records), "covariate_columns": list(covariate_column), "response": bool(response)}
         paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, **source, "command": command_line()})
@@ -570,8 +579,9 @@ def audit(
         raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
     if null_splits < 19:
         raise InputError(f"--null-splits {null_splits}: give at least 19 random re-splits (199 is the default).")
-    _, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
+    recs, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
                                            x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+    _print_warnings(recs)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
         result, context = run_audit(assignment, env=env, covariates=covariate_column, range_km=range_km, range_from=range_from,

@@ -129,6 +129,8 @@ def test_lonlat_looking_values_given_as_planar_get_a_warning(tmp_path):
               "random", "--folds", 2, "--out", tmp_path / "f.csv")
     assert res.exit_code == 0, res.output
     assert "warning:" in res.stdout and "longitude/latitude" in res.stdout
+    res = run("audit", tmp_path / "f.csv", "--range-km", 1, "--null-splits", 19, "--out", tmp_path / "a")
+    assert res.exit_code == 0 and "longitude/latitude" in res.stdout  # read back as planar: warned again
     ok = _grid_survey(tmp_path / "s.csv")
     assert len(ok)
     res = _design(tmp_path / "s.csv", tmp_path / "g.csv")
