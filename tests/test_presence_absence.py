@@ -177,3 +177,43 @@ def test_baseline_from_site_covariate_columns_is_fitted_on_calibration_presences
         assert np.allclose(got.to_numpy(), want.to_numpy(), atol=1e-6)
         assert set(got.index) == set(folds["record_id"])  # every record of the fold is scored
     assert "presence-absence model" in res.stdout
+
+
+def test_zero_means_background_gives_pseudo_measures(tmp_path):
+    df = _survey(tmp_path / "survey.csv")
+    res = run("design", tmp_path / "survey.csv", "--kind-column", "found", "--zero-means", "background",
+              "--id-column", "site", "--method", "blocks", "--folds", 4, "--block-size", 60, "--seed", 2,
+              "--out", tmp_path / "folds.csv")
+    assert res.exit_code == 0, res.output
+    folds = pd.read_csv(tmp_path / "folds.csv", dtype=str, keep_default_na=False)
+    assert set(folds["kind"]) == {"presence", "background"} and "eval background" in res.stdout
+    _pred_table(tmp_path, df, folds)
+    res = run("evaluate", tmp_path / "folds.csv", "--prediction-table", tmp_path / "preds.csv", "--replicates", 99,
+              "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    ev = pd.read_csv(tmp_path / "ev" / "evaluation.csv", dtype={"fold": str})
+    rows = ev[ev["fold"] != "all"]
+    assert (rows["other_kind"] == "background").all() and (rows["specificity_name"] == "pseudo-specificity").all()
+    assert (rows["commission_name"] == "pseudo-commission rate").all()
+
+
+def test_with_absences_and_background_in_a_fold_absences_are_what_presences_meet(tmp_path):
+    df = _survey(tmp_path / "survey.csv", n=300, seed=8)
+    rng = np.random.default_rng(8)
+    kind = np.where(df["found"] == "1", "presence", np.where(rng.random(len(df)) < 0.5, "absence", "background"))
+    df.assign(kind=kind).drop(columns="found").to_csv(tmp_path / "mixed.csv", index=False)
+    res = run("design", tmp_path / "mixed.csv", "--id-column", "site", "--method", "random", "--folds", 3,
+              "--seed", 1, "--out", tmp_path / "folds.csv")
+    assert res.exit_code == 0, res.output
+    folds = pd.read_csv(tmp_path / "folds.csv", dtype=str, keep_default_na=False)
+    preds = _pred_table(tmp_path, df, folds)
+    res = run("evaluate", tmp_path / "folds.csv", "--prediction-table", tmp_path / "preds.csv", "--replicates", 99,
+              "--out", tmp_path / "ev")
+    assert res.exit_code == 0, res.output
+    ev = pd.read_csv(tmp_path / "ev" / "evaluation.csv", dtype={"fold": str})
+    for _, r in ev[ev["fold"] != "all"].iterrows():
+        on = folds[(folds["fold"] == r["fold"]) & (folds["kind"] != "background")]
+        p = preds[preds["fold"] == r["fold"]].set_index("record_id")["prediction"].reindex(on["record_id"])
+        # reference: sklearn.metrics.roc_auc_score on presences vs absences only (background left aside)
+        assert r["auc"] == pytest.approx(roc_auc_score(on["kind"] == "presence", p), abs=1e-9)
+        assert r["other_kind"] == "absence" and r["n_other"] == int((on["kind"] == "absence").sum())
