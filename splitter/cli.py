@@ -129,9 +129,10 @@ def _table(title: str, **kwargs):
 # Options every command that reads records shares.
 X_OPTION = typer.Option(None, "--x", metavar="COLUMN", help="Longitude / easting column (detected from common spellings if omitted).")
 Y_OPTION = typer.Option(None, "--y", metavar="COLUMN", help="Latitude / northing column.")
-CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV).")
+CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV); planar:km or planar:m for a local grid with no known projection.")
 ID_OPTION = typer.Option(None, "--id-column", metavar="COLUMN", help="Record id column (default: record_id, else row number).")
-KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0) column (default: kind).")
+KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0 with --zero-means) column (default: kind).")
+ZERO_OPTION = typer.Option(None, "--zero-means", metavar="KIND", help="What 0 (FALSE, no) means in a 0/1 kind column: 'absence' (a survey: surveyed, not found) or 'background'.")
 
 
 def _fail(message: str, code: int = 2):
@@ -216,21 +217,32 @@ def main(version: bool = typer.Option(False, "--version", callback=version_callb
 
 
 def fold_summary_table(assignment, title: str):
+    import numpy as np
+
     counts = assignment.counts()
+    kept = assignment.fold >= 0
+    # A column per kind the records hold: absences are never shown as background.
+    kinds = ["presence"] + [k for k in ("absence", "background") if np.any(kept & (assignment.kind == k))]
     t = _table(title)
     t.add_column("fold", justify="right")
-    t.add_column("eval presence", justify="right")
-    t.add_column("eval background", justify="right")
-    t.add_column("calib presence", justify="right")
-    t.add_column("calib background", justify="right")
+    for role, short in (("evaluation", "eval"), ("calibration", "calib")):
+        for k in kinds:
+            t.add_column(f"{short} {k}", justify="right")
     t.add_column("in buffer gap", justify="right")
     show = counts if len(counts) <= 25 else counts.head(25)
-    for r in show.itertuples():
-        t.add_row(str(r.fold), str(r.evaluation_presence), str(r.evaluation_background),
-                  str(r.calibration_presence), str(r.calibration_background), str(r.gap))
+    for r in show.to_dict(orient="records"):
+        t.add_row(str(r["fold"]), *[str(r[f"{role}_{k}"]) for role in ("evaluation", "calibration") for k in kinds],
+                  str(r["gap"]))
     if len(counts) > 25:
         t.caption = f"... {len(counts) - 25} more folds in the sidecar"
     return t
+
+
+def imbalance_line(p) -> str | None:
+    """Fold imbalance per kind the design holds (None when it was not measured)."""
+    parts = [f"{word} {v:.3f}" for word, v in (("presences", p.presence_imbalance), ("absences", p.absence_imbalance),
+                                               ("background", p.background_imbalance)) if v is not None]
+    return "fold imbalance (max-min)/mean: " + ", ".join(parts) if p.presence_imbalance is not None else None
 
 
 @guarded
@@ -251,6 +263,8 @@ def design(
     background: Optional[Path] = typer.Option(None, "--background", metavar="PATH", help="A separate file of background points."),
     background_count: Optional[int] = typer.Option(None, "--background-count", metavar="N", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
     region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file of the study region (for --background-count)."),
+    generalise: Optional[float] = typer.Option(None, "--generalise", metavar="KM", help="Write every coordinate of the fold table as the centre of its KM km cell (sensitive species); folds are made from the exact ones."),
+    thin: Optional[str] = typer.Option(None, "--thin", metavar="cell|KM", help="Thin presences first: 'cell' keeps one per cell of the first --env raster, KM keeps no two closer than KM km (seeded); thinned rows stay, dropped as 'thinned'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
@@ -259,6 +273,7 @@ def design(
     alpha: float = typer.Option(0.05, "--alpha", metavar="ALPHA", help="Significance level the folds will be tested at (for the design checks)."),
     adjust: str = typer.Option("holm", "--adjust", metavar="METHOD", help="'holm' or 'none', as evaluate will use it (for the design checks)."),
     omission: float = typer.Option(0.05, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E evaluate will use (for the design checks)."),
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for every random step."),
     out_path: Path = typer.Option(..., "--out", metavar="PATH", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
@@ -267,6 +282,8 @@ def design(
     from splitter.workflow.loading import load_records
     from splitter.partition.testability import check_folds
 
+    if generalise is not None and not generalise > 0:
+        raise InputError(f"--generalise {generalise}: give a grid size in km greater than 0.")
     with progress() as bar, flag_names():
         from splitter.workflow.design import rule_for
 
@@ -274,15 +291,17 @@ def design(
                         group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                         time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed)
         bar.add_task("reading records", total=None)
-        recs = load_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
+        recs = load_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means,
                             background=background, background_count=background_count, env=env, region=region,
                             seed=seed)
         bar.add_task(f"making {method} folds", total=None)
-        assignment = rule.assign(recs)
+        assignment = rule.assign(recs, thin=thin)
         checks = check_folds(assignment, alpha=alpha, adjust=adjust, omission=omission)
         bar.add_task("writing outputs", total=None)
-        paths = write_design(assignment, out_path, command=command_line(), checks=checks)
+        paths = write_design(assignment, out_path, command=command_line(), checks=checks, generalise_km=generalise)
     _print_design(assignment, paths, checks)
+    if generalise is not None:
+        _out().print(f"coordinates written generalised to {generalise:g} km cells (folds made from the exact ones)")
 
 
 def fold_checks_table(checks):
@@ -312,6 +331,7 @@ FLAGS = {
     "predictions": "--predictions", "prediction_table": "--prediction-table", "threshold": "--threshold",
     "omission": "--omission", "replicates": "--replicates", "alpha": "--alpha", "adjust": "--adjust",
     "null_splits": "--null-splits", "fold_column": "--fold-column", "role_column": "--role-column",
+    "zero_means": "--zero-means", "model": "--model", "crs": "--crs", "thin": "--thin",
 }
 
 
@@ -344,6 +364,13 @@ def flag_names():
         raise InputError(as_flags(str(e))) from None
 
 
+def _print_warnings(recs):
+    """Warnings the record reader raised (e.g. lon/lat-looking values given as a planar grid)."""
+    for note in getattr(recs, "notes", ()):
+        if note.startswith("warning:"):
+            _out().print(note, markup=False, soft_wrap=True)
+
+
 def _print_design(assignment, paths, checks):
     p = assignment.parameters  # a DesignParameters
     _out().print(fold_summary_table(assignment, f"{assignment.method}: {assignment.n_folds} folds"))
@@ -352,8 +379,12 @@ def _print_design(assignment, paths, checks):
         _out().print(f"warning: {w}")
     if p.block_size_km:
         _out().print(f"block size: {p.block_size_km:.4g} km ({p.block_size_rule or 'given'})")
-    if p.presence_imbalance is not None:
-        _out().print(f"fold imbalance (max-min)/mean: presences {p.presence_imbalance:.3f}, background {p.background_imbalance:.3f}")
+    if imbalance_line(p):
+        _out().print(imbalance_line(p))
+    if p.presence_before_thinning is not None:
+        how = "one per raster cell" if p.thin == "cell" else f"none closer than {p.thin:g} km"
+        _out().print(f"thinning ({how}): {p.presence_before_thinning} presences -> {p.presence_after_thinning} "
+                     f"({p.presence_before_thinning - p.presence_after_thinning} thinned)")
     if p.fold_periods:
         _out().print("time windows: " + ", ".join(f"{f}: {v[0]:g}-{v[1]:g}" for f, v in p.fold_periods.items() if len(v) == 2))
     if p.calibrate_before is not None:
@@ -369,7 +400,7 @@ def _print_design(assignment, paths, checks):
         reasons = pd.Series(assignment.dropped[assignment.fold < 0]).value_counts().sort_index()
         _out().print(f"dropped rows: {dropped} (" + ", ".join(f"{k}: {v}" for k, v in reasons.items()) + ")")
     for note in p.notes or ():
-        _out().print(f"note: {note}")
+        _out().print(note if note.startswith("warning:") else f"note: {note}", markup=False, soft_wrap=True)
     for role, path in paths.items():
         _out().print(f"{role}: {path}")
 
@@ -408,6 +439,7 @@ def evaluate(
     prediction_table: Optional[Path] = typer.Option(None, "--prediction-table", metavar="PATH", help="CSV with record_id, fold, prediction."),
     model: Optional[str] = typer.Option(None, "--model", metavar="NAME", help="'baseline': fit the built-in model per fold over --env rasters."),
     env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF for --model (repeatable)."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column of the fold table for --model, instead of --env (repeatable or comma-separated)."),
     region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file cutting the testing region."),
     fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column holding the folds."),
     threshold: str = typer.Option("quantile:0.1", "--threshold", metavar="RULE", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
@@ -420,6 +452,7 @@ def evaluate(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the bootstrap and the null."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'not-significant': exit 1 when any fold is not significant."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
@@ -435,19 +468,26 @@ def evaluate(
         raise InputError(f"--model {model}: the built-in model is 'baseline' (pass other estimators from Python).")
     if adjust not in ("holm", "none"):
         raise InputError(f"--adjust {adjust}: use 'holm' (Holm's adjustment across folds) or 'none'.")
-    _, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
-                                           id_column=id_column, kind_column=kind_column)
+    recs, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
+                                           id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+    _print_warnings(recs)
     with progress() as bar:
         steps = assignment.n_folds * (2 if model else 1)
         task = bar.add_task("evaluating folds", total=steps)
         result = run_evaluate(
             assignment, predictions=predictions, prediction_table=prediction_table, model=model, env=env,
+            covariates=covariate_column,
             region=region, threshold=threshold, omission=omission, replicates=replicates, alpha=alpha,
             adjust=adjust, seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
             progress=lambda: bar.advance(task),
         )
         paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table), "command": command_line()})
     _out().print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
+    others = sorted({f.other_kind for f in result.folds if f.n_other})
+    if others:
+        words = {"absence": "absences (true specificity)", "background": "background (pseudo-specificity)"}
+        _out().print("presences compared with evaluation " + " or ".join(words[o] for o in others)
+                     + ("; folds with absences used them" if len(others) > 1 else ""))
     for w in result.warnings:
         _out().print(f"warning: {w}")
     for n in result.parameters.get("notes", []):
@@ -471,6 +511,7 @@ def range_command(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the cell or record sample."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
@@ -499,7 +540,8 @@ def range_command(
             from splitter.io.records import read_records
 
             bar.add_task("reading records and fitting variograms", total=None)
-            recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+            recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+            _print_warnings(recs)
             est = estimate_range_from_records(recs, covariates=covariate_column, response=response, sample=sample, seed=seed)
             source = {"records": str(records), "covariate_columns": list(covariate_column), "response": bool(response)}
         paths = write_range(est, out_dir, extra={"sample": sample, "seed": seed, **source, "command": command_line()})
@@ -516,8 +558,8 @@ def range_command(
         _out().print(f"{role}: {p}")
 
 
-def audit_table(result):
-    t = _table(f"residual dependence per fold: {result.verdict}")
+def audit_table(result, what: str = "presences"):
+    t = _table(f"residual dependence per fold, {what}: {result.verdict}")
     cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D (null share)", "outside env.",
             "shared method (null share)", "verdict", "why")
     for c in cols:
@@ -541,6 +583,7 @@ def audit(
     fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column with fold numbers or names."),
     role_column: Optional[str] = typer.Option(None, "--role-column", metavar="COLUMN", help="Column saying calibration/evaluation (instead of folds)."),
     env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
+    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column measured at the sites (repeatable or comma-separated): environment diagnostics without rasters."),
     range_km: Optional[float] = typer.Option(None, "--range-km", metavar="KM", help="Autocorrelation range in km."),
     range_from: Optional[Path] = typer.Option(None, "--range-from", metavar="PATH", help="Folder written by 'splitter range'."),
     group_column: Optional[str] = typer.Option(None, "--group-column", metavar="COLUMN", help="Survey method / source column."),
@@ -550,6 +593,7 @@ def audit(
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
+    zero_means: Optional[str] = ZERO_OPTION,
     seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
     null_splits: int = typer.Option(199, "--null-splits", metavar="N", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'dependent': exit 1 when any fold is flagged."),
@@ -564,16 +608,19 @@ def audit(
         raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
     if null_splits < 19:
         raise InputError(f"--null-splits {null_splits}: give at least 19 random re-splits (199 is the default).")
-    _, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
-                                           x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    recs, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
+                                           x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+    _print_warnings(recs)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
-        result, context = run_audit(assignment, env=env, range_km=range_km, range_from=range_from,
+        result, context = run_audit(assignment, env=env, covariates=covariate_column, range_km=range_km, range_from=range_from,
                                     group_column=group_column, region=region, seed=seed, fold_names=names,
                                     null_splits=null_splits)
         context["command"] = command_line()
         paths = write_audit(result, context, out_dir)
     _out().print(audit_table(result))
+    if context.get("absences") is not None:
+        _out().print(audit_table(context["absences"], "absences (evaluation absences to calibration absences)"))
     _out().print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
         _out().print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")

@@ -76,12 +76,75 @@ class Points:
         crs = pyproj.CRS.from_user_input(crs)
         if crs == self.crs:
             return self
+        if is_planar(self.crs) or is_planar(crs):
+            # A local grid has no known relation to the Earth: only its own unit can change.
+            if not (is_planar(self.crs) and is_planar(crs)):
+                raise InputError(f"crs={crs_text(self.crs)}: a planar grid with no known projection cannot be "
+                                 f"converted to {crs_text(crs)[:60]}; give every input in the same grid.")
+            f = _axis_factor(self.crs) / _axis_factor(crs)
+            return Points(self.x * f, self.y * f, crs)
         tr = pyproj.Transformer.from_crs(self.crs, crs, always_xy=True)
         x, y = tr.transform(self.x, self.y)
         return Points(np.asarray(x, float), np.asarray(y, float), crs)
 
     def to_lonlat(self) -> "Points":
         return self.to_crs(WGS84)
+
+
+# Planar coordinates with a stated unit and no known projection (a survey's local
+# grid): an ISO 19111 engineering CRS, so files that carry a CRS can say so.
+PLANAR_UNITS = {"km": ("kilometre", 1000.0), "m": ("metre", 1.0)}
+
+
+def planar_crs(unit: str) -> pyproj.CRS:
+    """The engineering CRS (WKT ``ENGCRS``) of a local planar grid in ``unit`` ("km" or "m").
+
+    Examples
+    --------
+    >>> c = planar_crs("km")
+    >>> c.type_name, c.axis_info[0].unit_conversion_factor, crs_text(c)
+    ('Engineering CRS', 1000.0, 'planar:km')
+    """
+    if unit not in PLANAR_UNITS:
+        raise InputError(f"crs='planar:{unit}': a planar grid's unit is km or m (planar:km, planar:m); "
+                         "rescale other units first (e.g. 100 m grid units: multiply by 0.1 for km).")
+    name, factor = PLANAR_UNITS[unit]
+    axis = lambda label, direction, order: (  # noqa: E731
+        f'AXIS["{label}",{direction},ORDER[{order}],LENGTHUNIT["{name}",{factor:g}]]')
+    return pyproj.CRS.from_wkt(
+        f'ENGCRS["planar grid in {name}s, projection unknown",EDATUM["local survey grid"],'
+        f'CS[Cartesian,2],{axis("easting (x)", "east", 1)},{axis("northing (y)", "north", 2)}]')
+
+
+def is_planar(crs) -> bool:
+    """True for an engineering (local planar) CRS."""
+    return crs is not None and pyproj.CRS.from_user_input(crs).type_name == "Engineering CRS"
+
+
+def parse_crs(crs) -> pyproj.CRS:
+    """A CRS from user input: ``planar:km`` / ``planar:m``, or anything pyproj reads."""
+    if isinstance(crs, str) and crs.strip().lower().startswith("planar"):
+        unit = crs.strip().lower().partition(":")[2].strip()
+        return planar_crs(unit)
+    try:
+        return pyproj.CRS.from_user_input(crs)
+    except pyproj.exceptions.CRSError:
+        raise InputError(f"crs={crs!r}: not a CRS pyproj knows; give e.g. EPSG:4326, EPSG:3035, "
+                         "or planar:km / planar:m for a local grid.") from None
+
+
+def crs_text(crs) -> str:
+    """A CRS as text that :func:`parse_crs` reads back: planar:UNIT, EPSG:N or WKT."""
+    crs = pyproj.CRS.from_user_input(crs)
+    if is_planar(crs):
+        factor = _axis_factor(crs)
+        return "planar:km" if factor == 1000.0 else "planar:m" if factor == 1.0 else crs.to_wkt()
+    epsg = crs.to_epsg()
+    return f"EPSG:{epsg}" if epsg else crs.to_wkt()
+
+
+def _axis_factor(crs: pyproj.CRS) -> float:
+    return float(crs.axis_info[0].unit_conversion_factor) if crs.axis_info else 1.0
 
 
 def _unit_factor_km(crs: pyproj.CRS) -> float:
@@ -114,6 +177,37 @@ def planar_km(points: Points, crs: pyproj.CRS) -> tuple[np.ndarray, np.ndarray]:
     p = points.to_crs(crs)
     f = _unit_factor_km(p.crs)
     return p.x * f, p.y * f
+
+
+def generalise_points(points: Points, cell_km: float, plane: pyproj.CRS | None = None) -> Points:
+    """Points moved to the centres of ``cell_km`` square cells of a planar grid (same CRS back).
+
+    The grid lies in ``plane`` (a projected CRS; default: the points' own CRS when
+    projected or a local planar grid, else the equal-area CRS centred on them),
+    anchored at its origin: cell ``(i, j)`` spans ``[i L, (i + 1) L)`` km and its centre
+    is ``(i + 0.5) L``. Missing coordinates stay missing. For sharing locations of
+    sensitive species; computations use the exact points.
+
+    Examples
+    --------
+    >>> p = generalise_points(Points([0.2e3, 12.9e3], [5.0e3, 7.4e3], "EPSG:3035"), 10.0)
+    >>> p.x.tolist(), p.y.tolist()
+    ([5000.0, 15000.0], [5000.0, 5000.0])
+    """
+    cell = float(cell_km) if isinstance(cell_km, (int, float, np.number)) and not isinstance(cell_km, bool) else np.nan
+    if not np.isfinite(cell) or cell <= 0:
+        raise InputError(f"generalise_km={cell_km!r}: give a cell size in km greater than 0.")
+    if plane is None:
+        plane = points.crs if not points.geographic else equal_area_crs(points)
+    ok = np.isfinite(points.x) & np.isfinite(points.y)
+    x, y = np.full(len(points), np.nan), np.full(len(points), np.nan)
+    if ok.any():
+        f = _unit_factor_km(plane)
+        px, py = planar_km(points.take(np.flatnonzero(ok)), plane)
+        snapped = Points((np.floor(px / cell) + 0.5) * cell / f, (np.floor(py / cell) + 0.5) * cell / f, plane)
+        back = snapped.to_crs(points.crs)
+        x[ok], y[ok] = back.x, back.y
+    return Points(x, y, points.crs)
 
 
 def distance_km(a: Points, b: Points) -> np.ndarray:

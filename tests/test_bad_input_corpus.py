@@ -220,6 +220,17 @@ def _good(d):
     _csv(d / "records.csv")
 
 
+def _planar_km(d, scale=1.0):
+    """A survey in a local kilometre grid (eastings/northings 0..200 km)."""
+    rows = [(r[0], (r[1] - 10.0) * 50 * scale, (r[2] - 45.0) * 60 * scale, *r[3:]) for r in _rows()]
+    _csv(d / "records.csv", rows, header=["record_id", "easting", "northing", *HEADER[3:]], fmt="{:.3f}")
+
+
+def _planar_with_lonlat_raster(d):
+    _planar_km(d)
+    _raster(d / "lonlat.tif")
+
+
 def _semicolon_commas(d):
     _csv(d / "records.csv", sep=";", fmt="{:.5f}")
     text = (d / "records.csv").read_text()
@@ -353,6 +364,12 @@ CASES = [
     records_case("invalid-crs", _good, ["--crs"], "--crs", "EPSG:99999999"),
     records_case("crs-word", _good, ["--crs"], "--crs", "mercator-ish"),
     records_case("planar-unknown-unit", _good, ["--crs"], "--crs", "planar:ft"),
+    records_case("planar-beyond-any-grid", lambda d: _planar_km(d, scale=1e6), ["records.csv", "row", "--crs"],
+                 "--crs", "planar:km", "--x", "easting", "--y", "northing"),
+    Case("planar-with-geographic-raster", lambda d: (_planar_with_lonlat_raster(d),
+                                                     design("--crs", "planar:km", "--x", "easting", "--y", "northing",
+                                                            "--env", str(d / "lonlat.tif"), method="clusters")(d))[1],
+         ("lonlat.tif", "geographic")),
     Case("geopackage-invalid-crs", lambda d: (_geopackage(d), design("--crs", "EPSG:0", src="records.gpkg")(d))[1],
          ("--crs",)),
     # --- ids and kinds
@@ -409,9 +426,17 @@ CASES = [
     eval_case("adjust-unknown", _rasters, ["--adjust"], "--adjust", "bonferroni"),
     eval_case("model-unknown", lambda d: [], ["--model"], "--model", "forest"),
     eval_case("no-predictions-given", lambda d: [], ["--predictions"]),
+    eval_case("covariate-column-without-model", lambda d: [], ["--covariate-column", "--model"],
+              "--covariate-column", "temp"),
+    eval_case("covariate-column-unknown", lambda d: [], ["--covariate-column", "rainfall"], "--model", "baseline",
+              "--covariate-column", "rainfall"),
     # --- audit, range, appendix, batch
     audit_case("audit-unknown-fold-column", lambda d: ["--fold-column", "part"], ["--fold-column"]),
     audit_case("audit-null-splits-too-few", lambda d: ["--null-splits", "3"], ["--null-splits"]),
+    audit_case("audit-covariate-column-unknown", lambda d: ["--covariate-column", "rainfall"],
+               ["--covariate-column", "rainfall"]),
+    audit_case("audit-covariate-column-and-env", lambda d: ["--covariate-column", "temp", "--env",
+                                                            str(_raster(d / "t.tif"))], ["--env", "--covariate-column"]),
     Case("audit-fold-values-like-1.0", lambda d: ["audit", str(_user_folds(d, ["1.0", "2.0", "3.0"])),
                                                   "--fold-column", "part", "--out", str(d.parent / "out" / "a")],
          (), ok=lambda d: _read_audit_folds(d, {"1", "2", "3"})),
@@ -450,12 +475,7 @@ def test_the_corpus_is_large_enough():
 
 
 # Cases whose option is still being built; strict, so the mark must go when it passes.
-PENDING = {
-    "zero-one-without-zero-means": "--zero-means is not read yet (presence-absence surveys, issue 13.2)",
-    "zero-means-wrong-value": "--zero-means is not an option yet (issue 13.2)",
-    "thin-negative": "--thin is not an option yet (issue 13.4)",
-    "thin-word": "--thin is not an option yet (issue 13.4)",
-}
+PENDING: dict = {}
 
 
 @pytest.mark.parametrize("case", [

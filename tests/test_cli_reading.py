@@ -45,7 +45,8 @@ def test_audit_evaluate_and_appendix_need_no_record_option_after_design(tmp_path
               "--kind-column", "status", "--block-size", 40, "--seed", 1, "--out", run_dir / "folds.csv")
     assert res.exit_code == 0, res.output
     side = json.loads((run_dir / "folds.design.json").read_text())
-    assert side["reading"] == {"x": "east", "y": "north", "crs": "EPSG:3035"}
+    back = side["read_back"]
+    assert (back["x"], back["y"], back["crs"]) == ("east", "north", "EPSG:3035")
 
     # Without the sidecar's record, the same table cannot be read (the names are not guessed):
     # so the runs below show the sidecar at work.

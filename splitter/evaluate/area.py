@@ -101,7 +101,8 @@ def cell_areas(transform, height: int, width: int, crs) -> np.ndarray:
         zone = semi_major**2 * np.abs(np.diff(q)) / 2.0  # m² per radian of longitude
         dlon = abs(a) * to_rad
         return zone * dlon / 1.0e6
-    if crs.is_projected:
+    if crs.is_projected or crs.type_name == "Engineering CRS":
+        # (A local planar grid, planar:km / planar:m, has a stated length unit too.)
         # Linear unit to metres (1 for metre CRSs, 1200/3937 for US survey feet).
         unit = float(crs.axis_info[0].unit_conversion_factor)
         area_m2 = abs(a * e - b * d) * unit * unit

@@ -9,7 +9,10 @@ with an L2 penalty (C = 1) and balanced class weights (so the usually far more
 numerous background points do not swamp the presences).
 
 Its output is a relative suitability score in [0, 1]; with background rather than
-true absences it is not a probability of presence.
+true absences it is not a probability of presence. Given a survey's absences
+(``other_kind="absence"``) the same terms are fitted as a presence-absence model:
+presences (1) against the surveyed absences (0), without class weights, since
+absences are real data whose share carries the survey's prevalence.
 """
 
 from __future__ import annotations
@@ -37,8 +40,8 @@ def _matrix(X, name: str) -> np.ndarray:
     return arr
 
 
-def fit_baseline(X_presence, X_background, seed=0) -> Pipeline:
-    """Fit the baseline quadratic logistic presence-background model.
+def fit_baseline(X_presence, X_background, seed=0, other_kind: str = "background") -> Pipeline:
+    """Fit the baseline quadratic logistic presence-background (or presence-absence) model.
 
     Parameters
     ----------
@@ -46,6 +49,9 @@ def fit_baseline(X_presence, X_background, seed=0) -> Pipeline:
         Covariates at calibration presences.
     X_background : array_like, shape (n_background, n_covariates)
         Covariates at calibration background points.
+    other_kind : {"background", "absence"}
+        What ``X_background`` holds: background points (balanced class weights)
+        or a survey's absences (a presence-absence model, no class weights).
     seed : int, default 0
         Passed to the logistic regression as ``random_state`` (the lbfgs solver is
         deterministic, so this only matters if the solver is changed).
@@ -63,6 +69,8 @@ def fit_baseline(X_presence, X_background, seed=0) -> Pipeline:
     >>> predict_suitability(model, [[1.0, 1.0]]).shape
     (1,)
     """
+    if other_kind not in ("background", "absence"):
+        raise InputError(f"other_kind={other_kind!r}: use 'background' or 'absence'.")
     pres = _matrix(X_presence, "Presence covariates")
     back = _matrix(X_background, "Background covariates")
     if pres.shape[1] != back.shape[1]:
@@ -77,7 +85,7 @@ def fit_baseline(X_presence, X_background, seed=0) -> Pipeline:
             ("terms", PolynomialFeatures(degree=2, include_bias=False)),
             (
                 "logistic",
-                LogisticRegression(class_weight="balanced", C=1.0, max_iter=_MAX_ITER, random_state=seed),
+                LogisticRegression(class_weight="balanced" if other_kind == "background" else None, C=1.0, max_iter=_MAX_ITER, random_state=seed),
             ),
         ]
     )

@@ -28,25 +28,6 @@ def companion(path, suffix: str) -> Path:
     return path.with_name(path.stem + suffix)
 
 
-def crs_text(crs) -> str:
-    """A CRS as the sidecar records it: ``EPSG:n`` when it has a code, else its WKT."""
-    code = crs.to_epsg()
-    return f"EPSG:{code}" if code else crs.to_wkt()
-
-
-def reading_options(path) -> dict:
-    """The record options a design wrote in the sidecar beside ``path`` ({} without one)."""
-    side = companion(path, ".design.json")
-    if not side.is_file():
-        return {}
-    try:
-        doc = json.loads(side.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return {}
-    reading = doc.get("reading") or {}
-    return {k: reading[k] for k in ("x", "y", "crs") if reading.get(k)}
-
-
 def to_json(obj, root=None) -> str:
     """Stable JSON text: sorted keys, NaN as null, numpy scalars as Python, and no
     absolute path of this machine (files named as :func:`splitter.io.paths.shown`
@@ -126,16 +107,39 @@ def design_summary(assignment: FoldAssignment) -> dict:
             "dropped": {str(k): int(v) for k, v in pd.Series(assignment.dropped[~kept]).value_counts().sort_index().items()},
         },
         "folds": counts.to_dict(orient="records"),
+        "read_back": read_back(assignment),
     }
 
 
-def write_design(assignment: FoldAssignment, out, command: str | None = None, checks=None) -> dict:
+def read_back(assignment: FoldAssignment) -> dict:
+    """How later commands read the fold table without asking for record options again."""
+    recs = assignment.records
+    out = {"id_column": "record_id", "kind_column": "kind", "fold_column": "fold"}
+    zero = assignment.parameters.get("zero_means") if hasattr(assignment.parameters, "get") else None
+    if zero:
+        out["zero_means"] = zero  # what 0 meant in the input's own kind column
+    if recs is not None:
+        from splitter.geo import crs_text
+
+        out["crs"] = crs_text(recs.points.crs)
+        if recs.x_column:
+            out["x"], out["y"] = recs.x_column, recs.y_column
+    return out
+
+
+def write_design(assignment: FoldAssignment, out, command: str | None = None, checks=None,
+                 generalise_km: float | None = None) -> dict:
     """Write the fold table, its gaps file (with a buffer) and the design sidecar.
 
     ``checks`` (a :class:`splitter.partition.testability.FoldChecks`) is what each
     fold's tests can show; by default it is measured at alpha 0.05 with Holm's
     adjustment and omission 0.05 (``evaluate``'s defaults). A fold with no
     evaluation presence is an error.
+
+    With ``generalise_km`` every coordinate written (coordinate columns, geometry) is
+    the centre of its ``generalise_km`` cell in the design's planar grid (the
+    equal-area or planar system), a ``generalised_km`` column says so on every row,
+    and the sidecar records it; the folds were made from the exact coordinates.
 
     Returns the paths written, by role.
     """
@@ -144,18 +148,23 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     out = Path(out)
     frame = assignment.to_frame(text=True)
     pts = assignment.records.points if assignment.records is not None else None
-    reading = {}
-    if out.suffix.lower() == ".csv" and pts is not None:
-        xy = (assignment.records.x_column, assignment.records.y_column)
-        if xy[0] is None:
-            # Vector input written as CSV: carry the coordinates as plain columns.
-            xy = ("longitude", "latitude") if pts.geographic else ("x", "y")
-            pos = list(frame.columns).index("record_id") if "record_id" in frame.columns else len(frame.columns)
-            for off, (name, vals) in enumerate(zip(xy, (pts.x, pts.y))):
-                if name not in frame.columns:
-                    frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
-        # How to read the table back (audit, evaluate and appendix use it: no record option is repeated).
-        reading = {"x": xy[0], "y": xy[1], "crs": crs_text(pts.crs)}
+    if generalise_km is not None and pts is not None:
+        pts = _generalised(assignment, pts, generalise_km)
+        recs = assignment.records
+        if recs.x_column is not None:
+            for col, vals in ((recs.x_column, pts.x), (recs.y_column, pts.y)):
+                text = frame[col].astype(str).to_numpy(object)
+                frame[col] = np.where(np.isfinite(vals), [f"{v:.10g}" for v in vals], text)
+        frame["generalised_km"] = f"{float(generalise_km):g}"
+    if out.suffix.lower() == ".csv" and pts is not None and assignment.records.x_column is None:
+        # Vector input written as CSV: carry the coordinates as plain columns.
+        names = ("longitude", "latitude") if pts.geographic else ("x", "y")
+        pos = list(frame.columns).index("record_id") if "record_id" in frame.columns else len(frame.columns)
+        for off, (name, vals) in enumerate(zip(names, (pts.x, pts.y))):
+            if name not in frame.columns:
+                frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
+        # Read back from these columns (the sidecar's read_back says so).
+        summary_xy = names
     paths = {"folds": write_table(frame, out, pts)}
     gaps_path = companion(out, ".gaps.csv")
     if (assignment.parameters.get("buffer_km", 0) or 0) > 0 or assignment.gap_rows.size:  # buffer or space-and-time gaps
@@ -164,9 +173,15 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
         paths["gaps"] = gaps_path
     side = companion(out, ".design.json")
     summary = design_summary(assignment)
+    if out.suffix.lower() == ".csv" and assignment.records is not None and assignment.records.x_column is None and pts is not None:
+        summary["read_back"]["x"], summary["read_back"]["y"] = summary_xy
     summary["checks"] = checks.to_dict()
-    if reading:
-        summary["reading"] = reading
+    if generalise_km is not None:
+        summary["generalised_km"] = float(generalise_km)
+        summary["notes"] = list(summary.get("notes") or []) + [
+            f"coordinates in the fold table are generalised to the centres of {float(generalise_km):g} km cells of "
+            f"the design's planar grid ({assignment.parameters.get('geometry_crs', '')[:60]}); folds were made from "
+            "the exact coordinates"]
     summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
     if command:
         summary["command"] = command
@@ -176,29 +191,51 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     return paths
 
 
+def _generalised(assignment: FoldAssignment, pts, cell_km):
+    """Generalised points in the design's own planar grid (its geometry CRS when projected or planar)."""
+    from splitter.geo import generalise_points, is_planar, parse_crs
+
+    plane = None
+    text = assignment.parameters.get("geometry_crs") if hasattr(assignment.parameters, "get") else None
+    if text:
+        crs = parse_crs(text)
+        plane = crs if (crs.is_projected or is_planar(crs)) else None
+    if plane is not None and is_planar(plane) != is_planar(pts.crs):
+        plane = None
+    return generalise_points(pts, cell_km, plane)
+
+
 def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str | None = None,
-                    x=None, y=None, crs=None, id_column=None, kind_column=None) -> tuple[Records, FoldAssignment, dict]:
+                    x=None, y=None, crs=None, id_column=None, kind_column=None,
+                    zero_means=None) -> tuple[Records, FoldAssignment, dict]:
     """Read a fold table (ours or a user's) as records plus a FoldAssignment.
 
     The fold column may hold numbers (1..k evaluation folds, 0 calibration
     only, empty = not used) or names (each distinct name becomes a fold,
     numbered in sorted order). A role column holding calibration/evaluation
     (or train/test) makes a single fold. Gaps are read from ``<stem>.gaps.csv``
-    when it exists beside the table. Without ``x``, ``y`` and ``crs``, the
-    coordinate columns and CRS recorded by ``design`` in ``<stem>.design.json``
-    are used.
+    when it exists beside the table. Our own tables are read back the way the
+    design sidecar says (coordinate columns, CRS), unless told otherwise.
 
     Returns
     -------
     records, assignment, fold_names (fold number -> original label)
     """
     path = Path(path)
-    # Our own fold table: options not given are read as the design wrote them (the sidecar says how).
-    given = reading_options(path)
-    x = x if x is not None else given.get("x")
-    y = y if y is not None else given.get("y")
-    crs = crs if crs is not None else given.get("crs")
-    recs = read_records(path, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    side = companion(path, ".design.json")
+    sidecar = None
+    if side.exists():
+        try:
+            sidecar = json.loads(side.read_text())
+        except json.JSONDecodeError:
+            sidecar = None
+    back = (sidecar or {}).get("read_back") or {}
+    if path.suffix.lower() == ".csv" and back:
+        # Options not given are read as the design wrote the table.
+        x = x if x is not None else back.get("x")
+        y = y if y is not None else back.get("y")
+        crs = crs if crs is not None else back.get("crs")
+    recs = read_records(path, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     table = recs.table
     n = len(table)
     fold = np.full(n, -1, np.int64)
@@ -268,12 +305,8 @@ def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str 
         gap_rows = pos.loc[g.loc[ok, "record_id"]].to_numpy(np.int64)
         gap_folds = g.loc[ok, "fold"].astype(int).to_numpy(np.int64)
     params = {"source_table": str(path)}
-    side = companion(path, ".design.json")
-    if side.exists():
-        try:
-            params["design"] = json.loads(side.read_text())
-        except json.JSONDecodeError:
-            pass
+    if sidecar is not None:
+        params["design"] = sidecar
     assignment = FoldAssignment(
         record_id=recs.record_id, kind=recs.kind, fold=fold, dropped=dropped, n_folds=k,
         gap_rows=gap_rows, gap_folds=gap_folds, method=method, parameters=params, records=recs,

@@ -185,6 +185,58 @@ def _same_crs(a: pyproj.CRS, b: pyproj.CRS) -> bool:
     return a == b or a.equals(b, ignore_axis_order=True)
 
 
+def check_planar_grid(records_crs: pyproj.CRS, raster_crs: pyproj.CRS, path) -> bool:
+    """True when records in a local planar grid meet a raster in the same grid and unit.
+
+    A raster with records in a planar grid (planar:km / planar:m) must be in that grid: its
+    CRS an engineering CRS in the same unit. Anything else is refused, since nothing
+    relates a local grid to the Earth.
+    """
+    from splitter.geo import _axis_factor, crs_text, is_planar
+
+    if not is_planar(records_crs):
+        if is_planar(raster_crs):
+            raise InputError(f"{path}: the raster is in a local planar grid but the records are in "
+                             f"{crs_text(records_crs)[:40]}; give the records with --crs planar:km or planar:m.")
+        return False
+    unit = crs_text(records_crs)
+    if raster_crs.is_geographic:
+        raise InputError(f"{path}: the raster has a geographic CRS (longitude/latitude) but the records are a "
+                         f"local planar grid ({unit}); give a raster laid in the records' grid.")
+    if not is_planar(raster_crs):
+        raise InputError(f"{path}: the raster's CRS is {_crs_label(raster_crs)} but the records are a local planar "
+                         f"grid ({unit}) with no known projection; give a raster laid in the records' grid.")
+    if _axis_factor(raster_crs) != _axis_factor(records_crs):
+        raise InputError(f"{path}: the raster's grid unit is {_axis_factor(raster_crs):g} m but the records' is "
+                         f"{unit}; give both in the same unit.")
+    return True
+
+
+def cell_of(path, points: Points) -> np.ndarray:
+    """Index (row * width + column) of the raster cell holding each point; -1 outside or missing.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from rasterio.transform import from_origin
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "c.tif"
+    >>> write_geotiff(p, np.zeros((2, 3)), from_origin(0, 2, 1, 1), "EPSG:4326")
+    >>> cell_of(p, Points.lonlat([0.5, 2.5, 9.0], [1.5, 0.5, 0.5])).tolist()
+    [0, 5, -1]
+    """
+    info = raster_info(path)
+    if check_planar_grid(points.crs, info.crs, path):
+        pts = Points(points.x, points.y, info.crs)
+    else:
+        pts = points.to_crs(info.crs)
+    col, row = _apply(~info.transform, pts.x, pts.y)
+    ok = np.isfinite(col) & np.isfinite(row)
+    c = np.floor(np.where(ok, col, -1)).astype(np.int64)
+    r = np.floor(np.where(ok, row, -1)).astype(np.int64)
+    inside = ok & (c >= 0) & (c < info.width) & (r >= 0) & (r < info.height)
+    return np.where(inside, r * info.width + c, -1)
+
+
 def _same_grid(a: RasterInfo, b: RasterInfo) -> bool:
     return (
         _same_crs(a.crs, b.crs)
@@ -396,9 +448,12 @@ def sample_rasters(paths, points: Points, *, max_window_cells: int = WINDOW_CELL
         info = raster_info(path)
         if info.count > 1:
             notes.append(f"used band 1 of {info.count} in {path.name}")
-        if not _same_crs(points.crs, info.crs):
-            notes.append(f"reprojected records to {_crs_label(info.crs)} for {path.name}")
-        pts = points.to_crs(info.crs)
+        if check_planar_grid(points.crs, info.crs, path):
+            pts = Points(points.x, points.y, info.crs)  # the same local grid and unit
+        else:
+            if not _same_crs(points.crs, info.crs):
+                notes.append(f"reprojected records to {_crs_label(info.crs)} for {path.name}")
+            pts = points.to_crs(info.crs)
         with rasterio.open(path) as src:
             values[:, j] = _sample_open(src, info, pts.x, pts.y, max_window_cells)
         missing = int(np.isnan(values[:, j]).sum())

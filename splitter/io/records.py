@@ -18,18 +18,22 @@ import pandas as pd
 import pyproj
 
 from splitter.errors import InputError
-from splitter.geo import WGS84, Points
+from splitter.geo import WGS84, Points, is_planar, parse_crs
 
 X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x")
 Y_NAMES = ("latitude", "lat", "decimallatitude", "y")
 VECTOR_SUFFIXES = {".gpkg", ".parquet", ".geoparquet", ".shp", ".geojson", ".json", ".fgb"}
 KIND_VALUES = {
-    "presence": "presence", "1": "presence", "present": "presence",
+    "presence": "presence", "present": "presence",
     "absence": "absence", "absent": "absence",
-    # 0 means background: most presence-background tables use it that way.
-    # True absences must be written as "absence".
-    "background": "background", "0": "background", "pseudo-absence": "background",
+    "background": "background", "pseudo-absence": "background",
 }
+# A 0/1 (TRUE/FALSE, yes/no) column: the "1" side is always presence, but the "0"
+# side is a survey's absence (surveyed, not found) in one table and background in
+# another, and the tests that follow differ; so 0 is never guessed (zero_means).
+ONE_VALUES = ("1", "true", "yes", "y", "t")
+ZERO_VALUES = ("0", "false", "no", "n", "f")
+ZERO_MEANS = ("absence", "background")
 ADDED_COLUMNS = ("record_id", "kind", "fold", "dropped")
 
 
@@ -59,6 +63,8 @@ class Records:
         File name -> SHA-256 of each input file.
     notes : list of str
         Things the reader decided that a user should know.
+    zero_means : str or None
+        What 0 meant in a 0/1 kind column ("absence" or "background"), when one was read.
     """
 
     table: pd.DataFrame
@@ -70,6 +76,7 @@ class Records:
     y_column: str | None = None
     sources: dict = field(default_factory=dict)
     notes: tuple = ()
+    zero_means: str | None = None
 
     def __len__(self) -> int:
         return len(self.table)
@@ -123,12 +130,13 @@ def numeric_columns(table: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def as_records(records, *, x=None, y=None, crs=None, id_column=None, kind_column=None) -> Records:
+def as_records(records, *, x=None, y=None, crs=None, id_column=None, kind_column=None, zero_means=None) -> Records:
     """Records from a path, a pandas DataFrame, a GeoDataFrame or Records (returned as is)."""
     if isinstance(records, Records):
         return records
     if isinstance(records, (str, Path, pd.DataFrame)) or hasattr(records, "__fspath__"):
-        return read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+        return read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
+                            zero_means=zero_means)
     raise InputError(f"records: got {type(records).__name__}; give a path, a pandas DataFrame with coordinate "
                      "columns, a GeoDataFrame or a splitter Records object.")
 
@@ -196,6 +204,7 @@ def read_records(
     id_column: str | None = None,
     kind_column: str | None = None,
     default_kind: str = "presence",
+    zero_means: str | None = None,
 ) -> Records:
     """Read occurrence records from a CSV or vector file.
 
@@ -213,8 +222,13 @@ def read_records(
     id_column : str, optional
         Column holding record ids (default: ``record_id`` if present, else row number).
     kind_column : str, optional
-        Column saying presence / absence / background (or 1 / 0, where 0 is background).
-        Default: ``kind`` if present, else every row is ``default_kind``.
+        Column saying presence / absence / background, or 1 / 0 (TRUE / FALSE,
+        yes / no) with ``zero_means``. Default: ``kind`` if present, else every
+        row is ``default_kind``.
+    zero_means : {"absence", "background"}, optional
+        What 0 (FALSE, no) means in a 0/1 kind column: a survey's absence
+        (surveyed, not found) or background. Required when such values occur;
+        never guessed.
 
     Returns
     -------
@@ -280,12 +294,15 @@ def read_records(
                 "between 180 and 360 (the 0..360 convention); subtract 360 from values above 180 to give -180..180."
             )
         dropped[finite & ~(lon_ok & lat_ok)] = "coordinates-out-of-range"
+    elif is_planar(pts.crs):
+        _check_planar(pts, finite, path, x_col, notes)
 
     record_id = _record_ids(table, path, id_column)
-    kind = _kinds(table, path, kind_column, default_kind, dropped)
+    kind = _kinds(table, path, kind_column, default_kind, dropped, zero_means)
     return Records(
         table=table, points=pts, record_id=record_id, kind=kind, dropped=dropped,
         x_column=x_col, y_column=y_col, sources=sources, notes=tuple(notes),
+        zero_means=zero_means if _zero_one(table, kind_column) else None,
     )
 
 
@@ -305,10 +322,34 @@ def _csv_points(table, path, x, y, crs, notes):
 
 
 def _given_crs(crs) -> pyproj.CRS:
-    try:
-        return pyproj.CRS.from_user_input(crs)
-    except pyproj.exceptions.CRSError:
-        raise InputError(f"--crs {crs}: not a CRS pyproj knows; give e.g. EPSG:4326 or EPSG:3035.") from None
+    return parse_crs(crs)
+
+
+#: Largest coordinate magnitude a planar grid can have, in km (Earth's circumference):
+#: beyond it the stated unit is wrong (e.g. metres given as planar:km).
+PLANAR_LIMIT_KM = 40_075.0
+
+
+def _check_planar(pts: Points, finite, path, x_col, notes):
+    """Planar coordinates are taken as given; values no grid in the stated unit can hold are refused,
+    and values that look like longitude/latitude get a warning (not a guess)."""
+    from splitter.geo import crs_text
+
+    unit = crs_text(pts.crs)
+    f = pts.crs.axis_info[0].unit_conversion_factor / 1000.0
+    big = finite & ((np.abs(pts.x) * f > PLANAR_LIMIT_KM) | (np.abs(pts.y) * f > PLANAR_LIMIT_KM))
+    if big.any():
+        row = int(np.flatnonzero(big)[0]) + 2
+        raise InputError(
+            f"{path}: row {row} has coordinates ({pts.x[row - 2]:g}, {pts.y[row - 2]:g}) beyond "
+            f"{PLANAR_LIMIT_KM:,.0f} km from the origin, which no grid in the unit of crs={unit} can hold; "
+            "check the unit (planar:m for metres) or rescale the columns.")
+    x, y = pts.x[finite], pts.y[finite]
+    frac = (np.abs(x - np.round(x)) > 0).mean() if x.size else 0.0
+    if x.size and np.all(np.abs(x) <= 180) and np.all(np.abs(y) <= 90) and frac > 0.5 and np.ptp(x) < 20 and np.ptp(y) < 20:
+        notes.append(f"warning: {path}: every coordinate lies within -180..180 / -90..90 with decimals, as "
+                     f"longitude/latitude do; they are read as a planar grid ({unit}) as given; if they are "
+                     "degrees, leave out --crs (EPSG:4326).")
 
 
 def _numbers(column: pd.Series) -> np.ndarray:
@@ -386,7 +427,21 @@ def _record_ids(table, path, id_column) -> np.ndarray:
     return ids
 
 
-def _kinds(table, path, kind_column, default_kind, dropped) -> np.ndarray:
+def _zero_one(table, kind_column) -> bool:
+    col = kind_column if kind_column is not None else ("kind" if "kind" in table.columns else None)
+    return col is not None and col in table.columns and \
+        table[col].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True).isin(ZERO_VALUES).any()
+
+
+def check_zero_means(zero_means) -> str | None:
+    if zero_means is None or zero_means in ZERO_MEANS:
+        return zero_means
+    raise InputError(f"zero_means={zero_means!r}: say what 0 means in the kind column: 'absence' (surveyed, "
+                     "not found) or 'background' (not surveyed).")
+
+
+def _kinds(table, path, kind_column, default_kind, dropped, zero_means=None) -> np.ndarray:
+    zero_means = check_zero_means(zero_means)
     col = kind_column
     if col is None and "kind" in table.columns:
         col = "kind"
@@ -397,12 +452,20 @@ def _kinds(table, path, kind_column, default_kind, dropped) -> np.ndarray:
         raise InputError(f"{path}: no kind column '{col}' (given with --kind-column); columns are: {', '.join(map(str, table.columns))}.")
     raw = table[col].astype(str).str.strip().str.lower()
     raw = raw.str.replace(r"\.0$", "", regex=True)
-    kind = raw.map(KIND_VALUES).to_numpy(object)
+    zero = raw.isin(ZERO_VALUES).to_numpy()
+    if zero.any() and zero_means is None:
+        row = int(np.flatnonzero(zero)[0]) + 2
+        raise InputError(
+            f"{path}: column '{col}' holds 0/1 kinds (row {row}: '{table[col].iloc[row - 2]}'); say what 0 means "
+            "with zero_means: 'absence' (a survey: surveyed, not found) or 'background' (not surveyed).")
+    values = {**KIND_VALUES, **{v: "presence" for v in ONE_VALUES}, **{v: zero_means for v in ZERO_VALUES}}
+    kind = raw.map(values).to_numpy(object)
     unknown = pd.isna(kind)
     if unknown.all():
         vals = ", ".join(sorted(set(raw))[:5])
         raise InputError(
-            f"{path}: column '{col}' holds no known kind (found {vals}); use presence, absence or background (or 1/0)."
+            f"{path}: column '{col}' holds no known kind (found {vals}); use presence, absence or background "
+            "(or 1/0 with zero_means)."
         )
     kind[unknown] = "unknown"
     sel = unknown & (dropped == "")
@@ -442,6 +505,7 @@ def combine(records: Records, other: Records, kind: str | None = None) -> Record
         dropped=np.r_[records.dropped, other.dropped].astype(object),
         x_column=records.x_column, y_column=records.y_column,
         sources={**records.sources, **other.sources}, notes=records.notes + other.notes,
+        zero_means=records.zero_means or other.zero_means,
     )
 
 
@@ -468,5 +532,5 @@ def append_points(records: Records, points: Points, kind: str, id_prefix: str = 
         kind=np.r_[records.kind, np.full(n, kind, dtype=object)].astype(object),
         dropped=np.r_[records.dropped, np.full(n, "", dtype=object)].astype(object),
         x_column=records.x_column, y_column=records.y_column,
-        sources=records.sources, notes=records.notes,
+        sources=records.sources, notes=records.notes, zero_means=records.zero_means,
     )

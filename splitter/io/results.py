@@ -62,7 +62,11 @@ def write_audit_tables(result, context: dict, out_dir) -> dict:
     out_dir = Path(out_dir)
     paths = {"table": write_csv(result.to_frame(), out_dir / "audit.csv")}
     doc = result.to_dict()
-    doc["context"] = {k: v for k, v in context.items() if k != "range_estimate"}
+    doc["context"] = {k: v for k, v in context.items() if k not in ("range_estimate", "absences")}
+    if context.get("absences") is not None:
+        # Absences are evaluation data too: the same measures, absences to absences.
+        paths["absences"] = write_csv(context["absences"].to_frame(), out_dir / "audit_absences.csv")
+        doc["absences"] = context["absences"].to_dict()
     paths["json"] = write_json(doc, out_dir / "audit.json")
     return paths
 

@@ -34,7 +34,8 @@ def balance_cells(presence_counts, background_counts, k: int, seed: int = 0, tri
 
     Seeded randomised greedy: each trial shuffles the cells, orders them by
     presence count (largest first, shuffled among ties) and gives each to the
-    fold with the fewest presences so far (fewest background on a tie). The
+    fold with the fewest presences so far (fewest background on a tie); a cell
+    without presences goes to the fold with the fewest other records. The
     trial with the smallest presence spread, then background spread, wins.
     Every fold receives at least one cell.
 
@@ -69,7 +70,15 @@ def balance_cells(presence_counts, background_counts, k: int, seed: int = 0, tri
             for pos, c in enumerate(order):
                 left = ncell - pos
                 empty = np.flatnonzero(fold_n == 0)
-                f = empty[0] if empty.size and left <= empty.size else int(np.argmin(fold_key))
+                if empty.size and left <= empty.size:
+                    f = empty[0]
+                elif pres[c] > 0:
+                    f = int(np.argmin(fold_key))
+                else:
+                    # A cell without presences cannot change presence balance: it goes to
+                    # the fold with the fewest other records (absences, background), so a
+                    # survey's absences are balanced too, not heaped on the presence-poorest fold.
+                    f = int(np.argmin(fold_key % key_scale))
                 cell_fold[c] = f
                 fold_key[f] += pres[c] * key_scale + back[c]
                 fold_n[f] += 1

@@ -182,6 +182,11 @@ class DesignParameters(Mapping):
     cell_shape: str | None = None
     presence_imbalance: float | None = None
     background_imbalance: float | None = None
+    absence_imbalance: float | None = None
+    zero_means: str | None = None
+    thin: object = None
+    presence_before_thinning: int | None = None
+    presence_after_thinning: int | None = None
     covariates: tuple | None = None
     standardised_on: str | None = None
     group_column: str | None = None

@@ -164,6 +164,8 @@ class _Writer:
 def _map_plane(run: Run) -> MapPlane:
     """One equal-area plane for every map: the first spatial split's geometry CRS, else one
     centred on the records."""
+    if run.splits[0].records.crs is not None:  # a local planar grid: maps are drawn in it
+        return MapPlane(run.splits[0].records.crs)
     ordered = sorted(run.splits, key=lambda s: (s.method not in SPATIAL_METHODS, s.name))
     for s in ordered:
         crs = s.geometry_crs
@@ -211,7 +213,8 @@ def _records_frame(split: SplitRun, c: _Coords) -> pd.DataFrame:
     return pd.DataFrame({
         "record_id": r.record_id, "kind": r.kind, "fold": fold, "dropped": r.dropped,
         "left_out_of_calibration_in_folds": gaps,
-        "longitude": c.lon, "latitude": c.lat, "x_km": c.x_km, "y_km": c.y_km,
+        **({"x": c.lon, "y": c.lat} if r.crs is not None else {"longitude": c.lon, "latitude": c.lat}),
+        "x_km": c.x_km, "y_km": c.y_km,
     })
 
 
@@ -298,8 +301,8 @@ def _display_rules(rules: list, names: list) -> Table:
                  columns=("rule", "fires when", "threshold"), rows=rows, css_class="audit-rules")
 
 
-def _display_audit(split: SplitRun, source: str) -> Table:
-    t = split.audit_table
+def _display_audit(split: SplitRun, source: str, absences: bool = False) -> Table:
+    t = split.audit_absences_table if absences else split.audit_table
     if t is None:
         t = pd.DataFrame(split.audit.get("folds", [])).astype(str)
 
@@ -321,7 +324,8 @@ def _display_audit(split: SplitRun, source: str) -> Table:
     keep = [j for j in range(len(spec)) if j < 2 or any(row[j] for row in cells)]
     rows = tuple(tuple(row[j] for j in keep) for row in cells)
     dropped = [spec[j][1] for j in range(len(spec)) if j not in keep]
-    notes = ["NN: distance (geodesic) from an evaluation record to its nearest calibration record. W1: "
+    notes = ["NN: distance (geodesic for longitude/latitude, straight-line in a projected or local grid) from an "
+             "evaluation record to its nearest calibration record" + (" of the same kind" if absences else "") + ". W1: "
              "Wasserstein-1 distance between those distances and the prediction-location-to-record distances. "
              "Envelope: the calibration records' covariate ranges (MESS < 0 outside)."]
     if dropped:
@@ -330,9 +334,12 @@ def _display_audit(split: SplitRun, source: str) -> Table:
         fired = [(str(r["fold"]), str(r["reasons"])) for _, r in t.iterrows()
                  if str(r.get("verdict")) != "independent" and str(r["reasons"]).strip()]
         notes += [f"Fold {f}: {why}." for f, why in fired]
-    return Table(caption=f"Residual dependence audit, split `{split.name}` (verdict: {split.audit.get('verdict')}).",
+    verdict = ((split.audit.get("absences") or {}).get("verdict") if absences else split.audit.get("verdict"))
+    what = ": evaluation absences to calibration absences" if absences else ""
+    return Table(caption=f"Residual dependence audit, split `{split.name}`{what} (verdict: {verdict}).",
                  columns=tuple(spec[j][1] for j in keep), rows=rows, css_class="audit",
-                 element_id=f"audit-{_safe(split.name)}", notes=tuple(notes), source=source)
+                 element_id=f"audit-{_safe(split.name)}" + ("-absences" if absences else ""), notes=tuple(notes),
+                 source=source)
 
 
 PERFORMANCE = [("auc_ratio", "partial AUC ratio (observed)"), ("auc_ratio_null_median", "ratio of random presences (median)"),
@@ -485,13 +492,16 @@ def _map_figure(w: _Writer, s: SplitRun, c: _Coords, plane: MapPlane, plane_word
     grid = None
     size = s.parameters.get("block_size_km", s.design.get("block_size_km"))
     gcrs = s.geometry_crs
-    if s.method in SPATIAL_METHODS and size and gcrs is not None and gcrs.is_projected:
+    if s.method in SPATIAL_METHODS and size and gcrs is not None and (gcrs.is_projected or r.crs is not None):
         from splitter.geo import Points, planar_km
 
         ok = np.isfinite(r.lon) & np.isfinite(r.lat)
         gx = np.full(r.lon.shape, np.nan)
         gy = np.full(r.lat.shape, np.nan)
-        if ok.any():
+        if r.crs is not None:  # a local planar grid: the records' own coordinates, in km
+            gcrs = plane.crs
+            gx, gy = plane.from_lonlat(r.lon, r.lat)
+        elif ok.any():
             gx[ok], gy[ok] = planar_km(Points.lonlat(r.lon[ok], r.lat[ok]), gcrs)
         grid = cell_grid(s.method, float(size), s.parameters.get("grid_offset_km") or (0.0, 0.0), gcrs, plane,
                          gx, gy, r.fold, extent, fill=generalise_km is None)
@@ -501,7 +511,9 @@ def _map_figure(w: _Writer, s: SplitRun, c: _Coords, plane: MapPlane, plane_word
                        extent=extent, generalised_km=generalise_km)
     stem = w.figure(fm.figure, f"map_{_safe(s.name)}")
     label = r.fold_names.get(fm.focus_fold, str(fm.focus_fold))
-    cap = f"Split `{s.name}`. Left: records coloured by evaluation fold (presences as dots, background as small squares)"
+    shown = ["presences as dots"] + (["absences as triangles"] if np.any(r.kind == "absence") else []) + \
+        (["background as small squares"] if np.any(r.kind == "background") else [])
+    cap = f"Split `{s.name}`. Left: records coloured by evaluation fold ({', '.join(shown)})"
     if grid is not None:
         what = "hexagons" if grid.shape == "hexagon" else "square cells"
         cap += (f" over the design's {what} of {P.fmt_km(grid.size_km)}"
@@ -648,6 +660,9 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         t = s.audit_table if s.audit_table is not None else pd.DataFrame(s.audit.get("folds", []))
         src = w.table(_reorder(t, AUDIT_FIRST), f"{tag}_audit")
         blocks.append(_display_audit(s, src))
+        if s.audit_absences_table is not None:  # a survey's absences, audited on their own
+            src = w.table(_reorder(s.audit_absences_table, AUDIT_FIRST), f"{tag}_audit_absences")
+            blocks.append(_display_audit(s, src, absences=True))
         ctx = s.audit.get("context", {}) or {}
         if ctx.get("prediction_locations"):
             blocks.append(Text(f"Prediction locations for the distance comparison: {ctx['prediction_locations']}."))

@@ -7,6 +7,7 @@ Inline text may hold ``code`` spans in backticks and nothing else.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 
 
@@ -70,39 +71,57 @@ class Document:
     blocks: tuple = field(default_factory=tuple)
 
 
+# Characters that would make Markdown read a field value (a record id, a column or
+# fold name) as formatting, a link or HTML; backslash-escaped, as html.py escapes
+# the same text for HTML. `code` spans are kept as code, as in the HTML.
+_MD_SPECIAL = re.compile(r"([\\*_\[\]<>|~&#!])")
+
+
+def md_inline(text: str) -> str:
+    """Escape text for Markdown, keeping `code` spans (the Markdown twin of html._inline).
+
+    Examples
+    --------
+    >>> print(md_inline("fold <b>1</b> *a* | `x_y`"))
+    fold \\<b\\>1\\</b\\> \\*a\\* \\| `x_y`
+    """
+    parts = re.split(r"(`[^`]*`)", str(text))
+    return "".join(p if i % 2 else _MD_SPECIAL.sub(r"\\\1", p) for i, p in enumerate(parts))
+
+
 def _md_cell(text: str) -> str:
-    return str(text).replace("|", "\\|").replace("\n", " ")
+    return md_inline(str(text).replace("\n", " "))
 
 
 def to_markdown(doc: Document) -> str:
     """Render a document as GitHub-flavoured Markdown (pipe tables)."""
-    out = [f"# {doc.title}", ""]
+    out = [f"# {md_inline(doc.title)}", ""]
     n_table = n_figure = 0
     for b in doc.blocks:
         if isinstance(b, Heading):
-            out += ["#" * (b.level + 1) + " " + b.text, ""]
+            out += ["#" * (b.level + 1) + " " + md_inline(b.text), ""]
         elif isinstance(b, Text):
-            out += [b.text, ""]
+            out += [md_inline(b.text), ""]
         elif isinstance(b, Bullets):
-            out += [f"- {item}" for item in b.items] + [""]
+            out += [f"- {md_inline(item)}" for item in b.items] + [""]
         elif isinstance(b, Code):
             out += ["```text", b.text.rstrip("\n"), "```", ""]
         elif isinstance(b, Table):
             n_table += 1
-            out += [f"**Table {n_table}.** {b.caption}", ""]
+            out += [f"**Table {n_table}.** {md_inline(b.caption)}", ""]
             out.append("| " + " | ".join(_md_cell(c) for c in b.columns) + " |")
             out.append("|" + "|".join(" --- " for _ in b.columns) + "|")
             for row in b.rows:
                 out.append("| " + " | ".join(_md_cell(c) for c in row) + " |")
             out.append("")
             for note in b.notes:
-                out += [f"*{note}*", ""]
+                out += [f"*{md_inline(note)}*", ""]
             if b.source:
                 out += [f"Data: `{b.source}`", ""]
         elif isinstance(b, Figure):
             n_figure += 1
-            out += [f"![{b.alt or b.caption}]({b.stem}.png)", "",
-                    f"**Figure {n_figure}.** {b.caption} (vector: `{b.stem}.svg`)", ""]
+            out += [f"![{md_inline(b.alt or b.caption)}]({b.stem}.png)", "",
+                    f"**Figure {n_figure}.** {md_inline(b.caption)} (vector: `{b.stem}.svg`)", ""]
         else:  # pragma: no cover - a programming error, not bad input
             raise TypeError(f"unknown block {type(b).__name__}")
     while out and out[-1] == "":

@@ -24,7 +24,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
 from splitter.errors import InputError
-from splitter.geo import Points, equal_area_crs, planar_km
+from splitter.geo import Points, equal_area_crs, is_planar, planar_km
 from splitter.partition.grid import hexagon_cells, hexagon_corners, square_cell_corners, square_cells
 from splitter.report.style import GREY, colour, new_figure
 
@@ -67,6 +67,9 @@ class MapPlane:
         x = np.full(lon.shape, np.nan)
         y = np.full(lat.shape, np.nan)
         ok = np.isfinite(lon) & np.isfinite(lat)
+        if is_planar(self.crs):  # a local grid: "lon/lat" are its own coordinates
+            f = _km_factor(self.crs)
+            return np.where(ok, lon * f, np.nan), np.where(ok, lat * f, np.nan)
         if ok.any():
             x[ok], y[ok] = planar_km(Points.lonlat(lon[ok], lat[ok]), self.crs)
         return x, y
@@ -77,6 +80,9 @@ class MapPlane:
         lon = np.full(x_km.shape, np.nan)
         lat = np.full(y_km.shape, np.nan)
         ok = np.isfinite(x_km) & np.isfinite(y_km)
+        if is_planar(self.crs):
+            f = _km_factor(self.crs)
+            return np.where(ok, x_km / f, np.nan), np.where(ok, y_km / f, np.nan)
         if ok.any():
             f = _km_factor(self.crs)
             p = Points(x_km[ok] / f, y_km[ok] / f, self.crs).to_lonlat()
@@ -386,8 +392,9 @@ def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_
                    for f in folds]
     else:  # leave-one-out and the like: colours repeat, one key says so
         handles = [Patch(facecolor=colour(0), edgecolor="none", label=f"{len(folds)} folds (colours repeat)")]
-    handles += [Line2D([], [], ls="none", marker="o", color=GREY, ms=4, label="presence"),
-                Line2D([], [], ls="none", marker="s", color=GREY, ms=2, label="background")]
+    handles += [Line2D([], [], ls="none", marker="o", color=GREY, ms=4, label="presence")]
+    if back.any() or not absn.any():  # a survey without background: no key for it
+        handles.append(Line2D([], [], ls="none", marker="s", color=GREY, ms=2, label="background"))
     if absn.any():
         handles.append(Line2D([], [], ls="none", marker="^", color=GREY, ms=4, label="absence"))
     if cal_only.any():

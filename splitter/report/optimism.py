@@ -127,7 +127,7 @@ def optimism_section(opt: OptimismRun | None, table_writer) -> list:
         rows.append((label, _fmt(r_mean[m]), _fmt(c_mean[m]), _fmt(d[m], signed=True)))
     src = table_writer(opt.table, "optimism")
     k_ref, k_cmp = opt.n_folds(ref), opt.n_folds(cmp)
-    model = opt.doc.get("model") or "a flexible model using the covariates and the coordinates"
+    model = f"`{opt.doc['model']}`" if opt.doc.get("model") else "a flexible model using the covariates and the coordinates"
     rule = opt.doc.get("threshold_rule")
     omission = opt.doc.get("omission")
     other = (opt.table["other_kind"].iloc[0] if "other_kind" in opt.table.columns and len(opt.table) else "") or \

@@ -139,7 +139,19 @@ def records_sentence(design: dict) -> str:
         text += " (" + ", ".join(f"{k}: {fmt_count(v)}" for k, v in sorted(dropped.items())) + ")"
     if int(rec.get("calibration_only", 0) or 0):
         text += f", and {fmt_count(rec['calibration_only'])} records are used for calibration only"
-    return text + "."
+    text += "."
+    if design.get("generalised_km"):
+        text += (f" Its coordinates were written generalised to the centres of {fmt_km(_num(design['generalised_km']))} "
+                 f"cells; the folds were made from the exact coordinates.")
+    p = design.get("parameters", {}) or {}
+    if p.get("presence_before_thinning") is not None:
+        how = ("one presence was kept per cell of the first covariate raster" if p.get("thin") == "cell" else
+               f"presences were thinned so that no two lie closer than {fmt_km(_num(p.get('thin')))}")
+        text += (f" Before folds were made, {how} (chosen at random, seed {design.get('seed', p.get('seed'))}): "
+                 f"{fmt_count(p['presence_before_thinning'])} presences before thinning, "
+                 f"{fmt_count(p['presence_after_thinning'])} after; the others are kept in the fold table, "
+                 f"dropped as \"thinned\".")
+    return text
 
 
 def range_sentence(range_doc: dict) -> str:
@@ -166,7 +178,7 @@ def range_sentence(range_doc: dict) -> str:
 
 def _design_sentences(split, plane_words: str) -> list[str]:
     crs = split.geometry_crs
-    if crs is not None and crs.is_projected:
+    if crs is not None and (crs.is_projected or crs.type_name == "Engineering CRS"):
         from splitter.report.maps import MapPlane
 
         plane_words = MapPlane(crs).describe()
@@ -202,10 +214,11 @@ def _design_sentences(split, plane_words: str) -> list[str]:
             out.append("Cells take folds in a fixed pattern so that neighbouring cells differ "
                        "(2 folds: rook neighbours; 4 folds: a 2 x 2 tile; 5 or more: fold = (i + 2j) mod k).")
         elif p.get("occupied_cells") is not None:
+            imb = ", ".join(f"{k} {fmt_share(_num(p.get(f'{k}_imbalance')))}" for k in ("presence", "absence", "background")
+                            if p.get(f"{k}_imbalance") is not None)
             out.append(f"The {fmt_count(p['occupied_cells'])} occupied cells were allotted to folds so that presence "
-                       f"counts (then background counts) per fold are as even as possible "
-                       f"(imbalance reported by the design: presence {fmt_share(_num(p.get('presence_imbalance')))}, "
-                       f"background {fmt_share(_num(p.get('background_imbalance')))}).")
+                       f"counts (then counts of the other records) per fold are as even as possible "
+                       f"(imbalance reported by the design: {imb}).")
     elif method == "clusters":
         covs = p.get("covariates") or []
         out.append(f"The {kept} kept records were assigned to {fmt_count(k)} folds by {how}: k-means (seed {seed}) on "
@@ -297,8 +310,12 @@ def _audit_sentences(split) -> list[str]:
 def _model_words(params: dict) -> str:
     model = params.get("model")
     if model == "baseline":
-        return "the built-in baseline presence-background model, calibrated on each fold's calibration set"
-    if model:
+        absent = any("presence-absence model" in str(n) for n in params.get("notes") or [])
+        covs = params.get("covariates") or []
+        return (f"the built-in baseline {'presence-absence' if absent else 'presence-background'} model"
+                + (f" on the site covariates {fmt_list(covs)}" if covs else "")
+                + ", calibrated on each fold's calibration set")
+    if model and model != "user predictions":
         return f"the model `{model}`, calibrated on each fold's calibration set"
     if params.get("prediction_table"):
         return "the analyst's predictions (a prediction table)"
@@ -347,6 +364,7 @@ def _evaluation_sentences(split) -> list[str]:
     elif summary.get("combined_test") == "holm":
         out.append(f"The split as a whole was judged by its smallest Holm-adjusted p, "
                    f"{fmt_p(_num(summary.get('p_adjusted')))}.")
+    out.append(_data_used_sentence(rows))
     s = f"{fmt_count(n_sig)} of {fmt_count(k)} folds were significant"
     good = [r for r in rows if r.get("significant")]
     ratios = np.array([_num(r.get("auc_ratio")) for r in good], float)
@@ -362,6 +380,31 @@ def _evaluation_sentences(split) -> list[str]:
                    f"significant: marked \"do not interpret\", and {'their' if len(bad) > 1 else 'its'} performance "
                    f"figures are not findings.")
     return out
+
+
+_OTHER_WORDS = {"absence": "evaluation absences (sites surveyed where the species was not found)",
+                "background": "evaluation background points"}
+
+
+def _data_used_sentence(rows) -> str:
+    """Which kind of data each test set the evaluation presences against."""
+    raster = any(str(r.get("area_source", "")).startswith("raster") for r in rows)
+    others = sorted({str(r.get("other_kind")) for r in rows if str(r.get("other_kind", "")) in _OTHER_WORDS
+                     and (_num(r.get("n_other")) or 0) > 0})
+    other = " or ".join(_OTHER_WORDS[o] for o in others) if others else "no absences or background"
+    again = " or ".join(_OTHER_WORDS[o].split(" (")[0] for o in others) if others else other
+    if raster:
+        tests = ("the binomial test's expected share and the partial ROC (and full AUC) used the prediction "
+                 "raster's cells, weighted by area")
+    else:
+        tests = (f"with no prediction raster, the binomial test's expected share was the share of {other} predicted "
+                 f"present, and the partial ROC (and full AUC) compared evaluation presences with {again}")
+    meas = {"absence": "true specificity and commission rate (absences are surveyed)",
+            "background": "pseudo-specificity and pseudo-commission rate (background is not known to be unoccupied)"}
+    m = "; ".join(meas[o] for o in others) if others else "not computed"
+    return (f"Data each test used: {tests}; the confusion-matrix measures compared evaluation presences with "
+            f"{again if not raster else other}, giving {m}" + (" (a fold with absences used them, not background)" if len(others) > 1 else "")
+            + ".")
 
 
 def split_paragraph(split, plane_words: str, include_records: bool = False) -> str:

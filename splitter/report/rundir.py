@@ -36,11 +36,14 @@ class SplitRecords:
     fold : ndarray of int
         1..k evaluation fold, 0 calibration only, -1 dropped.
     lon, lat : ndarray of float
-        WGS84 longitude/latitude (NaN where the row has no coordinates).
+        WGS84 longitude/latitude (NaN where the row has no coordinates); for
+        records in a local planar grid, their own x/y in the grid's unit.
     gap_rows, gap_folds : ndarray of int
         Row ``gap_rows[m]`` is left out of fold ``gap_folds[m]``'s calibration set.
     fold_names : dict
         Fold number -> label as written in the fold table.
+    crs : pyproj.CRS or None
+        The local planar grid (planar:km / planar:m) of ``lon``/``lat``; None for longitude/latitude.
     """
 
     record_id: np.ndarray
@@ -52,6 +55,7 @@ class SplitRecords:
     gap_rows: np.ndarray
     gap_folds: np.ndarray
     fold_names: dict
+    crs: object = None
 
 
 @dataclass(frozen=True)
@@ -68,6 +72,7 @@ class SplitRun:
     records: SplitRecords = field(repr=False)
     audit: dict | None = field(default=None, repr=False)
     audit_table: pd.DataFrame | None = field(default=None, repr=False)
+    audit_absences_table: pd.DataFrame | None = field(default=None, repr=False)
     distance_figure: Path | None = None
     evaluation: dict | None = field(default=None, repr=False)
     evaluation_table: pd.DataFrame | None = field(default=None, repr=False)
@@ -91,9 +96,11 @@ class SplitRun:
         text = self.design.get("geometry_crs")
         if not text:
             return None
+        from splitter.geo import parse_crs
+
         try:
-            return pyproj.CRS.from_user_input(text)
-        except pyproj.exceptions.CRSError:
+            return parse_crs(text)  # EPSG:N, WKT or planar:km / planar:m
+        except InputError:
             return None
 
     @property
@@ -154,7 +161,11 @@ def _read_records(table_path: Path, design: dict) -> SplitRecords:
         if not crs:
             raise
         recs, assignment, names = read_fold_table(table_path, crs=crs)
-    ll = recs.points.to_lonlat()
+    from splitter.geo import is_planar
+
+    planar = is_planar(recs.points.crs)
+    # A local grid has no longitude/latitude: its own coordinates are carried instead.
+    ll = recs.points if planar else recs.points.to_lonlat()
     return SplitRecords(
         record_id=np.asarray(assignment.record_id).astype(str),
         kind=np.asarray(assignment.kind).astype(str),
@@ -165,6 +176,7 @@ def _read_records(table_path: Path, design: dict) -> SplitRecords:
         gap_rows=np.asarray(assignment.gap_rows, np.int64),
         gap_folds=np.asarray(assignment.gap_folds, np.int64),
         fold_names={int(k): str(v) for k, v in names.items()},
+        crs=recs.points.crs if planar else None,
     )
 
 
@@ -184,7 +196,7 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
         files.append(gaps)
     records = _read_records(table_path, design)
 
-    audit = audit_table = distance_figure = None
+    audit = audit_table = audit_absences_table = distance_figure = None
     audit_json = folder / "audit" / "audit.json"
     if audit_json.exists():
         audit = _load_json(audit_json)
@@ -192,6 +204,9 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
         if (folder / "audit" / "audit.csv").exists():
             audit_table = _read_table(folder / "audit" / "audit.csv")
             files.append(folder / "audit" / "audit.csv")
+        if (folder / "audit" / "audit_absences.csv").exists():
+            audit_absences_table = _read_table(folder / "audit" / "audit_absences.csv")
+            files.append(folder / "audit" / "audit_absences.csv")
         stem = folder / "audit" / "distance_ecdf"
         if stem.with_suffix(".png").exists():
             distance_figure = stem
@@ -206,7 +221,8 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
             files.append(folder / "evaluation" / "evaluation.csv")
     return SplitRun(
         name=name, folder=folder, table_path=table_path, design=design, records=records,
-        audit=audit, audit_table=audit_table, distance_figure=distance_figure,
+        audit=audit, audit_table=audit_table, audit_absences_table=audit_absences_table,
+        distance_figure=distance_figure,
         evaluation=evaluation, evaluation_table=evaluation_table, files=tuple(files),
     )
 

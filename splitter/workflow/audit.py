@@ -17,6 +17,7 @@ def audit(
     assignment: FoldAssignment,
     *,
     env=(),
+    covariates=(),
     range_km: float | None = None,
     range_from=None,
     group_column: str | None = None,
@@ -37,6 +38,15 @@ def audit(
     rasters' valid cells (or the ``region`` polygon). The environment and
     collection-method rules compare each fold with ``null_splits`` random
     re-splits of its presences (seeded with ``seed``).
+
+    ``covariates`` names columns of the fold table measured at the sites (a
+    survey's own covariates): the environmental overlap and envelope use them
+    instead of rasters, standardised on background when there are at least 20
+    background records, else on every kept record.
+
+    When the records hold absences, the same measures are taken a second time
+    from evaluation absences to calibration absences (``context["absences"]``,
+    an AuditResult), since absences are evaluation data too.
 
     Returns
     -------
@@ -70,6 +80,11 @@ def audit(
         context["range_estimate"] = est
     context["range_km"] = range_km
 
+    design = assignment.parameters.get("design") if isinstance(assignment.parameters, dict) else None
+    if isinstance(design, dict) and design.get("generalised_km"):
+        g = float(design["generalised_km"])
+        notes.append(f"the fold table's coordinates are generalised to {g:g} km cells: distances here are between "
+                     f"cell centres (each off by up to {g * 0.5 ** 0.5:.3g} km); audit the exact fold table for exact ones")
     kind = assignment.kind
     pres = kind == "presence"
     # Presences only: the distances run from evaluation to calibration presences.
@@ -81,6 +96,9 @@ def audit(
     env_matrix = env_reference = None
     env_names = None
     prediction_points = None
+    covariates = [c.strip() for v in (covariates or ()) for c in str(v).split(",") if c.strip()]
+    if covariates and env:
+        raise InputError("give covariates as `env` rasters or as `covariates` columns, not both.")
     reg = None
     if region is not None:
         from splitter.io.rasters import read_region
@@ -98,7 +116,16 @@ def audit(
             env_reference = env_matrix[bg]
         prediction_points = sample_valid_locations(env, prediction_sample, seed, region=reg)
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area over the rasters' valid cells (seed {seed})"
-    elif reg is not None:
+    elif covariates:
+        env_matrix = _covariate_columns(recs.table, covariates)
+        env_names = list(covariates)
+        kept = assignment.fold >= 0
+        bg = kept & (kind == "background")
+        ref = bg if bg.sum() >= 20 else kept
+        env_reference = env_matrix[ref & np.isfinite(env_matrix).all(axis=1)]
+        context["covariate_columns"] = list(covariates)
+        context["standardised_on"] = "background" if bg.sum() >= 20 else "every kept record"
+    if not env and reg is not None:
         from splitter.workflow.design import sample_in_polygon
 
         prediction_points = sample_in_polygon(region, prediction_sample, seed)
@@ -116,7 +143,36 @@ def audit(
         null_splits=null_splits, seed=seed,
     )
     context["null_splits"] = int(null_splits)
+    absent = kind == "absence"
+    if absent.any():
+        cal_a = [rows[absent[rows]] for rows in map(assignment.calibration, assignment.folds)]
+        ev_a = [rows[absent[rows]] for rows in map(assignment.evaluation, assignment.folds)]
+        if all(c.size for c in cal_a):
+            context["absences"] = audit_split(
+                recs.points, cal_a, ev_a, fold_labels=labels, env=env_matrix, env_names=env_names,
+                env_reference=env_reference, groups=groups, range_km=range_km,
+                prediction_points=prediction_points, min_evaluation=min_evaluation,
+                null_splits=null_splits, seed=seed,
+            )
+        else:
+            notes.append("absences not audited: a fold has no calibration absences")
     return result, context
+
+
+def _covariate_columns(table, covariates) -> np.ndarray:
+    """Site covariates from the table's columns (decimal commas read as points; blanks as missing)."""
+    import pandas as pd
+
+    cols = []
+    for c in covariates:
+        if c not in table.columns:
+            raise InputError(f"covariates={c!r}: no such column; columns are: {', '.join(map(str, table.columns))}.")
+        text = table[c].astype(str).str.strip().str.replace(",", ".", regex=False)
+        vals = pd.to_numeric(text, errors="coerce").to_numpy(float)
+        if not np.isfinite(vals).any():
+            raise InputError(f"covariates={c!r}: the column holds no numbers; name a numeric column.")
+        cols.append(vals)
+    return np.column_stack(cols)
 
 
 def _check_region_holds_records(reg, recs, label):

@@ -9,12 +9,13 @@ import numpy as np
 
 from splitter._version import __version__
 from splitter.errors import InputError
-from splitter.geo import Points, equal_area_crs
+from splitter.geo import Points, crs_text, equal_area_crs
 from splitter.io.records import Records, as_records
 from splitter import partition as core
 from splitter.geo import planar_km
 from splitter.partition import FoldAssignment, FoldRule, buffer_gaps
 from splitter.partition.base import RuleInput, imbalance
+from splitter.partition.thin import check_thin
 
 
 # --- the rules as users build them -------------------------------------------
@@ -24,16 +25,20 @@ class ReadsRecords:
     ``assign`` and scikit-learn's splitter protocol. (The core rules in
     :mod:`splitter.partition` work on arrays and read nothing.)"""
 
-    def assign(self, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None) -> FoldAssignment:
+    def assign(self, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None, zero_means=None,
+               thin=None) -> FoldAssignment:
         """Folds for ``records``: a path, a pandas DataFrame with coordinate
         columns (``crs`` names their CRS, default EPSG:4326), a GeoDataFrame or a
-        :class:`splitter.Records`.
+        :class:`splitter.Records`. ``zero_means`` says what 0 means in a 0/1 kind
+        column ("absence" or "background"); ``thin`` ("cell" or a distance in km)
+        thins presences first.
 
         Returns
         -------
         FoldAssignment
         """
-        return assign_records(self, records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+        return assign_records(self, records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
+                              zero_means=zero_means, thin=thin)
 
     def get_n_splits(self, X=None, y=None, groups=None) -> int:
         """Number of (calibration, evaluation) pairs ``split`` yields."""
@@ -235,6 +240,8 @@ def design(
     crs=None,
     x: str | None = None,
     y: str | None = None,
+    zero_means: str | None = None,
+    thin=None,
 ) -> FoldAssignment:
     """Make calibration/evaluation folds for occurrence records.
 
@@ -280,6 +287,11 @@ def design(
     crs, x, y
         For a DataFrame (or CSV): the coordinates' CRS (default EPSG:4326) and
         their columns (detected from common spellings when omitted).
+    zero_means : {"absence", "background"}
+        What 0 means in a 0/1 kind column (required when there is one).
+    thin : "cell" or float, optional
+        Thin presences first: one per cell of the first ``env`` raster, or no two
+        closer than this many km (seeded). Thinned rows stay, dropped as ``thinned``.
 
     Returns
     -------
@@ -296,11 +308,11 @@ def design(
                     group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
                     time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed,
                     random_offset=random_offset, range_sample=range_sample)
-    return rule.assign(records, crs=crs, x=x, y=y)
+    return rule.assign(records, crs=crs, x=x, y=y, zero_means=zero_means, thin=thin)
 
 
 def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_column=None, kind_column=None,
-                   labels=None, groups=None) -> FoldAssignment:
+                   labels=None, groups=None, zero_means=None, thin=None) -> FoldAssignment:
     """The shell around a rule: read the records, sample covariates, ask the rule
     for folds, apply the buffer, and record how it was done.
 
@@ -308,13 +320,19 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
     kinds when the records have no kind column; ``groups`` stand in for a
     group column.
     """
-    recs = as_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    recs = as_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
     if labels is not None:
         recs = _kinds_from_labels(recs, labels, kind_column)
     if groups is not None and len(groups) != len(recs):
         raise InputError(f"groups has {len(groups)} values but the records have {len(recs)} rows.")
+    thin = check_thin(thin)
+    if thin == "cell" and not rule.env:
+        raise InputError("thin='cell': one presence per cell needs `env` rasters (the first one's cells).")
     recs, env_matrix, env_names, notes = attach_covariates(recs, rule.env, rule.covariates)
     notes = list(recs.notes) + notes
+    thinning = None
+    if thin is not None:
+        recs, thinning = thin_records(recs, thin, rule.env, rule.seed)
 
     kinds = recs.kind
     if not np.any(recs.kept & (kinds == "presence")):
@@ -338,12 +356,18 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
     params = rule.design_parameters(n_folds).replace(**made.measured)
 
     kept_now = fold >= 0
-    if params.presence_imbalance is None and n_folds >= 2:
-        # Rules that do not balance (checkerboard, clusters, groups...) still report it.
-        params = params.replace(
-            presence_imbalance=imbalance(np.bincount(fold[kept_now & (kinds == "presence")], minlength=n_folds + 1)[1:]),
-            background_imbalance=imbalance(np.bincount(fold[kept_now & (kinds == "background")], minlength=n_folds + 1)[1:]),
-        )
+    if n_folds >= 2:
+        # Counted per kind on the final folds, for every rule (balancing rules deal
+        # presences first and the other records second; absences and background are
+        # reported apart so an absence imbalance is never shown as background).
+        per_kind = {k: imbalance(np.bincount(fold[kept_now & (kinds == k)], minlength=n_folds + 1)[1:])
+                    if np.any(kept_now & (kinds == k)) else None for k in ("presence", "absence", "background")}
+        params = params.replace(presence_imbalance=per_kind["presence"], absence_imbalance=per_kind["absence"],
+                                background_imbalance=per_kind["background"])
+    if recs.zero_means is not None:
+        params = params.replace(zero_means=recs.zero_means)
+    if thinning is not None:
+        params = params.replace(**thinning.to_dict())
     rows, gfolds = np.zeros(0, np.int64), np.zeros(0, np.int64)
     if rule.buffer > 0:
         rows, gfolds = buffer_gaps(recs.points, np.where(kept_now, fold, -1), rule.buffer)
@@ -361,12 +385,26 @@ def assign_records(rule: FoldRule, records, *, x=None, y=None, crs=None, id_colu
             raise InputError(f"fold {i} has no calibration presences; use fewer folds or another design.")
     geometry_crs = made.geometry_crs if made.geometry_crs is not None else recs.points.crs
     params = params.replace(
-        geometry_crs=geometry_crs.to_wkt() if not geometry_crs.to_epsg() else f"EPSG:{geometry_crs.to_epsg()}",
+        geometry_crs=crs_text(geometry_crs),
         software=f"splitter {__version__}", inputs=dict(recs.sources), notes=tuple(notes),
     )
     if rule.env:
         params = params.replace(env=tuple(rule.env), covariates=tuple(env_names))
     return replace(assignment, parameters=params, records=recs, covariates=env_matrix, covariate_names=tuple(env_names))
+
+
+def thin_records(recs: Records, thin, env, seed: int):
+    """Mark presences removed by thinning as dropped (``thinned``); return the records and the Thinning."""
+    from splitter.partition.thin import thin_cells, thin_distance
+
+    candidate = recs.kept & (recs.kind == "presence")
+    if thin == "cell":
+        from splitter.io.rasters import cell_of
+
+        t = thin_cells(cell_of(env[0], recs.points), candidate, seed=seed)
+    else:
+        t = thin_distance(recs.points, candidate, float(thin), seed=seed)
+    return recs.with_dropped(~t.keep, "thinned"), t
 
 
 def _kinds_from_labels(recs: Records, labels, kind_column) -> Records:

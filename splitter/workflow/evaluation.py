@@ -52,7 +52,8 @@ COLUMNS = [
     "auc_ratio_mean", "auc_ratio_low", "auc_ratio_high", "partial_roc_p_bootstrap", "partial_roc_note",
     "omission", "replicates",
     "omission_rate", "sensitivity", "specificity", "commission_rate",
-    "correct_classification_rate", "tss", "kappa", "boyce", "n_other", "other_kind",
+    "correct_classification_rate", "tss", "kappa", "specificity_name", "commission_name", "boyce", "n_other",
+    "other_kind",
     "area_source", "dropped_no_prediction", "warnings",
 ]
 SUMMARY_COLUMNS = [
@@ -160,6 +161,10 @@ class FoldEvaluation:
             "replicates": proc.replicates,
             **{k: meas.get(k, np.nan) for k in ("omission_rate", "sensitivity", "specificity", "commission_rate",
                                                  "correct_classification_rate", "tss", "kappa")},
+            "specificity_name": ("" if self.measures is None else
+                                 "pseudo-specificity" if self.other_kind == "background" else "specificity"),
+            "commission_name": ("" if self.measures is None else
+                                "pseudo-commission rate" if self.other_kind == "background" else "commission rate"),
             "boyce": self.boyce,
             "n_other": self.n_other,
             "other_kind": self.other_kind,
@@ -306,6 +311,7 @@ def evaluate(
     prediction_table=None,
     model=None,
     env=(),
+    covariates=(),
     region=None,
     threshold: str = "quantile:0.1",
     omission: float = 0.05,
@@ -331,7 +337,12 @@ def evaluate(
         background/absences and calibration presences of each fold.
     model : "baseline" or scikit-learn estimator, optional
         Fitted per fold on that fold's calibration records over the ``env``
-        rasters; writes ``prediction_dir/fold_{fold}.tif``.
+        rasters (writes ``prediction_dir/fold_{fold}.tif``) or on the
+        ``covariates`` columns of the fold table (writes
+        ``prediction_dir/predictions.csv``, used as the prediction table). With
+        calibration absences it is fitted as a presence-absence model.
+    covariates : list of str
+        Covariate columns of the fold table's records, for ``model`` without rasters.
     threshold : str
         ``lowest``, ``quantile:Q``, ``value:V`` or ``max-tss``; always from calibration data.
     omission, replicates, alpha, seed
@@ -346,12 +357,16 @@ def evaluate(
     EvaluationResult
     """
     rule = ThresholdRule.parse(threshold)
+    covariates = [c.strip() for v in (covariates or ()) for c in str(v).split(",") if c.strip()]
     if not 0 < alpha < 1:
         raise InputError(f"alpha={alpha}: give a level between 0 and 1 (e.g. 0.05).")
     if adjust not in ADJUSTMENTS:
         raise InputError(f"adjust={adjust!r}: use 'holm' (Holm's adjustment across folds) or 'none'.")
+    if covariates and model is None:
+        raise InputError("`covariates` columns are for a model fitted here: give `model` (baseline) too.")
     if predictions is None and prediction_table is None and model is None:
-        raise InputError("give predictions: --predictions 'PATTERN_{fold}.tif', --prediction-table FILE or --model baseline --env RASTER.")
+        raise InputError("give predictions: --predictions 'PATTERN_{fold}.tif', --prediction-table FILE or --model "
+                         "baseline with --env RASTER or --covariate-column COLUMN.")
     if assignment.records is None:
         raise InputError("the fold assignment carries no records; build it with splitter.design or splitter.read_fold_table.")
     names = fold_names or {i: str(i) for i in assignment.folds}
@@ -363,7 +378,15 @@ def evaluate(
 
         region_geom = read_region(region) if not hasattr(region, "geometry") else region
 
-    if model is not None:
+    if covariates and env:
+        raise InputError("give the model's covariates as `env` rasters or as `covariates` columns, not both.")
+    if model is not None and covariates:
+        if predictions is not None or prediction_table is not None:
+            raise InputError("give either a `model` to fit or predictions (`predictions`, `prediction_table`), not both.")
+        prediction_table = _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed, names,
+                                                    notes, progress)
+        model_label = "baseline" if isinstance(model, str) else type(model).__name__
+    elif model is not None:
         predictions = _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes, progress)
         model_label = "baseline" if isinstance(model, str) else type(model).__name__
     else:
@@ -404,7 +427,7 @@ def evaluate(
         _extent_check(assignment, predictions, names, region_geom, warnings)
     params = {
         "threshold_rule": str(rule), "omission": omission, "replicates": int(replicates),
-        "alpha": alpha, "seed": int(seed), "model": model_label,
+        "alpha": alpha, "seed": int(seed), "model": model_label, "covariates": covariates,
         "predictions": str(predictions) if predictions is not None else None,
         "prediction_table": str(prediction_table) if isinstance(prediction_table, (str, Path)) else None,
         "adjust": adjust,
@@ -459,14 +482,11 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
     ev = assignment.evaluation(i)
     cal = assignment.calibration(i)
     ev_p = _kind_rows(assignment, ev, "presence")
-    ev_a = _kind_rows(assignment, ev, "absence")
-    ev_b = _kind_rows(assignment, ev, "background")
-    other_kind = "absence" if ev_a.size else "background"
-    ev_o = ev_a if ev_a.size else ev_b
+    # With both in the table, a survey's absences are what presences are set against
+    # (true specificity, ROC of presences vs absences); background only without them.
+    ev_o, other_kind = _other_rows(assignment.kind, ev)
     cal_p = _kind_rows(assignment, cal, "presence")
-    cal_o = _kind_rows(assignment, cal, "absence")
-    if not cal_o.size:
-        cal_o = _kind_rows(assignment, cal, "background")
+    cal_o, _ = _other_rows(assignment.kind, cal)
     fold_warn = []
     pts = assignment.records.points
     path = None
@@ -668,15 +688,85 @@ def _predict_window(env, window, est) -> np.ndarray:
     return out
 
 
-def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes, progress) -> str:
-    """Fit a model per fold on calibration records and write prediction rasters."""
+def _other_rows(kind, rows):
+    """The records a model or test sets against presences: a survey's absences when
+    there are any (the stronger comparison), else background."""
+    absent = rows[kind[rows] == "absence"]
+    return (absent, "absence") if absent.size else (rows[kind[rows] == "background"], "background")
+
+
+def _fit(model, Xp, Xo, other_kind, seed):
     from sklearn.base import clone
 
+    if isinstance(model, str):
+        if model != "baseline":
+            raise InputError(f"--model {model}: the built-in model is 'baseline'.")
+        return fit_baseline(Xp, Xo, seed=seed, other_kind=other_kind)
+    est = clone(model)
+    est.fit(np.vstack([Xp, Xo]), np.r_[np.ones(len(Xp)), np.zeros(len(Xo))])
+    return est
+
+
+def _model_data_note(kinds_used: set, notes: list):
+    if "absence" in kinds_used:
+        notes.append("the model was fitted as a presence-absence model: calibration presences against calibration "
+                     "absences (surveyed, not found)" + (" (folds without calibration absences: against background)"
+                                                         if "background" in kinds_used else ""))
+    else:
+        notes.append("the model was fitted as a presence-background model: calibration presences against background")
+
+
+def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed, names, notes, progress) -> pd.DataFrame:
+    """Fit a model per fold on calibration records' covariate columns; predict every record of the fold."""
+    from splitter.io.atomic import atomic_write
+
+    table = assignment.records.table
+    cols = []
+    for c in covariates:
+        if c not in table.columns:
+            raise InputError(f"covariates={c!r}: no such column in the fold table; columns are: "
+                             f"{', '.join(map(str, table.columns))}.")
+        cols.append(pd.to_numeric(table[c].astype(str).str.strip().str.replace(",", ".", regex=False),
+                                  errors="coerce").to_numpy(float))
+    X = np.column_stack(cols)
+    finite = np.isfinite(X).all(axis=1)
+    kind = assignment.kind
+    used, parts = set(), []
+    for i in assignment.folds:
+        cal = assignment.calibration(i)
+        cal = cal[finite[cal]]
+        pres = cal[kind[cal] == "presence"]
+        other, other_kind = _other_rows(kind, cal)
+        if pres.size == 0 or other.size == 0:
+            raise InputError(f"fold {i}: the model needs calibration presences and absences or background with "
+                             "values in every covariates column.")
+        used.add(other_kind)
+        est = _fit(model, X[pres], X[other], other_kind, seed)
+        rows = np.union1d(assignment.evaluation(i), cal)
+        rows = rows[finite[rows]]
+        parts.append(pd.DataFrame({"record_id": assignment.record_id[rows].astype(str),
+                                   "fold": names.get(i, str(i)), "prediction": predict_suitability(est, X[rows])}))
+        if progress is not None:
+            progress()
+    _model_data_note(used, notes)
+    preds = pd.concat(parts, ignore_index=True)
+    if prediction_dir is not None:
+        out = Path(prediction_dir)
+        out.mkdir(parents=True, exist_ok=True)
+        with atomic_write(out / "predictions.csv", "w") as f:
+            preds.to_csv(f, index=False, lineterminator="\n", float_format="%.10g")
+        notes.append(f"model fitted per fold on the covariate columns {', '.join(covariates)}; "
+                     f"predictions in {out / 'predictions.csv'}")
+    return preds
+
+
+def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes, progress) -> str:
+    """Fit a model per fold on calibration records and write prediction rasters."""
     from splitter.io.rasters import raster_info, sample_rasters, sample_valid_locations, write_geotiff_by_rows
 
     env = [str(p) for p in (env or ())]
     if not env:
-        raise InputError("--model needs covariate rasters: give --env RASTER (repeatable).")
+        raise InputError("--model needs covariates: give --env RASTER (repeatable) or covariates (columns of the fold table).")
     if prediction_dir is None:
         raise InputError("--model needs an output folder for the prediction rasters.")
     infos = [raster_info(p) for p in env]
@@ -693,28 +783,26 @@ def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes,
         notes.append("no background or absences in the fold table: 10,000 background points were sampled over the rasters for the model")
     out_dir = Path(prediction_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
+    used = set()
     for i in assignment.folds:
         cal = assignment.calibration(i)
         pres = cal[kind[cal] == "presence"]
-        other = cal[kind[cal] != "presence"]
+        other, other_kind = _other_rows(kind, cal)
         Xp = X_rec[pres]
         Xp = Xp[np.isfinite(Xp).all(axis=1)]
-        Xb = X_rec[other] if bg_extra is None else bg_extra
-        Xb = Xb[np.isfinite(Xb).all(axis=1)]
-        if isinstance(model, str):
-            if model != "baseline":
-                raise InputError(f"--model {model}: the built-in model is 'baseline'.")
-            est = fit_baseline(Xp, Xb, seed=seed)
+        if bg_extra is not None:
+            Xb, other_kind = bg_extra, "background"
         else:
-            est = clone(model)
-            X = np.vstack([Xp, Xb])
-            y = np.r_[np.ones(len(Xp)), np.zeros(len(Xb))]
-            est.fit(X, y)
+            Xb = X_rec[other]
+        Xb = Xb[np.isfinite(Xb).all(axis=1)]
+        used.add(other_kind)
+        est = _fit(model, Xp, Xb, other_kind, seed)
         label = names.get(i, str(i))
         # Predict window by window so covariate grids larger than memory work.
         write_geotiff_by_rows(out_dir / f"fold_{label}.tif", first.width, first.height, first.transform, first.crs,
                               lambda w, est=est: _predict_window(env, w, est))
         if progress is not None:
             progress()
+    _model_data_note(used, notes)
     notes.append(f"model fitted per fold on that fold's calibration records; predictions in {out_dir}")
     return str(out_dir / "fold_{fold}.tif")

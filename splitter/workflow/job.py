@@ -42,6 +42,7 @@ class JobOptions:
     crs: str | None = field(default=None, metadata=_opt("--crs", "text", READ))
     id_column: str | None = field(default=None, metadata=_opt("--id-column", "text", READ))
     kind_column: str | None = field(default=None, metadata=_opt("--kind-column", "text", READ))
+    zero_means: str | None = field(default=None, metadata=_opt("--zero-means", "zero_means", READ))
     background: str | None = field(default=None, metadata=_opt("--background", "path", (DESIGN,)))
     background_count: int | None = field(default=None, metadata=_opt("--background-count", "int", (DESIGN,)))
     region: str | None = field(default=None, metadata=_opt("--region", "path", READ))
@@ -58,6 +59,8 @@ class JobOptions:
     time_column: str | None = field(default=None, metadata=_opt("--time-column", "text", (DESIGN,)))
     periods: int | None = field(default=None, metadata=_opt("--periods", "int", (DESIGN,)))
     calibrate_before: str | None = field(default=None, metadata=_opt("--calibrate-before", "text", (DESIGN,)))
+    thin: str | None = field(default=None, metadata=_opt("--thin", "text", (DESIGN,)))
+    generalise: float | None = field(default=None, metadata=_opt("--generalise", "float", (DESIGN,)))
     seed: int = field(default=0, metadata=_opt("--seed", "int", READ))
     # Audit.
     audit: bool = field(default=True, metadata=_opt("", "yesno", ()))
@@ -187,6 +190,10 @@ def parse_option(name: str, value: str, base: Path):
         except InputError as e:
             raise bad(f"is not a threshold rule ({e})") from None
         return value
+    if kind == "zero_means":
+        if value.lower() not in ("absence", "background"):
+            raise bad("is not a reading of 0; give 'absence' (surveyed, not found) or 'background'.")
+        return value.lower()
     if kind == "adjust":
         if value.lower() not in ("holm", "none"):
             raise bad("is not an adjustment; give 'holm' or 'none'.")
@@ -256,10 +263,13 @@ def design_step(records, options: JobOptions, out, *, command: str | None = None
                     calibrate_before=o.calibrate_before, seed=o.seed)
     recs = load_records(records, x=o.x, y=o.y, crs=o.crs, id_column=o.id_column, kind_column=o.kind_column,
                         background=o.background, background_count=o.background_count, env=list(o.env),
-                        region=o.region, seed=o.seed)
-    assignment = rule.assign(recs)
+                        region=o.region, seed=o.seed, zero_means=o.zero_means)
+    assignment = rule.assign(recs, thin=o.thin)  # text or km: the rule checks it
     checks = check_folds(assignment, alpha=o.alpha, adjust=o.adjust, omission=o.omission)
-    paths = write_design(assignment, out, command=command or o.command(DESIGN, records, out), checks=checks)
+    if o.generalise is not None and not o.generalise > 0:
+        raise InputError(f"generalise={o.generalise:g}: give a grid size in km greater than 0.")
+    paths = write_design(assignment, out, command=command or o.command(DESIGN, records, out), checks=checks,
+                         generalise_km=o.generalise)
     return assignment, checks, paths
 
 

@@ -8,14 +8,14 @@ from __future__ import annotations
 
 
 def load_records(records, *, x=None, y=None, crs=None, id_column=None, kind_column=None, background=None,
-                 background_count=None, env=(), region=None, seed=0):
+                 background_count=None, env=(), region=None, seed=0, zero_means=None):
     """Records, plus a separate background file and/or ``background_count`` sampled background points.
 
     Parameters
     ----------
     records : path
         Occurrence records (CSV, GeoPackage, GeoParquet, ...).
-    x, y, crs, id_column, kind_column : str, optional
+    x, y, crs, id_column, kind_column, zero_means : str, optional
         How to read the table (see :func:`splitter.io.records.read_records`).
     background : path, optional
         A separate file of background points, read with the same columns and CRS.
@@ -40,7 +40,8 @@ def load_records(records, *, x=None, y=None, crs=None, id_column=None, kind_colu
     """
     from splitter.io.records import combine, read_records
 
-    recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column)
+    recs = read_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column,
+                        zero_means=zero_means)
     if background is not None:
         bg = read_records(background, x=x, y=y, crs=crs, id_column=id_column, default_kind="background")
         recs = combine(recs, bg, kind="background")

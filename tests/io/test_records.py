@@ -10,10 +10,30 @@ from splitter.io.records import read_records
 def test_semicolon_csv_with_decimal_commas(tmp_path):
     p = tmp_path / "r.csv"
     p.write_text("id;Lat;Lon;kind\na;45,5;10,25;1\nb;46,0;11,0;0\n", encoding="utf-8")
-    r = read_records(p, id_column="id")
+    r = read_records(p, id_column="id", zero_means="background")
     # reference: analytic — the values as written, with the decimal comma read as a point
     assert np.allclose(r.points.x, [10.25, 11.0]) and np.allclose(r.points.y, [45.5, 46.0])
-    assert r.kind.tolist() == ["presence", "background"]  # 1/0 kinds; 0 is background (our documented choice)
+    assert r.kind.tolist() == ["presence", "background"]  # 1/0 kinds read as the caller said
+
+
+@pytest.mark.parametrize("one,zero", [("1", "0"), ("TRUE", "FALSE"), ("yes", "no"), ("1.0", "0.0")])
+def test_zero_one_kinds_need_zero_means_and_follow_it(tmp_path, one, zero):
+    p = tmp_path / "r.csv"
+    p.write_text(f"x,y,pa\n10,45,{one}\n11,46,{zero}\n12,46,absence\n", encoding="utf-8")
+    with pytest.raises(InputError, match="zero_means.*'absence'.*'background'"):
+        read_records(p, kind_column="pa")  # never guessed
+    for meaning in ("absence", "background"):
+        r = read_records(p, kind_column="pa", zero_means=meaning)
+        # reference: analytic — 1 is presence, 0 what the caller said, words as written
+        assert r.kind.tolist() == ["presence", meaning, "absence"]
+    with pytest.raises(InputError, match="zero_means='nothing'"):
+        read_records(p, kind_column="pa", zero_means="nothing")
+
+
+def test_words_need_no_zero_means(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("x,y,kind\n10,45,presence\n11,46,absence\n12,46,background\n", encoding="utf-8")
+    assert read_records(p).kind.tolist() == ["presence", "absence", "background"]  # analytic: as written
 
 
 def test_tab_separated_and_unknown_kinds_are_dropped_not_lost(tmp_path):
