@@ -9,6 +9,7 @@ to do), 3 an unexpected error (a bug; SPLITTER_DEBUG=1 shows the traceback),
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import functools
 import os
 import sys
@@ -125,6 +126,12 @@ def _table(title: str, **kwargs):
 
     return Table(title=title, title_justify="left", **kwargs)
 
+
+# Defaults of every job option live in one place (splitter.workflow.job, which imports
+# nothing heavy): the command line shows them.
+from splitter.workflow.job import JobOptions as _JobOptions  # noqa: E402
+
+_D = _JobOptions()
 
 # Options every command that reads records shares.
 X_OPTION = typer.Option(None, "--x", metavar="COLUMN", help="Longitude / easting column (detected from common spellings if omitted).")
@@ -248,60 +255,64 @@ def imbalance_line(p) -> str | None:
 @guarded
 def design(
     records: Path = typer.Argument(..., metavar="RECORDS", help="Occurrence records: CSV, GeoPackage or GeoParquet."),
-    method: str = typer.Option("blocks", "--method", metavar="METHOD", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, period, holdout-period, random or leave-one-out."),
-    folds: int = typer.Option(5, "--folds", metavar="N", help="Number of folds k."),
-    block_size: Optional[str] = typer.Option(None, "--block-size", metavar="KM", help="Block/hexagon/checkerboard size in km, 'auto' (autocorrelation range of --env) or 'match'."),
-    buffer: float = typer.Option(0.0, "--buffer", metavar="KM", help="Buffer radius in km around each fold's evaluation records."),
-    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable)."),
-    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column of the records table (repeatable), for clusters."),
-    group_column: Optional[str] = typer.Option(None, "--group-column", metavar="COLUMN", help="Survey method / source column for groups and holdout-group."),
-    calibrate_on: Optional[str] = typer.Option(None, "--calibrate-on", metavar="VALUES", help="holdout-group: group values to calibrate on (comma-separated)."),
-    evaluate_on: Optional[str] = typer.Option(None, "--evaluate-on", metavar="VALUES", help="holdout-group: group values to evaluate on (comma-separated)."),
-    time_column: Optional[str] = typer.Option(None, "--time-column", metavar="COLUMN", help="Year or date column for period and holdout-period (default: year)."),
-    periods: Optional[int] = typer.Option(None, "--periods", metavar="N", help="period: number of contiguous time windows (default: --folds)."),
-    calibrate_before: Optional[str] = typer.Option(None, "--calibrate-before", metavar="YEAR", help="holdout-period: calibrate before this year (or date), evaluate from it on; with another method, evaluate each fold on its later records only."),
-    background: Optional[Path] = typer.Option(None, "--background", metavar="PATH", help="A separate file of background points."),
-    background_count: Optional[int] = typer.Option(None, "--background-count", metavar="N", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
-    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file of the study region (for --background-count)."),
-    generalise: Optional[float] = typer.Option(None, "--generalise", metavar="KM", help="Write every coordinate of the fold table as the centre of its KM km cell (sensitive species); folds are made from the exact ones."),
-    thin: Optional[str] = typer.Option(None, "--thin", metavar="cell|KM", help="Thin presences first: 'cell' keeps one per cell of the first --env raster, KM keeps no two closer than KM km (seeded); thinned rows stay, dropped as 'thinned'."),
+    method: str = typer.Option(_D.method, "--method", metavar="METHOD", help="blocks, hexagons, checkerboard, clusters, groups, holdout-group, period, holdout-period, random or leave-one-out."),
+    folds: int = typer.Option(_D.folds, "--folds", metavar="N", help="Number of folds k."),
+    block_size: Optional[str] = typer.Option(_D.block_size, "--block-size", metavar="KM", help="Block/hexagon/checkerboard size in km, 'auto' (autocorrelation range of --env) or 'match'."),
+    buffer: float = typer.Option(_D.buffer, "--buffer", metavar="KM", help="Buffer radius in km around each fold's evaluation records."),
+    env: List[Path] = typer.Option(list(_D.env), "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable)."),
+    covariate_column: List[str] = typer.Option(list(_D.covariate_column), "--covariate-column", metavar="COLUMN", help="Covariate column of the records table (repeatable), for clusters."),
+    group_column: Optional[str] = typer.Option(_D.group_column, "--group-column", metavar="COLUMN", help="Survey method / source column for groups and holdout-group."),
+    calibrate_on: Optional[str] = typer.Option(_D.calibrate_on, "--calibrate-on", metavar="VALUES", help="holdout-group: group values to calibrate on (comma-separated)."),
+    evaluate_on: Optional[str] = typer.Option(_D.evaluate_on, "--evaluate-on", metavar="VALUES", help="holdout-group: group values to evaluate on (comma-separated)."),
+    time_column: Optional[str] = typer.Option(_D.time_column, "--time-column", metavar="COLUMN", help="Year or date column for period and holdout-period (default: year)."),
+    periods: Optional[int] = typer.Option(_D.periods, "--periods", metavar="N", help="period: number of contiguous time windows (default: --folds)."),
+    calibrate_before: Optional[str] = typer.Option(_D.calibrate_before, "--calibrate-before", metavar="YEAR", help="holdout-period: calibrate before this year (or date), evaluate from it on; with another method, evaluate each fold on its later records only."),
+    background: Optional[Path] = typer.Option(_D.background, "--background", metavar="PATH", help="A separate file of background points."),
+    background_count: Optional[int] = typer.Option(_D.background_count, "--background-count", metavar="N", help="Sample N background points (seeded) over the --env rasters' valid cells or --region."),
+    region: Optional[Path] = typer.Option(_D.region, "--region", metavar="PATH", help="Polygon file of the study region (for --background-count)."),
+    generalise: Optional[float] = typer.Option(_D.generalise, "--generalise", metavar="KM", help="Write every coordinate of the fold table as the centre of its KM km cell (sensitive species); folds are made from the exact ones."),
+    thin: Optional[str] = typer.Option(_D.thin, "--thin", metavar="cell|KM", help="Thin presences first: 'cell' keeps one per cell of the first --env raster, KM keeps no two closer than KM km (seeded); thinned rows stay, dropped as 'thinned'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
-    alpha: float = typer.Option(0.05, "--alpha", metavar="ALPHA", help="Significance level the folds will be tested at (for the design checks)."),
-    adjust: str = typer.Option("holm", "--adjust", metavar="METHOD", help="'holm' or 'none', as evaluate will use it (for the design checks)."),
-    omission: float = typer.Option(0.05, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E evaluate will use (for the design checks)."),
+    alpha: float = typer.Option(_D.alpha, "--alpha", metavar="ALPHA", help="Significance level the folds will be tested at (for the design checks)."),
+    adjust: str = typer.Option(_D.adjust, "--adjust", metavar="METHOD", help="'holm' or 'none', as evaluate will use it (for the design checks)."),
+    omission: float = typer.Option(_D.omission, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E evaluate will use (for the design checks)."),
     zero_means: Optional[str] = ZERO_OPTION,
-    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for every random step."),
+    seed: int = typer.Option(_D.seed, "--seed", min=0, metavar="N", help="Seed for every random step."),
     out_path: Path = typer.Option(..., "--out", metavar="PATH", help="Fold table to write: .csv, .gpkg or .parquet."),
 ):
     """Design calibration/evaluation folds before modelling, and say what each fold's tests can show."""
-    from splitter.io.foldtable import write_design
-    from splitter.workflow.loading import load_records
-    from splitter.partition.testability import check_folds
+    from splitter.workflow.job import DESIGN, design_step
 
-    if generalise is not None and not generalise > 0:
-        raise InputError(f"--generalise {generalise}: give a grid size in km greater than 0.")
+    options = _options(locals())
     with progress() as bar, flag_names():
-        from splitter.workflow.design import rule_for
-
-        rule = rule_for(method, folds=folds, block_size=block_size, buffer=buffer, env=env, covariates=covariate_column,
-                        group_column=group_column, calibrate_on=calibrate_on, evaluate_on=evaluate_on,
-                        time_column=time_column, periods=periods, calibrate_before=calibrate_before, seed=seed)
-        bar.add_task("reading records", total=None)
-        recs = load_records(records, x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means,
-                            background=background, background_count=background_count, env=env, region=region,
-                            seed=seed)
-        bar.add_task(f"making {method} folds", total=None)
-        assignment = rule.assign(recs, thin=thin)
-        checks = check_folds(assignment, alpha=alpha, adjust=adjust, omission=omission)
-        bar.add_task("writing outputs", total=None)
-        paths = write_design(assignment, out_path, command=command_line(), checks=checks, generalise_km=generalise)
+        bar.add_task(f"reading records and making {method} folds", total=None)
+        assignment, checks, paths = design_step(records, options, out_path,
+                                                command=options.command(DESIGN, records, out_path))
+    _print_warnings(assignment.records)
     _print_design(assignment, paths, checks)
     if generalise is not None:
         _out().print(f"coordinates written generalised to {generalise:g} km cells (folds made from the exact ones)")
+
+
+def _options(given: dict):
+    """The job options a command was given (its other arguments are not options of a job)."""
+    from splitter.workflow.job import JobOptions
+
+    values = {}
+    for name in JobOptions.names():
+        if name not in given:
+            continue
+        v = given[name]
+        if isinstance(v, list):
+            v = tuple(str(p) for p in v)
+        elif isinstance(v, Path):
+            v = str(v)
+        values[name] = v
+    return JobOptions(**values)
 
 
 def fold_checks_table(checks):
@@ -324,14 +335,11 @@ def fold_checks_table(checks):
 
 # Python parameter -> command-line option, for the design settings (the one place they meet).
 FLAGS = {
-    "method": "--method", "folds": "--folds", "block_size": "--block-size", "buffer": "--buffer", "env": "--env",
-    "covariates": "--covariate-column", "group_column": "--group-column", "calibrate_on": "--calibrate-on",
-    "evaluate_on": "--evaluate-on", "time_column": "--time-column", "periods": "--periods",
-    "calibrate_before": "--calibrate-before", "seed": "--seed", "count": "--background-count", "region": "--region",
-    "predictions": "--predictions", "prediction_table": "--prediction-table", "threshold": "--threshold",
-    "omission": "--omission", "replicates": "--replicates", "alpha": "--alpha", "adjust": "--adjust",
-    "null_splits": "--null-splits", "fold_column": "--fold-column", "role_column": "--role-column",
-    "zero_means": "--zero-means", "model": "--model", "crs": "--crs", "thin": "--thin",
+    # Every job option by its Python name (x, y and audit are words too common to rewrite) ...
+    **{f.name: f.metadata["flag"] for f in dataclasses.fields(_JobOptions)
+       if f.metadata["flag"] and f.name not in ("x", "y")},
+    # ... and the library's own names for two of them.
+    "covariates": "--covariate-column", "count": "--background-count",
 }
 
 
@@ -435,53 +443,42 @@ def evaluation_table(result, title: str):
 @guarded
 def evaluate(
     folds_table: Path = typer.Argument(..., metavar="FOLDS", help="Fold table (ours, or your own with a fold column)."),
-    predictions: Optional[str] = typer.Option(None, "--predictions", metavar="PATTERN", help="Prediction raster pattern with {fold}, e.g. 'preds/fold_{fold}.tif'."),
-    prediction_table: Optional[Path] = typer.Option(None, "--prediction-table", metavar="PATH", help="CSV with record_id, fold, prediction."),
-    model: Optional[str] = typer.Option(None, "--model", metavar="NAME", help="'baseline': fit the built-in model per fold over --env rasters."),
-    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF for --model (repeatable)."),
-    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column of the fold table for --model, instead of --env (repeatable or comma-separated)."),
-    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon file cutting the testing region."),
-    fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column holding the folds."),
-    threshold: str = typer.Option("quantile:0.1", "--threshold", metavar="RULE", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
-    omission: float = typer.Option(0.05, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E."),
-    replicates: int = typer.Option(1000, "--replicates", metavar="N", help="Partial ROC replicates: bootstrap and null of random presences."),
-    alpha: float = typer.Option(0.05, "--alpha", metavar="ALPHA", help="Significance level."),
-    adjust: str = typer.Option("holm", "--adjust", metavar="METHOD", help="'holm': adjust fold p-values across folds (Holm); 'none'."),
+    predictions: Optional[str] = typer.Option(_D.predictions, "--predictions", metavar="PATTERN", help="Prediction raster pattern with {fold}, e.g. 'preds/fold_{fold}.tif'."),
+    prediction_table: Optional[Path] = typer.Option(_D.prediction_table, "--prediction-table", metavar="PATH", help="CSV with record_id, fold, prediction."),
+    model: Optional[str] = typer.Option(_D.model, "--model", metavar="NAME", help="'baseline': fit the built-in model per fold over --env rasters."),
+    env: List[Path] = typer.Option(list(_D.env), "--env", metavar="PATH", help="Covariate GeoTIFF for --model (repeatable)."),
+    covariate_column: List[str] = typer.Option(list(_D.covariate_column), "--covariate-column", metavar="COLUMN", help="Covariate column of the fold table for --model, instead of --env (repeatable or comma-separated)."),
+    region: Optional[Path] = typer.Option(_D.region, "--region", metavar="PATH", help="Polygon file cutting the testing region."),
+    fold_column: str = typer.Option(_D.fold_column, "--fold-column", metavar="COLUMN", help="Column holding the folds."),
+    threshold: str = typer.Option(_D.threshold, "--threshold", metavar="RULE", help="lowest, quantile:Q, value:V or max-tss (from calibration presences)."),
+    omission: float = typer.Option(_D.omission, "--omission", metavar="SHARE", help="Partial ROC omission tolerance E."),
+    replicates: int = typer.Option(_D.replicates, "--replicates", metavar="N", help="Partial ROC replicates: bootstrap and null of random presences."),
+    alpha: float = typer.Option(_D.alpha, "--alpha", metavar="ALPHA", help="Significance level."),
+    adjust: str = typer.Option(_D.adjust, "--adjust", metavar="METHOD", help="'holm': adjust fold p-values across folds (Holm); 'none'."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
     zero_means: Optional[str] = ZERO_OPTION,
-    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the bootstrap and the null."),
+    seed: int = typer.Option(_D.seed, "--seed", min=0, metavar="N", help="Seed for the bootstrap and the null."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'not-significant': exit 1 when any fold is not significant."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Test each fold's predictions: significance first, then performance."""
-    from splitter.workflow.evaluation import evaluate as run_evaluate
-    from splitter.io.foldtable import read_fold_table
-    from splitter.report.outputs import write_evaluation
+    from splitter.workflow.job import EVALUATE, evaluate_step, read_step
 
     if fail_on not in (None, "not-significant"):
         raise InputError(f"--fail-on {fail_on}: the only choice is 'not-significant'.")
-    if model is not None and model != "baseline":
-        raise InputError(f"--model {model}: the built-in model is 'baseline' (pass other estimators from Python).")
-    if adjust not in ("holm", "none"):
-        raise InputError(f"--adjust {adjust}: use 'holm' (Holm's adjustment across folds) or 'none'.")
-    recs, assignment, names = read_fold_table(folds_table, fold_column=fold_column, x=x, y=y, crs=crs,
-                                           id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+    options = _options(locals())
+    recs, assignment, names = read_step(folds_table, options)
     _print_warnings(recs)
     with progress() as bar:
         steps = assignment.n_folds * (2 if model else 1)
         task = bar.add_task("evaluating folds", total=steps)
-        result = run_evaluate(
-            assignment, predictions=predictions, prediction_table=prediction_table, model=model, env=env,
-            covariates=covariate_column,
-            region=region, threshold=threshold, omission=omission, replicates=replicates, alpha=alpha,
-            adjust=adjust, seed=seed, prediction_dir=out_dir / "predictions" if model else None, fold_names=names,
-            progress=lambda: bar.advance(task),
-        )
-        paths = write_evaluation(result, out_dir, extra={"fold_table": str(folds_table), "command": command_line()})
+        result, paths = evaluate_step(assignment, names, options, out_dir,
+                                      command=options.command(EVALUATE, folds_table, out_dir), fold_table=folds_table,
+                                      progress=lambda: bar.advance(task))
     _out().print(evaluation_table(result, f"per-fold evaluation (alpha {alpha:g}; significance first)"))
     others = sorted({f.other_kind for f in result.folds if f.n_other})
     if others:
@@ -580,44 +577,37 @@ def audit_table(result, what: str = "presences"):
 @guarded
 def audit(
     table: Path = typer.Argument(..., metavar="TABLE", help="Fold table: ours, or your own with a fold or role column."),
-    fold_column: str = typer.Option("fold", "--fold-column", metavar="COLUMN", help="Column with fold numbers or names."),
-    role_column: Optional[str] = typer.Option(None, "--role-column", metavar="COLUMN", help="Column saying calibration/evaluation (instead of folds)."),
-    env: List[Path] = typer.Option([], "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
-    covariate_column: List[str] = typer.Option([], "--covariate-column", metavar="COLUMN", help="Covariate column measured at the sites (repeatable or comma-separated): environment diagnostics without rasters."),
-    range_km: Optional[float] = typer.Option(None, "--range-km", metavar="KM", help="Autocorrelation range in km."),
-    range_from: Optional[Path] = typer.Option(None, "--range-from", metavar="PATH", help="Folder written by 'splitter range'."),
-    group_column: Optional[str] = typer.Option(None, "--group-column", metavar="COLUMN", help="Survey method / source column."),
-    region: Optional[Path] = typer.Option(None, "--region", metavar="PATH", help="Polygon of the prediction region."),
+    fold_column: str = typer.Option(_D.fold_column, "--fold-column", metavar="COLUMN", help="Column with fold numbers or names."),
+    role_column: Optional[str] = typer.Option(_D.role_column, "--role-column", metavar="COLUMN", help="Column saying calibration/evaluation (instead of folds)."),
+    env: List[Path] = typer.Option(list(_D.env), "--env", metavar="PATH", help="Covariate GeoTIFF (repeatable): environment diagnostics and prediction locations."),
+    covariate_column: List[str] = typer.Option(list(_D.covariate_column), "--covariate-column", metavar="COLUMN", help="Covariate column measured at the sites (repeatable or comma-separated): environment diagnostics without rasters."),
+    range_km: Optional[float] = typer.Option(_D.range_km, "--range-km", metavar="KM", help="Autocorrelation range in km."),
+    range_from: Optional[Path] = typer.Option(_D.range_from, "--range-from", metavar="PATH", help="Folder written by 'splitter range'."),
+    group_column: Optional[str] = typer.Option(_D.group_column, "--group-column", metavar="COLUMN", help="Survey method / source column."),
+    region: Optional[Path] = typer.Option(_D.region, "--region", metavar="PATH", help="Polygon of the prediction region."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
     crs: Optional[str] = CRS_OPTION,
     id_column: Optional[str] = ID_OPTION,
     kind_column: Optional[str] = KIND_OPTION,
     zero_means: Optional[str] = ZERO_OPTION,
-    seed: int = typer.Option(0, "--seed", min=0, metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
-    null_splits: int = typer.Option(199, "--null-splits", metavar="N", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
+    seed: int = typer.Option(_D.seed, "--seed", min=0, metavar="N", help="Seed for the prediction-location sample and the random re-splits."),
+    null_splits: int = typer.Option(_D.null_splits, "--null-splits", metavar="N", help="Random re-splits per fold that the environment and collection-method rules compare the split with (at least 19)."),
     fail_on: Optional[str] = typer.Option(None, "--fail-on", metavar="CONDITION", help="'dependent': exit 1 when any fold is flagged."),
     out_dir: Path = typer.Option(..., "--out", metavar="PATH", help="Output folder."),
 ):
     """Audit a split for residual dependence between calibration and evaluation data."""
-    from splitter.workflow.audit import audit as run_audit
-    from splitter.io.foldtable import read_fold_table
-    from splitter.report.outputs import write_audit
+    from splitter.workflow.job import AUDIT, audit_step, read_step
 
     if fail_on not in (None, "dependent"):
         raise InputError(f"--fail-on {fail_on}: the only choice is 'dependent'.")
-    if null_splits < 19:
-        raise InputError(f"--null-splits {null_splits}: give at least 19 random re-splits (199 is the default).")
-    recs, assignment, names = read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
-                                           x=x, y=y, crs=crs, id_column=id_column, kind_column=kind_column, zero_means=zero_means)
+    options = _options(locals())
+    recs, assignment, names = read_step(table, options)
     _print_warnings(recs)
     with progress() as bar:
         bar.add_task("measuring distances and environmental overlap", total=None)
-        result, context = run_audit(assignment, env=env, covariates=covariate_column, range_km=range_km, range_from=range_from,
-                                    group_column=group_column, region=region, seed=seed, fold_names=names,
-                                    null_splits=null_splits)
-        context["command"] = command_line()
-        paths = write_audit(result, context, out_dir)
+        result, context, paths = audit_step(assignment, names, options, out_dir,
+                                            command=options.command(AUDIT, table, out_dir))
     _out().print(audit_table(result))
     if context.get("absences") is not None:
         _out().print(audit_table(context["absences"], "absences (evaluation absences to calibration absences)"))

@@ -52,7 +52,7 @@ class JobOptions:
     block_size: str | None = field(default=None, metadata=_opt("--block-size", "block_size", (DESIGN,)))
     buffer: float = field(default=0.0, metadata=_opt("--buffer", "float", (DESIGN,)))
     env: tuple = field(default=(), metadata=_opt("--env", "paths", READ))
-    covariate_column: tuple = field(default=(), metadata=_opt("--covariate-column", "names", (DESIGN,)))
+    covariate_column: tuple = field(default=(), metadata=_opt("--covariate-column", "names", READ))
     group_column: str | None = field(default=None, metadata=_opt("--group-column", "text", (DESIGN, AUDIT)))
     calibrate_on: str | None = field(default=None, metadata=_opt("--calibrate-on", "text", (DESIGN,)))
     evaluate_on: str | None = field(default=None, metadata=_opt("--evaluate-on", "text", (DESIGN,)))
@@ -62,6 +62,9 @@ class JobOptions:
     thin: str | None = field(default=None, metadata=_opt("--thin", "text", (DESIGN,)))
     generalise: float | None = field(default=None, metadata=_opt("--generalise", "float", (DESIGN,)))
     seed: int = field(default=0, metadata=_opt("--seed", "int", READ))
+    # Reading a fold table back (a user's own table names its fold or role column).
+    fold_column: str = field(default="fold", metadata=_opt("--fold-column", "text", (AUDIT, EVALUATE)))
+    role_column: str | None = field(default=None, metadata=_opt("--role-column", "text", (AUDIT,)))
     # Audit.
     audit: bool = field(default=True, metadata=_opt("", "yesno", ()))
     range_km: float | None = field(default=None, metadata=_opt("--range-km", "float", (AUDIT,)))
@@ -273,13 +276,14 @@ def design_step(records, options: JobOptions, out, *, command: str | None = None
     return assignment, checks, paths
 
 
-def read_step(table, options: JobOptions, *, fold_column: str | None = "fold", role_column: str | None = None):
+def read_step(table, options: JobOptions):
     """The fold table read back: records, assignment and fold names."""
     from splitter.io.foldtable import read_fold_table
 
     o = options
-    return read_fold_table(table, fold_column=None if role_column else fold_column, role_column=role_column,
-                           x=o.x, y=o.y, crs=o.crs, id_column=o.id_column, kind_column=o.kind_column)
+    return read_fold_table(table, fold_column=None if o.role_column else o.fold_column, role_column=o.role_column,
+                           x=o.x, y=o.y, crs=o.crs, id_column=o.id_column, kind_column=o.kind_column,
+                           zero_means=o.zero_means)
 
 
 def audit_step(assignment, fold_names, options: JobOptions, out_dir, *, command: str):
@@ -288,7 +292,10 @@ def audit_step(assignment, fold_names, options: JobOptions, out_dir, *, command:
     from splitter.workflow.audit import audit
 
     o = options
-    result, context = audit(assignment, env=list(o.env), range_km=o.range_km, range_from=o.range_from,
+    if o.null_splits < 19:
+        raise InputError(f"null_splits={o.null_splits}: give at least 19 random re-splits (199 is the default).")
+    result, context = audit(assignment, env=list(o.env), covariates=list(o.covariate_column), range_km=o.range_km,
+                            range_from=o.range_from,
                             group_column=o.group_column, region=o.region, seed=o.seed, fold_names=fold_names,
                             null_splits=o.null_splits)
     context["command"] = command
@@ -304,16 +311,19 @@ def evaluate_step(assignment, fold_names, options: JobOptions, out_dir, *, comma
 
     o = options
     out_dir = Path(out_dir)
+    if o.model is not None and o.model != "baseline":
+        raise InputError(f"model={o.model!r}: the built-in model is 'baseline' (pass other estimators from Python).")
+    if o.adjust not in ("holm", "none"):
+        raise InputError(f"adjust={o.adjust!r}: use 'holm' (Holm's adjustment across folds) or 'none'.")
     result = evaluate(assignment, predictions=o.predictions, prediction_table=o.prediction_table, model=o.model,
-                      env=list(o.env), region=o.region, threshold=o.threshold, omission=o.omission,
+                      env=list(o.env), covariates=list(o.covariate_column), region=o.region, threshold=o.threshold, omission=o.omission,
                       replicates=o.replicates, alpha=o.alpha, adjust=o.adjust, seed=o.seed,
                       prediction_dir=out_dir / "predictions" if o.model else None, fold_names=fold_names,
                       progress=progress)
     extra = {"command": command}
     if fold_table is not None:
         extra["fold_table"] = str(fold_table)
-    paths = write_evaluation(result, out_dir, extra=extra)
-    return result, paths
+    return result, write_evaluation(result, out_dir, extra=extra)
 
 
 def run_job(records, options: JobOptions, out_dir, *, final_dir=None, root=None, check=None) -> JobResult:
