@@ -224,24 +224,27 @@ def main(version: bool = typer.Option(False, "--version", callback=version_callb
 
 
 def fold_summary_table(assignment, title: str):
+    """Records per fold and kind, within 80 columns (one letter per kind, with a legend)."""
     import numpy as np
 
     counts = assignment.counts()
     kept = assignment.fold >= 0
     # A column per kind the records hold: absences are never shown as background.
     kinds = ["presence"] + [k for k in ("absence", "background") if np.any(kept & (assignment.kind == k))]
+    letter = {"presence": "P", "absence": "A", "background": "B"}
     t = _table(title)
     t.add_column("fold", justify="right")
-    for role, short in (("evaluation", "eval"), ("calibration", "calib")):
+    for short in ("eval", "calib"):
         for k in kinds:
-            t.add_column(f"{short} {k}", justify="right")
-    t.add_column("in buffer gap", justify="right")
+            t.add_column(f"{short} {letter[k]}", justify="right")
+    t.add_column("buffer gap", justify="right")
     show = counts if len(counts) <= 25 else counts.head(25)
     for r in show.to_dict(orient="records"):
         t.add_row(str(r["fold"]), *[str(r[f"{role}_{k}"]) for role in ("evaluation", "calibration") for k in kinds],
                   str(r["gap"]))
-    if len(counts) > 25:
-        t.caption = f"... {len(counts) - 25} more folds in the sidecar"
+    legend = {"presence": "P presences", "absence": "A absences", "background": "B background"}
+    t.caption = (", ".join(legend[k] for k in kinds) + "; buffer gap: records left out of the fold's calibration set"
+                 + (f"; {len(counts) - 25} more folds in the sidecar" if len(counts) > 25 else ""))
     return t
 
 
@@ -556,21 +559,30 @@ def range_command(
 
 
 def audit_table(result, what: str = "presences"):
-    t = _table(f"residual dependence per fold, {what}: {result.verdict}")
-    cols = ("fold", "n eval", "NN median km", "share < range", "W1 km", "Schoener D (null share)", "outside env.",
-            "shared method (null share)", "verdict", "why")
-    for c in cols:
-        t.add_column(c, justify="left" if c in ("fold", "verdict", "why") else "right")
+    """Per-fold dependence within 80 columns; why a fold was flagged goes under the table."""
+    from rich import box
+
+    t = _table(f"residual dependence per fold, {what}: {result.verdict}", box=box.SIMPLE_HEAD, padding=(0, 1),
+               caption_justify="left")
+    for c in ("fold", "n", "NN km", "<range", "W1 km", "D", "out", "method", "verdict"):
+        t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
     f = result.to_frame()
     num = lambda v, d=2: "-" if v is None or v != v else f"{v:.{d}f}"
-    with_null = lambda v, share: num(v) if share != share else f"{num(v)} ({num(share)})"
+    with_null = lambda v, share: num(v) if share != share else f"{num(v)} ({100 * share:.0f}%)"
+    why = []
     for i, r in enumerate(f.itertuples()):
-        why = ", ".join(result.fired(i)) or (result.notes[i] if r.verdict == "insufficient" else "")
-        t.add_row(str(r.fold), str(r.n_evaluation), num(r.nn_median_km, 1), num(r.share_within_range), num(r.wasserstein_km, 1),
-                  with_null(r.schoener_d, r.schoener_d_null_share), num(r.share_outside_envelope),
-                  with_null(r.shared_method_share, r.shared_method_null_share), r.verdict, why)
-    t.caption = ("null share: share of random re-splits of the fold's records at least as dependent as the split "
-                 "(better than random when at least the rule's threshold)")
+        reason = ", ".join(result.fired(i)) or (result.notes[i] if r.verdict == "insufficient" else "")
+        if reason:
+            why.append(f"fold {r.fold}: {reason}")
+        t.add_row(str(r.fold), str(r.n_evaluation), num(r.nn_median_km, 1), num(r.share_within_range),
+                  num(r.wasserstein_km, 1), with_null(r.schoener_d, r.schoener_d_null_share),
+                  num(r.share_outside_envelope), with_null(r.shared_method_share, r.shared_method_null_share),
+                  r.verdict)
+    t.caption = ("NN km: median distance from an evaluation record to the nearest calibration record; <range: "
+                 "share of them within the range; W1: distance-distribution mismatch; D: Schoener's D; out: share "
+                 "outside the calibration envelope; method: shared survey methods; (x%): share of random "
+                 "re-splits at least as dependent (better than random when at least the rule's threshold)"
+                 + ("".join(f"\n{w}" for w in why)))
     return t
 
 
@@ -610,7 +622,7 @@ def audit(
                                             command=options.command(AUDIT, table, out_dir))
     _out().print(audit_table(result))
     if context.get("absences") is not None:
-        _out().print(audit_table(context["absences"], "absences (evaluation absences to calibration absences)"))
+        _out().print(audit_table(context["absences"], "absences to absences"))
     _out().print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
         _out().print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")

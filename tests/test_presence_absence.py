@@ -74,7 +74,7 @@ def test_absences_are_balanced_and_reported_as_absences(survey_folds):
     assert side["parameters"]["absence_imbalance"] == pytest.approx(expected)
     assert "background_imbalance" not in side["parameters"]
     assert [f["evaluation_absence"] for f in side["folds"]] == per_fold.tolist()
-    assert "eval absence" in stdout and "background" not in stdout
+    assert "eval A" in stdout and "A absences" in stdout and "background" not in stdout and " B " not in stdout
     assert f"absences {expected:.3f}" in stdout
 
 
@@ -155,7 +155,7 @@ def test_audit_uses_site_covariates_and_audits_absences_too(survey_folds, tmp_pa
             nn = [geod.inv(np.full(cal.size, lon[i]), np.full(cal.size, lat[i]), lon[cal], lat[cal])[2].min() / 1000
                   for i in ev]
             assert table.loc[f, "nn_median_km"] == pytest.approx(np.median(nn), rel=1e-6)
-    assert "absences (evaluation absences to calibration absences)" in res.stdout
+    assert "per fold, absences to absences" in res.stdout
 
 
 def test_baseline_from_site_covariate_columns_is_fitted_on_calibration_presences_and_absences(survey_folds, tmp_path):
@@ -186,7 +186,7 @@ def test_zero_means_background_gives_pseudo_measures(tmp_path):
               "--out", tmp_path / "folds.csv")
     assert res.exit_code == 0, res.output
     folds = pd.read_csv(tmp_path / "folds.csv", dtype=str, keep_default_na=False)
-    assert set(folds["kind"]) == {"presence", "background"} and "eval background" in res.stdout
+    assert set(folds["kind"]) == {"presence", "background"} and "eval B" in res.stdout and "B background" in res.stdout
     _pred_table(tmp_path, df, folds)
     res = run("evaluate", tmp_path / "folds.csv", "--prediction-table", tmp_path / "preds.csv", "--replicates", 99,
               "--out", tmp_path / "ev")
