@@ -106,10 +106,15 @@ def binomial_test(successes, n, p) -> BinomialResult:
 def area_predicted(values, weights, threshold: float) -> float:
     """Weighted share of cells predicted present (value >= threshold).
 
+    One entry point for cells in memory and cells streamed from a raster.
+
     Parameters
     ----------
-    values : array_like of float
-        Predicted suitability of the valid cells of the testing region (nodata removed).
+    values : array_like of float, or cells
+        Predicted suitability of the valid cells of the testing region (nodata
+        removed); or a :class:`~splitter.evaluate.cells.CellSource`, a function
+        returning blocks or a list of blocks (a raster read in windows), streamed
+        once (``weights`` then come with the blocks).
     weights : array_like of float or None
         Cell areas (e.g. from :func:`splitter.evaluate.cell_areas`), same length;
         None gives every cell the same weight.
@@ -125,7 +130,15 @@ def area_predicted(values, weights, threshold: float) -> float:
     --------
     >>> area_predicted([0.1, 0.6, 0.9], [1.0, 1.0, 2.0], 0.5)
     0.75
+    >>> area_predicted([(np.array([0.1, 0.6]), None), (np.array([0.9]), None)], None, 0.5)  # two blocks
+    0.6666666666666666
     """
+    from splitter.evaluate.boyce import _streamed
+
+    if _streamed(values):
+        from splitter.evaluate.cells import as_cells, summarise_surface
+
+        return float(summarise_surface(as_cells(values), np.array([float(threshold)])).area_share_at(threshold))
     v = np.asarray(values, dtype=float).ravel()
     if v.size == 0:
         raise InputError("No cell values were given; the testing region has no valid cells.")

@@ -112,30 +112,41 @@ def _merge_rounding_ties(ratios: np.ndarray, rel: float = 1e-10) -> np.ndarray:
 
 def boyce_index(
     presence_scores,
-    reference_values,
+    reference_values=None,
     reference_weights=None,
     width_share: float = 0.1,
     step_share: float = 0.01,
     value_range=None,
+    *,
+    surface=None,
 ) -> BoyceResult:
     """Continuous Boyce index of evaluation presences against the testing region.
+
+    One entry point for cells in memory and cells streamed from a raster.
 
     Parameters
     ----------
     presence_scores : array_like of float
         Predictions at evaluation presences.
-    reference_values : array_like of float
+    reference_values : array_like of float, or cells
         Predictions over the testing region (cells) or at background points: the
-        expected distribution.
+        expected distribution. Also a :class:`~splitter.evaluate.cells.CellSource`,
+        a function returning blocks or a list of blocks (a raster read in windows,
+        e.g. ``lambda: valid_cells(path)``): then the cells are streamed, once for
+        their range (unless ``value_range`` is given) and once for the windows.
     reference_weights : array_like of float, optional
-        Cell areas for raster cells; None weights them equally.
+        Cell areas for raster cells given as an array; None weights them equally.
     width_share : float, default 0.1
         Window width as a share of the suitability range, in (0, 1].
     step_share : float, default 0.01
         Step between window starts as a share of the range (the last window is
         aligned to end at the top of the range, so the step may shrink slightly).
     value_range : (float, float), optional
-        Suitability range; default the min and max of ``reference_values``.
+        Suitability range; default the min and max of the reference values.
+    surface : SuitabilitySurface, optional
+        The cells already summarised for the window edges (by
+        :func:`splitter.evaluate.surface.evaluate_surface`, which shares one pass
+        among the tests); the cells are then not read again.
 
     Returns
     -------
@@ -148,14 +159,21 @@ def boyce_index(
     >>> presences = np.sqrt(rng.random(500))  # more presences where suitability is high
     >>> round(boyce_index(presences, cells).statistic, 1)
     1.0
+    >>> blocks = [cells[:9000], cells[9000:]]  # the same cells, streamed in two blocks
+    >>> round(boyce_index(presences, blocks).statistic, 1)
+    1.0
     """
     pres = np.asarray(presence_scores, dtype=float).ravel()
-    ref = np.asarray(reference_values, dtype=float).ravel()
     if pres.size == 0:
         raise InputError("There are no evaluation presences; the Boyce index needs at least one.")
+    if not np.all(np.isfinite(pres)):
+        raise InputError("Some scores are missing or infinite; drop nodata cells and those records first.")
+    if surface is not None or _streamed(reference_values):
+        return _boyce_streamed(pres, reference_values, width_share, step_share, value_range, surface)
+    ref = np.asarray(reference_values, dtype=float).ravel()
     if ref.size == 0:
         raise InputError("There are no reference values (cells or background) for the Boyce index.")
-    if not (np.all(np.isfinite(pres)) and np.all(np.isfinite(ref))):
+    if not np.all(np.isfinite(ref)):
         raise InputError("Some scores are missing or infinite; drop nodata cells and those records first.")
     if reference_weights is None:
         w = np.ones_like(ref)
@@ -171,6 +189,41 @@ def boyce_index(
     ref_sorted = ref[order]
     expected = _window_weight(ref_sorted, w[order], starts, ends) / w.sum()
     return _from_expected(pres, starts, ends, width, expected)
+
+
+def _streamed(cells) -> bool:
+    """Cells given as a source, a function returning blocks or a list of blocks (not one array)."""
+    from splitter.evaluate.cells import CellSource
+
+    return (isinstance(cells, CellSource) or callable(cells)
+            or (isinstance(cells, list) and bool(cells) and not np.isscalar(cells[0])))
+
+
+def _boyce_streamed(pres, cells, width_share, step_share, value_range, surface) -> BoyceResult:
+    from splitter.evaluate.cells import as_cells, summarise_surface, surface_range
+
+    if surface is None:
+        source = as_cells(cells)
+        lo, hi = surface_range(source) if value_range is None else value_range
+        starts, ends, width = _windows(lo, hi, width_share, step_share)
+        surface = summarise_surface(source, np.unique(np.concatenate([starts, ends])))
+    else:
+        lo, hi = (surface.value_min, surface.value_max) if value_range is None else value_range
+        starts, ends, width = _windows(lo, hi, width_share, step_share)
+    # Cells in [start, end] fill the slots from "equal to start" (2j + 1) to "equal
+    # to end" (2k + 1). Each window sums its own slots (as the in-memory path sums its
+    # own pieces) rather than differencing running totals, which would cancel badly for
+    # small windows; zero slots are left out so that windows holding the same cells
+    # add the same numbers in the same order and tie exactly.
+    first = 2 * surface._positions(starts, "Boyce window start") + 1
+    last = 2 * surface._positions(ends, "Boyce window end") + 2
+    slots = surface.slot_weights
+    weight = np.array([_nonzero_sum(slots[a:b]) for a, b in zip(first, last)])
+    return _from_expected(pres, starts, ends, width, weight / surface.total_weight)
+
+
+def _nonzero_sum(x: np.ndarray) -> float:
+    return float(x[x != 0.0].sum())
 
 
 def _window_weight(sorted_values: np.ndarray, sorted_weights: np.ndarray, starts: np.ndarray, ends: np.ndarray):

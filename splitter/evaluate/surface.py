@@ -51,7 +51,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from splitter.errors import InputError
-from splitter.evaluate.boyce import BoyceResult, _from_expected, _windows
+from splitter.evaluate.boyce import BoyceResult, _windows, boyce_index
 from splitter.evaluate.cells import (
     SuitabilitySurface,
     _finite_scores,
@@ -67,7 +67,6 @@ __all__ = [
     "surface_queries",
     "surface_range",
     "summarise_surface",
-    "boyce_from_surface",
     "evaluate_surface",
 ]
 
@@ -162,63 +161,6 @@ def surface_queries(presence_scores=(), thresholds=(), boyce_range=None, width_s
 # ----------------------------------------------------------------------------- tests
 
 
-def boyce_from_surface(
-    surface: SuitabilitySurface,
-    presence_scores,
-    width_share: float = 0.1,
-    step_share: float = 0.01,
-    value_range=None,
-) -> BoyceResult:
-    """Continuous Boyce index from a streamed surface; as :func:`splitter.evaluate.boyce_index`.
-
-    Parameters
-    ----------
-    surface : SuitabilitySurface
-        Summarised for the window edges, i.e. with
-        ``surface_queries(boyce_range=value_range or (value_min, value_max), ...)``.
-    presence_scores : array_like of float
-        Predictions at evaluation presences.
-    width_share, step_share, value_range
-        As in :func:`splitter.evaluate.boyce_index`; the default range is the cells'
-        min and max (``surface.value_min``, ``surface.value_max``).
-
-    Returns
-    -------
-    BoyceResult
-
-    Examples
-    --------
-    >>> rng = np.random.default_rng(0)
-    >>> cells, presences = rng.random(20_000), np.sqrt(rng.random(500))
-    >>> lo, hi = surface_range([cells])
-    >>> s = summarise_surface([cells[:9000], cells[9000:]], surface_queries(boyce_range=(lo, hi)))
-    >>> round(boyce_from_surface(s, presences).statistic, 1)
-    1.0
-    """
-    pres = np.asarray(presence_scores, dtype=np.float64).ravel()
-    if pres.size == 0:
-        raise InputError("There are no evaluation presences; the Boyce index needs at least one.")
-    if not np.all(np.isfinite(pres)):
-        raise InputError("Some scores are missing or infinite; drop nodata cells and those records first.")
-    lo, hi = (surface.value_min, surface.value_max) if value_range is None else value_range
-    starts, ends, width = _windows(lo, hi, width_share, step_share)
-    # Cells in [start, end] fill the slots from "equal to start" (2j + 1) to "equal
-    # to end" (2k + 1). Each window sums its own slots (as boyce_index sums its own
-    # pieces) rather than differencing running totals, which would cancel badly for
-    # small windows; zero slots are left out so that windows holding the same cells
-    # add the same numbers in the same order and tie exactly.
-    first = 2 * surface._positions(starts, "Boyce window start") + 1
-    last = 2 * surface._positions(ends, "Boyce window end") + 2
-    slots = surface.slot_weights
-    weight = np.array([_nonzero_sum(slots[a:b]) for a, b in zip(first, last)])
-    expected = weight / surface.total_weight
-    return _from_expected(pres, starts, ends, width, expected)
-
-
-def _nonzero_sum(x: np.ndarray) -> float:
-    return float(x[x != 0.0].sum())
-
-
 def evaluate_surface(
     cells,
     presence_scores,
@@ -293,6 +235,7 @@ def evaluate_surface(
     proc = partial_roc(source, pres, omission=omission, replicates=replicates, sample_share=sample_share,
                        seed=seed, surface=surface)
     shares = np.array([surface.area_share_at(t) for t in thr])
-    boyce_result = boyce_from_surface(surface, pres, width_share, step_share, boyce_range) if boyce else None
+    boyce_result = (boyce_index(pres, width_share=width_share, step_share=step_share, value_range=boyce_range,
+                                surface=surface) if boyce else None)
     return SurfaceEvaluation(thresholds=thr, area_shares=shares, partial_roc=proc, boyce=boyce_result,
                              surface=surface)

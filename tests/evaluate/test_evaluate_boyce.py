@@ -88,3 +88,22 @@ def test_bad_input():
         boyce_index([0.1], [0.1, 0.5], width_share=0.0)
     with pytest.raises(InputError):
         boyce_index([0.1], [0.1, 0.5], reference_weights=[1.0])
+
+
+def test_one_entry_point_for_cells_in_memory_and_streamed():
+    # Consistency between our two paths (the outside checks of the Boyce value are above):
+    # the same cells as one array, as a list of weighted blocks and as a CellSource give
+    # the same index, and area_predicted likewise.
+    from splitter.evaluate import area_predicted
+    from splitter.evaluate.cells import CellSource
+
+    rng = np.random.default_rng(5)
+    cells, areas = rng.random(30_000), rng.uniform(0.5, 1.5, 30_000)
+    presences = np.sqrt(rng.random(300))
+    want = boyce_index(presences, cells, areas)
+    blocks = [(cells[i:i + 7000], areas[i:i + 7000]) for i in range(0, cells.size, 7000)]
+    for streamed in (blocks, CellSource.from_array(cells, areas, block=4096), lambda: iter(blocks)):
+        got = boyce_index(presences, streamed)
+        assert got.statistic == pytest.approx(want.statistic, abs=1e-12)
+        assert np.allclose(got.ratios, want.ratios, rtol=1e-9)
+        assert area_predicted(streamed, None, 0.4) == pytest.approx(area_predicted(cells, areas, 0.4), abs=1e-12)

@@ -25,7 +25,6 @@ from splitter.errors import InputError
 from splitter.evaluate import area_predicted, boyce_index, partial_roc
 from splitter.evaluate.boyce import _windows
 from splitter.evaluate.surface import (
-    boyce_from_surface,
     evaluate_surface,
     summarise_surface,
     surface_queries,
@@ -178,7 +177,7 @@ def test_boyce_ties_are_ties_whatever_the_summation_order():
     assert boyce_index(presences, cells).statistic == pytest.approx(ref, abs=1e-12)  # reference: scipy spearmanr, exact ratios
     s = summarise_surface([cells[i : i + 700] for i in range(0, 3000, 700)],
                           surface_queries(boyce_range=(cells.min(), cells.max())))
-    assert boyce_from_surface(s, presences).statistic == pytest.approx(ref, abs=1e-12)  # reference: as above
+    assert boyce_index(presences, surface=s).statistic == pytest.approx(ref, abs=1e-12)  # reference: as above
 
 
 def test_bad_input_raises_clear_errors():
@@ -189,7 +188,7 @@ def test_bad_input_raises_clear_errors():
     with pytest.raises(InputError, match="not one of the values"):
         partial_roc([cells], [0.5, 0.71], surface=s)
     with pytest.raises(InputError, match="not one of the values"):
-        boyce_from_surface(s, [0.5])  # summarised without the Boyce windows
+        boyce_index([0.5], surface=s)  # summarised without the Boyce windows
     with pytest.raises(InputError, match="all cell values of the testing region are equal".capitalize()):
         evaluate_surface([np.full(10, 0.4)], [0.4])
     with pytest.raises(InputError, match="No cell values"):
