@@ -4,6 +4,7 @@ import warnings
 
 import numpy as np
 import pytest
+import skgstat as skg
 from scipy import stats
 
 from splitter.errors import InputError
@@ -90,7 +91,6 @@ def test_mean_and_sd_of_one_large_field():
     ("gaussian", np.sqrt(4.0 / np.log(20.0))),
 ])
 def test_fitted_variogram_range_matches(model, skgstat_factor):
-    skg = pytest.importorskip("skgstat")
     range_km = 15.0
     z = gaussian_field((200, 200), 1.0, range_km, seed=3, model=model)
     rng = np.random.default_rng(11)
