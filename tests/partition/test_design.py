@@ -74,8 +74,10 @@ def test_blocks_balance_presences_and_same_seed_gives_identical_files(tmp_path):
         outs[-1]["design"] = p["design"].read_text().replace(str(tmp_path / f"run{run}"), "")
     assert outs[0] == outs[1]
     counts = a.counts()["evaluation_presence"]
-    # common practice: balanced folds; the greedy deal gets within one block's count
-    assert counts.max() - counts.min() <= 40
+    # analytic: 240 presences over 5 folds can be dealt 48 each; the best of balance_cells' 64 seeded
+    # greedy deals reaches that optimum here (measured at seeds 1, 2, 3, 7 and 8: exact every time)
+    assert counts.sum() == 240 and counts.tolist() == [48] * 5
+    assert a.parameters["presence_imbalance"] == 0.0  # (largest - smallest) / mean, documented in balance.py
     b = splitter.design(path, method="blocks", folds=5, block_size=40, buffer=10, seed=8)
     assert not np.array_equal(a.fold, b.fold)
 
