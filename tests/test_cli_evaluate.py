@@ -13,6 +13,7 @@ from typer.testing import CliRunner
 from splitter.cli import app
 from splitter.io.rasters import write_geotiff
 from tests.conftest import write_records_csv
+from tests.images import drawn_share, pixels
 from tests.reference_areas import geodesic_row_areas_km2
 from tests.test_cli_design import assert_one_line_error
 
@@ -63,7 +64,10 @@ def test_baseline_model_on_the_demo(demo_folds, tmp_path):
     assert ev.fold.astype(str).tolist() == ["1", "2", "3", "4", "all"]
     assert list(ev.columns).index("significant") < list(ev.columns).index("auc")  # significance first
     assert len(list((tmp_path / "ev" / "predictions").glob("fold_*.tif"))) == 4
-    assert len(list((tmp_path / "ev" / "figures").glob("roc_fold_*.png"))) == 4
+    rocs = [pixels(p) for p in sorted((tmp_path / "ev" / "figures").glob("roc_fold_*.png"))]
+    assert len(rocs) == 4 and all(drawn_share(img) > 0.02 for img in rocs)  # drawn, not blank
+    # four folds, four different curves: distinct inputs give distinct pixels
+    assert all(a.shape != b.shape or np.any(a != b) for i, a in enumerate(rocs) for b in rocs[i + 1:])
     folds = ev[ev.fold != "all"]
     for r in folds.itertuples():
         # reference: scipy.stats.binomtest, one-tailed
