@@ -149,7 +149,7 @@ def test_every_run_done_and_the_broken_one_reported(first):
         assert (d / "folds.gaps.csv").is_file() == bool(spec.get("buffer"))
         row = table[table.run == run].iloc[0]
         folds = pd.read_csv(d / "folds.csv", dtype=str, keep_default_na=False)
-        # reference: the run's own fold table (DESIGN §3.2: kept rows have a fold, presences have kind 'presence')
+        # consistency: batch.csv against the run's own fold table (DESIGN §3.2: kept rows have a fold)
         assert int(row.n_presence) == int(((folds.fold != "") & (folds.kind == "presence")).sum())
         src = pd.read_csv(first["base"] / "inputs" / spec["records"], dtype=str)
         # reference: every input row is carried to the fold table (DESIGN §3.2), background file rows appended
@@ -158,11 +158,11 @@ def test_every_run_done_and_the_broken_one_reported(first):
         if evaluates:
             ev = pd.read_csv(d / "evaluation" / "evaluation.csv", dtype=str)
             ev = ev[ev.fold != "all"]
-            # reference: the run's own evaluation.csv
+            # consistency: batch.csv against the run's own evaluation.csv
             assert int(row.folds_significant) == (ev.significant == "True").sum()
             assert int(row.folds_evaluated) == len(ev)
         if spec.get("audit") != "no":
-            # reference: the run's own audit.json
+            # consistency: batch.csv against the run's own audit.json
             assert row.audit_verdict == json.loads((d / "audit" / "audit.json").read_text())["verdict"]
         # paths written inside the outputs name the final folder, never the temporary one
         for js in d.rglob("*.json"):
@@ -194,7 +194,7 @@ def test_outputs_equal_the_single_commands(first, tmp_path):
     _cli("audit", d / "folds.csv", *env_args, "--range-km", 100, "--seed", 17, "--out", d / "audit")
     _cli("evaluate", d / "folds.csv", "--model", "baseline", *env_args, "--replicates", 50, "--seed", 17, "--out", d / "evaluation")
     for rel in ("folds.csv", "audit/audit.csv", "evaluation/evaluation.csv", "evaluation/predictions/fold_1.tif"):
-        # reference: the single commands' output files
+        # consistency: byte-equal to the single commands' output files
         assert (out / "sp17" / rel).read_bytes() == (d / rel).read_bytes(), rel
     # sp01: blocks with a buffer (gaps file), through the commands.
     d = tmp_path / "sp01"
@@ -218,7 +218,7 @@ def test_outputs_equal_the_single_commands(first, tmp_path):
     ev = evaluate(a, prediction_table=ins / "pred14.csv", replicates=50, seed=14, fold_names=names)
     write_evaluation(ev, d / "evaluation")
     for rel in ("folds.csv", "audit/audit.csv", "evaluation/evaluation.csv"):
-        assert (out / "sp14" / rel).read_bytes() == (d / rel).read_bytes(), rel  # reference: the API calls
+        assert (out / "sp14" / rel).read_bytes() == (d / rel).read_bytes(), rel  # consistency: the API calls
 
 
 def test_a_rerun_does_no_work(first, cluster):

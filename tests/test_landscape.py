@@ -79,7 +79,7 @@ def test_bundled_demo_data_is_up_to_date(demo):
         )
     for name in RASTERS:
         with rasterio.open(BUNDLED / f"{name}.tif") as a, rasterio.open(demo / f"{name}.tif") as b:
-            # reference: the generator's own output at DEFAULT_SEED, read back by rasterio
+            # consistency: the bundled files equal the generator's output at DEFAULT_SEED (read by rasterio)
             np.testing.assert_array_equal(a.read(1), b.read(1))
 
 

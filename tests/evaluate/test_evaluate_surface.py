@@ -116,7 +116,6 @@ def test_streamed_evaluation_equals_in_memory(raster, window_rows, omission):
     path, cells, areas, presences, thresholds = raster
     got = evaluate_surface(_blocks(path, window_rows), presences, thresholds, omission=omission,
                            replicates=300, seed=7)
-    # reference: the in-memory path on all cells (cell_values_and_areas)
     proc = got.partial_roc
     # reference: the plain polyline (tests/evaluate/reference_partial_roc.py) for the observed ratio
     observed = partial_roc_reference(cells, presences, np.arange(presences.size)[None, :], areas, omission)[0]
