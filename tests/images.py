@@ -18,7 +18,8 @@ def pixels(png) -> np.ndarray:
 
 def drawn_share(img: np.ndarray) -> float:
     """Share of pixels that are not the background colour (the most common pixel)."""
-    flat = img.reshape(-1, img.shape[-1])
-    colours, counts = np.unique(flat, axis=0, return_counts=True)
-    background = colours[np.argmax(counts)]
-    return float(np.mean(np.any(flat != background, axis=1)))
+    u8 = np.round(img * 255).astype(np.int64) if img.dtype.kind == "f" else img.astype(np.int64)
+    flat = u8.reshape(-1, u8.shape[-1])
+    packed = flat @ (256 ** np.arange(flat.shape[1], dtype=np.int64))  # one integer per colour
+    colours, counts = np.unique(packed, return_counts=True)
+    return float(np.mean(packed != colours[np.argmax(counts)]))

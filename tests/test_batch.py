@@ -28,7 +28,8 @@ from splitter.cli import batch_command, guarded
 from splitter.errors import InputError
 from tests.conftest import write_records_csv
 
-pytestmark = pytest.mark.slow
+# One worker runs this module, so its Dask cluster and first batch are made once (pytest-xdist --dist loadgroup).
+pytestmark = [pytest.mark.slow, pytest.mark.xdist_group("batch")]
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_data"
 ENV = [DEMO / "temperature.tif", DEMO / "moisture.tif", DEMO / "canopy.tif"]
@@ -323,7 +324,7 @@ def _slow_manifest(folder: Path, n=6) -> Path:
     lines = ["run,records,method,folds,env,seed,model,replicates,range_km"]
     for i in range(n):
         write_records_csv(folder / f"s{i}.csv", n_presence=70, n_background=60, seed=i, lon0=-38.0, lat0=45.0)
-        lines.append(f"s{i},s{i}.csv,random,5,{ENV_CELL},{i},baseline,300,100")
+        lines.append(f"s{i},s{i}.csv,random,5,{ENV_CELL},{i},baseline,100,100")
     (folder / "m.csv").write_text("\n".join(lines) + "\n")
     return folder / "m.csv"
 
