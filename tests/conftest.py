@@ -47,18 +47,31 @@ class DemoCommand:
 
 @pytest.fixture(scope="session")
 def demo_command(tmp_path_factory) -> DemoCommand:
-    """The whole demo, run once per session through the command line (the newcomer's path).
+    """The whole demo, run once per test session through the command line (the newcomer's path).
 
     The demo test reads its terminal output; the report, browser and notebook tests read its
     folder (``demo_run``). ``run_demo`` builds its own appendix at the end (``<run>/appendix``).
     """
+    import fcntl
+    import json
+    import os
+
     from typer.testing import CliRunner
 
     from splitter.cli import app
 
-    out = tmp_path_factory.mktemp("demo") / "run"
-    res = CliRunner().invoke(app, ["demo", str(out), "--replicates", "100"])
-    return DemoCommand(out, res.output, res.exit_code)
+    # Under pytest-xdist every worker has its own basetemp inside the session's folder; the demo is
+    # made once in that shared folder, under an exclusive flock, and the other worker reads it.
+    base = tmp_path_factory.getbasetemp()
+    shared = base.parent if os.environ.get("PYTEST_XDIST_WORKER") else base
+    out, record = shared / "demo-run" / "run", shared / "demo-run.json"
+    with open(shared / "demo-run.lock", "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)  # released when the file is closed
+        if not record.exists():
+            res = CliRunner().invoke(app, ["demo", str(out), "--replicates", "100"])
+            record.write_text(json.dumps({"output": res.output, "exit_code": res.exit_code}))
+    done = json.loads(record.read_text())
+    return DemoCommand(out, done["output"], done["exit_code"])
 
 
 @pytest.fixture(scope="session")

@@ -5,10 +5,6 @@ import json
 import pandas as pd
 import pytest
 
-# One worker runs every test that reads the session demo run (pytest-xdist --dist loadgroup),
-# so the demo is made once.
-pytestmark = pytest.mark.xdist_group("demo")
-
 
 def test_demo_runs_end_to_end(demo_command):
     # demo_command (tests/conftest.py): `splitter demo OUT --replicates 100`, run once per session

@@ -16,9 +16,6 @@ from scipy import stats
 from splitter.errors import InputError
 from splitter.landscape import DEFAULT_SEED, build_landscape, main, make_demo_data
 
-# One worker runs this module, so its landscape is built once (pytest-xdist --dist loadgroup).
-pytestmark = pytest.mark.xdist_group("landscape")
-
 BUNDLED = Path(__file__).resolve().parents[1] / "demo_data"
 RASTERS = ["temperature", "moisture", "canopy"]
 EXPECTED_FILES = {

@@ -8,10 +8,6 @@ import nbformat
 import pytest
 from nbclient import NotebookClient
 
-# One worker runs every test that reads the session demo run (pytest-xdist --dist loadgroup),
-# so the demo is made once.
-pytestmark = pytest.mark.xdist_group("demo")
-
 NB = Path(__file__).resolve().parent.parent / "notebooks" / "walkthrough.ipynb"
 
 

@@ -17,10 +17,6 @@ from splitter.errors import InputError
 from splitter.report.appendix import Appendix, build_appendix
 from tests.images import drawn_share, pixels
 
-# One worker runs every test that reads the session demo run (pytest-xdist --dist loadgroup),
-# so the demo is made once.
-pytestmark = pytest.mark.xdist_group("demo")
-
 SPLITS = ("blocks", "random")
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # reference: PNG specification (ISO/IEC 15948), file signature
 

@@ -11,10 +11,6 @@ from pathlib import Path
 
 import pytest
 
-# One worker runs every test that reads the session demo run (pytest-xdist --dist loadgroup),
-# so the demo is made once.
-pytestmark = pytest.mark.xdist_group("demo")
-
 CANDIDATES = ("chromium", "chromium-browser", "google-chrome", "google-chrome-stable")
 BROWSER = next((shutil.which(c) for c in CANDIDATES if shutil.which(c)), None)
 # The README calls the browser check optional on a contributor's machine; CI (.ci/run) sets

@@ -17,10 +17,6 @@ from splitter.report.appendix import build_appendix
 from splitter.report.maps import MapPlane, cell_grid, generalise_coordinates, map_extent
 from splitter.report.rundir import load_run
 
-# One worker runs every test that reads the session demo run (pytest-xdist --dist loadgroup),
-# so the demo is made once.
-pytestmark = pytest.mark.xdist_group("demo")
-
 
 def test_generalise_coordinates_snaps_to_cell_centres():
     x = np.array([0.0, 9.999, 10.0, -0.001, -10.0, np.nan])
