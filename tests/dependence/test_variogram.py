@@ -135,8 +135,10 @@ def test_estimate_range_chooses_and_summarises():
         assert fit.weighted_sse == min(f.weighted_sse for f in pair)
     # reference: numpy.median of the chosen effective ranges (rule in the module docstring)
     assert est.suggested_block_km == pytest.approx(np.median([f.range_km for f in est.best.values()]))
-    # reference: analytic range of the simulated covariance (25 km), single realisations -> loose
-    assert 12.0 < est.suggested_block_km < 50.0
+    # reference: analytic range of the simulated covariance (25 km). Measured over seeds 7..16 of
+    # these three fields: the suggestion ran 22.9-37.4 km (mean 26.5, sd 4.1), so 15-40 km allows
+    # the worst seed plus ~0.6 sd above and 2.5 sd below.
+    assert 15.0 < est.suggested_block_km < 40.0
     text = json.dumps(est.to_dict(), allow_nan=False)
     assert "suggested_block_km" in text
 
