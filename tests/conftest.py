@@ -1,6 +1,10 @@
-"""Shared fixtures: small invented record sets written to temporary files."""
+"""Shared fixtures: small invented record sets written to temporary files, and one demo run."""
 
 from __future__ import annotations
+
+import shutil
+from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -30,3 +34,56 @@ def write_records_csv(path, n_presence=240, n_background=160, seed=0, lon0=12.0,
 @pytest.fixture
 def records_csv(tmp_path):
     return write_records_csv(tmp_path / "records.csv")
+
+
+@dataclass(frozen=True)
+class DemoCommand:
+    """One `splitter demo OUT --replicates 100` run: its folder, terminal output and exit code."""
+
+    out: Path
+    output: str
+    exit_code: int
+
+
+@pytest.fixture(scope="session")
+def demo_command(tmp_path_factory) -> DemoCommand:
+    """The whole demo, run once per test session through the command line (the newcomer's path).
+
+    The demo test reads its terminal output; the report, browser and notebook tests read its
+    folder (``demo_run``). ``run_demo`` builds its own appendix at the end (``<run>/appendix``).
+    """
+    import fcntl
+    import json
+    import os
+
+    from typer.testing import CliRunner
+
+    from splitter.cli import app
+
+    # Under pytest-xdist every worker has its own basetemp inside the session's folder; the demo is
+    # made once in that shared folder, under an exclusive flock, and the other worker reads it.
+    base = tmp_path_factory.getbasetemp()
+    shared = base.parent if os.environ.get("PYTEST_XDIST_WORKER") else base
+    out, record = shared / "demo-run" / "run", shared / "demo-run.json"
+    with open(shared / "demo-run.lock", "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)  # released when the file is closed
+        if not record.exists():
+            res = CliRunner().invoke(app, ["demo", str(out), "--replicates", "100"])
+            record.write_text(json.dumps({"output": res.output, "exit_code": res.exit_code}))
+    done = json.loads(record.read_text())
+    return DemoCommand(out, done["output"], done["exit_code"])
+
+
+@pytest.fixture(scope="session")
+def demo_run(demo_command) -> Path:
+    """A complete run folder (range, blocks, random; audited and evaluated; appendix)."""
+    assert demo_command.exit_code == 0, demo_command.output
+    return demo_command.out
+
+
+@pytest.fixture
+def run_copy(demo_run, tmp_path):
+    """A private copy of the demo run without its appendix, to build from or to alter."""
+    dst = tmp_path / "run"
+    shutil.copytree(demo_run, dst, ignore=shutil.ignore_patterns("appendix"))
+    return dst

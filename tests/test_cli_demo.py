@@ -5,15 +5,12 @@ import json
 import pandas as pd
 import pytest
 
-from typer.testing import CliRunner
 
-from splitter.cli import app
-
-
-def test_demo_runs_end_to_end(tmp_path):
-    res = CliRunner().invoke(app, ["demo", str(tmp_path / "d"), "--replicates", "100"])
+def test_demo_runs_end_to_end(demo_command):
+    # demo_command (tests/conftest.py): `splitter demo OUT --replicates 100`, run once per session
+    res = demo_command
     assert res.exit_code == 0, res.output
-    out = tmp_path / "d"
+    out = res.out
     for split in ("blocks", "random"):
         for f in ("folds.csv", "folds.design.json", "audit/audit.csv", "audit/audit.json", "audit/distance_ecdf.png",
                   "evaluation/evaluation.csv", "evaluation/evaluation.json"):

@@ -4,6 +4,7 @@ import json
 from pathlib import Path
 
 import numpy as np
+import pyproj
 import pytest
 import rasterio
 from rasterio.transform import from_origin
@@ -90,7 +91,66 @@ def test_every_method_runs_from_the_command_line(tmp_path, method, extra):
     import pandas as pd
 
     out = pd.read_csv(tmp_path / "f.csv", dtype=str, keep_default_na=False)
-    assert len(out) == 120
+    side = json.loads((tmp_path / "f.design.json").read_text())
+    # DESIGN §3.2: every input row, none dropped here (all records are valid), every one in a fold
+    assert len(out) == 120 and (out.dropped == "").all() and (out.fold != "").all()
+    assert side["method"] == method
+    fold = out.fold.astype(int).to_numpy()
+    pres = (out.kind == "presence").to_numpy()
+    if method == "checkerboard":
+        # Rebuild the grid from the sidecar (equal-area CRS, cell size, offset) with pyproj and numpy:
+        # cells i = floor((x - offset) / size) (partition/grid.py's documented lattice). Each cell holds
+        # one fold, and queen neighbours never share one (the checkerboard's promise, DESIGN §4).
+        assert set(fold) == {1, 2, 3, 4}
+        to_plane = pyproj.Transformer.from_crs("EPSG:4326", side["geometry_crs"], always_xy=True)
+        x, y = to_plane.transform(out.longitude.astype(float).to_numpy(), out.latitude.astype(float).to_numpy())
+        size, off = side["parameters"]["block_size_km"], side["parameters"]["grid_offset_km"]
+        i = np.floor((np.asarray(x) / 1000 - off[0]) / size).astype(int)
+        j = np.floor((np.asarray(y) / 1000 - off[1]) / size).astype(int)
+        cell_fold = {}
+        for a, b, f in zip(i, j, fold):
+            assert cell_fold.setdefault((a, b), f) == f  # one fold per cell
+        neighbours = [(a, b, da, db) for (a, b) in cell_fold for da in (-1, 0, 1) for db in (-1, 0, 1)
+                      if (da, db) != (0, 0) and (a + da, b + db) in cell_fold]
+        assert neighbours  # precondition: occupied cells do touch
+        assert all(cell_fold[(a, b)] != cell_fold[(a + da, b + db)] for a, b, da, db in neighbours)
+    elif method == "random":
+        # 80 presences and 40 background over 5 folds: 16 and 8 each when stratified by kind
+        for kind, each in (("presence", 16), ("background", 8)):
+            assert np.bincount(fold[(out.kind == kind).to_numpy()], minlength=6)[1:].tolist() == [each] * 5
+    elif method == "groups":
+        # one fold per survey method: presences of a fold share their method, and methods differ
+        methods = out[pres].groupby("fold").method.unique()
+        assert all(len(m) == 1 for m in methods) and len({m[0] for m in methods}) == 2
+    elif method == "holdout-group":
+        # calibration-only fold 0 = transect records, evaluation fold 1 = trap records
+        assert set(out[pres & (fold == 0)].method) == {"transect"} and set(out[pres & (fold == 1)].method) == {"trap"}
+    elif method == "leave-one-out":
+        # each presence is its own fold; background points are calibration-only (fold 0)
+        assert sorted(fold[pres]) == list(range(1, 81)) and set(fold[~pres]) == {0}
+        gaps = pd.read_csv(tmp_path / "f.gaps.csv", dtype=str)
+        # reference: pyproj.Geod, every gap record lies within the 15 km buffer of its fold's presence
+        geod = pyproj.Geod(ellps="WGS84")
+        where = out.set_index("record_id")[["longitude", "latitude", "fold"]].astype({"longitude": float, "latitude": float})
+        ev = where[where.fold != "0"].reset_index().set_index("fold")
+        g = where.loc[gaps.record_id]
+        e = ev.loc[gaps.fold]
+        _, _, d = geod.inv(g.longitude.to_numpy(), g.latitude.to_numpy(), e.longitude.to_numpy(), e.latitude.to_numpy())
+        assert len(gaps) > 0 and (d < 15_000).all()
+    elif method == "clusters":
+        # reference: sklearn.cluster.KMeans with the documented settings (cluster_folds: covariates
+        # standardised on the background, 10 starts seeded with --seed 0, fitted on the presences,
+        # every record to its nearest centre): the same partition up to fold labels
+        # (sklearn.metrics.adjusted_rand_score == 1).
+        from sklearn.cluster import KMeans
+        from sklearn.metrics import adjusted_rand_score
+
+        env = out[["longitude", "latitude"]].astype(float).to_numpy()
+        bg = env[~pres]
+        z = (env - bg.mean(0)) / bg.std(0)
+        km = KMeans(3, n_init=10, random_state=0).fit(z[pres])
+        assert set(fold) == {1, 2, 3}
+        assert adjusted_rand_score(km.predict(z), fold) == pytest.approx(1.0, abs=1e-12)
 
 
 def _raster(path, west, north, crs="EPSG:4326"):
@@ -210,11 +270,19 @@ def test_block_size_auto_uses_the_estimated_range(tmp_path):
               "--seed", 2, "--out", tmp_path / "f.csv")
     assert res.exit_code == 0, res.output
     side = json.loads((tmp_path / "f.design.json").read_text())
+    # Outside reference: demo_data/truth.json, the simulated effective ranges (moisture 150 km,
+    # canopy 40 km). The auto size is the median of the two covariates' estimated ranges, so it lies
+    # between them; each is estimated from one realisation, so we ask only that it lie between the
+    # true ranges (measured over seeds 0..4: 105-117 km).
+    truth = json.loads((DEMO / "truth.json").read_text())["covariates"]
+    true_km = sorted(truth[p.stem]["effective_range_km"] for p in env)
+    assert true_km[0] < side["block_size_km"] < true_km[1]
+    assert side["parameters"]["block_size_rule"] == "auto"
     import splitter
 
+    # Consistency check: the command uses the same estimate as the Python API with the same seed.
     est = splitter.estimate_range(env, seed=2)
     assert side["block_size_km"] == est.suggested_block_km
-    assert side["parameters"]["block_size_rule"] == "auto"
 
 
 def test_an_unexpected_error_is_one_line_and_exit_3(tmp_path, monkeypatch):

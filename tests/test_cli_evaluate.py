@@ -11,9 +11,10 @@ from sklearn.metrics import roc_auc_score
 from typer.testing import CliRunner
 
 from splitter.cli import app
-from splitter.evaluate.area import cell_areas
 from splitter.io.rasters import write_geotiff
 from tests.conftest import write_records_csv
+from tests.images import drawn_share, pixels
+from tests.reference_areas import geodesic_row_areas_km2
 from tests.test_cli_design import assert_one_line_error
 
 DEMO = Path(__file__).resolve().parent.parent / "demo_data"
@@ -63,7 +64,10 @@ def test_baseline_model_on_the_demo(demo_folds, tmp_path):
     assert ev.fold.astype(str).tolist() == ["1", "2", "3", "4", "all"]
     assert list(ev.columns).index("significant") < list(ev.columns).index("auc")  # significance first
     assert len(list((tmp_path / "ev" / "predictions").glob("fold_*.tif"))) == 4
-    assert len(list((tmp_path / "ev" / "figures").glob("roc_fold_*.png"))) == 4
+    rocs = [pixels(p) for p in sorted((tmp_path / "ev" / "figures").glob("roc_fold_*.png"))]
+    assert len(rocs) == 4 and all(drawn_share(img) > 0.02 for img in rocs)  # drawn, not blank
+    # four folds, four different curves: distinct inputs give distinct pixels
+    assert all(a.shape != b.shape or np.any(a != b) for i, a in enumerate(rocs) for b in rocs[i + 1:])
     folds = ev[ev.fold != "all"]
     for r in folds.itertuples():
         # reference: scipy.stats.binomtest, one-tailed
@@ -84,14 +88,17 @@ def test_user_prediction_rasters_match_sklearn_auc(demo_folds, tmp_path):
     folds = pd.read_csv(demo_folds, dtype=str, keep_default_na=False)
     with rasterio.open(pattern.format(fold=2)) as src:
         a = src.read(1, masked=True)
-        areas = np.repeat(cell_areas(src.transform, src.height, src.width, src.crs)[:, None], src.width, axis=1)
+        assert src.crs.to_epsg() == 4326  # WGS84 lon/lat: the ellipsoid reference_areas uses
+        # reference: pyproj.Geod.polygon_area_perimeter of each row's cell (tests/reference_areas.py)
+        areas = np.repeat(geodesic_row_areas_km2(src.transform, src.height)[:, None], src.width, axis=1)
         ev_p = folds[(folds.fold == "2") & (folds.kind == "presence")]
         pres = np.array([v[0] for v in src.sample(zip(ev_p.longitude.astype(float), ev_p.latitude.astype(float)))])
     cells = a.compressed()
     w = areas[~a.mask]
     y = np.r_[np.ones(pres.size), np.zeros(cells.size)]
-    # reference: sklearn.metrics.roc_auc_score with cell areas as sample weights
+    # reference: sklearn.metrics.roc_auc_score with pyproj.Geod cell areas as sample weights
     ref = roc_auc_score(y, np.r_[pres, cells], sample_weight=np.r_[np.full(pres.size, 1.0), w])
+    # abs=1e-9: the densified Geod outlines match exact ellipsoidal zone areas to ~1e-11 relative
     assert ev.auc[1] == pytest.approx(ref, abs=1e-9)
     # threshold "lowest" = the lowest prediction at fold 2's calibration presences (common practice),
     # computed here from the fold table, the gaps file and rasterio's own sampling
@@ -180,7 +187,8 @@ def test_region_polygon_cuts_the_testing_area(demo_folds, tmp_path):
         rows, cols = np.nonzero(~a.mask)
         xs, ys = rasterio.transform.xy(src.transform, rows, cols)
         inside = shapely.contains_xy(box(-44.0, 40.0, -38.0, 50.0), np.asarray(xs), np.asarray(ys))
-        areas = cell_areas(src.transform, src.height, src.width, src.crs)[rows]
+        assert src.crs.to_epsg() == 4326
+        areas = geodesic_row_areas_km2(src.transform, src.height)[rows]  # reference: pyproj.Geod (tests/reference_areas.py)
         ev_p = folds[(folds.fold == "1") & (folds.kind == "presence")]
         pres = np.array([v[0] for v in src.sample(zip(ev_p.longitude.astype(float), ev_p.latitude.astype(float)))])
     cells = a.data[rows, cols][inside]
@@ -188,7 +196,7 @@ def test_region_polygon_cuts_the_testing_area(demo_folds, tmp_path):
     y = np.r_[np.ones(pres.size), np.zeros(cells.size)]
     # reference: sklearn.metrics.roc_auc_score over the cells whose centres fall in the region (shapely)
     ref = roc_auc_score(y, np.r_[pres, cells], sample_weight=np.r_[np.ones(pres.size), w])
-    assert ev.auc[0] == pytest.approx(ref, abs=1e-9)
+    assert ev.auc[0] == pytest.approx(ref, abs=1e-9)  # abs: as in test_user_prediction_rasters_match_sklearn_auc
 
 
 def test_same_seed_gives_byte_identical_evaluation_and_audit(demo_folds, tmp_path):

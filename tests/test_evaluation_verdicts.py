@@ -94,17 +94,17 @@ def _poisson_binomial_tail(shares, s):
 
 
 def test_jackknife_decides_when_every_fold_holds_one_presence(tmp_path):
-    # 25 presences, each its own fold, with 40 background records per fold: the design
+    # 12 presences, each its own fold, with 30 background records per fold: the design
     # of a species known from few records (jackknife, Journal of Biogeography 2007).
-    df = _table(tmp_path, 25, 1, 40, seed=4)
-    _predictions(df, skilled_folds=set(range(1, 26)), seed=5).to_csv(tmp_path / "preds.csv", index=False)
+    df = _table(tmp_path, 12, 1, 30, seed=4)
+    _predictions(df, skilled_folds=set(range(1, 13)), seed=5).to_csv(tmp_path / "preds.csv", index=False)
     res = run("evaluate", tmp_path / "mine.csv", "--prediction-table", tmp_path / "preds.csv",
-              "--threshold", "quantile:0.1", "--replicates", 99, "--seed", 6, "--out", tmp_path / "ev")
+              "--threshold", "quantile:0.1", "--replicates", 19, "--seed", 6, "--out", tmp_path / "ev")
     assert res.exit_code == 0, res.output
     ev = pd.read_csv(tmp_path / "ev" / "evaluation.csv", dtype={"fold": str})
     folds, all_row = ev[ev.fold != "all"], ev[ev.fold == "all"].iloc[0]
     assert all_row.combined_test == "jackknife"
-    assert all_row.jackknife_n == 25 and all_row.jackknife_successes == folds.successes.sum()
+    assert all_row.jackknife_n == 12 and all_row.jackknife_successes == folds.successes.sum()
     want = _poisson_binomial_tail(folds.area_predicted.to_numpy(), int(folds.successes.sum()))
     assert all_row.jackknife_p == pytest.approx(want, rel=1e-10)  # reference: the DP above
     assert all_row.p_adjusted == all_row.jackknife_p

@@ -44,10 +44,25 @@ def _design(src: Path, out: Path, *extra, **popen):
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, **popen)
 
 
+def _held(lock: Path, pid: int) -> bool:
+    """Whether process ``pid`` holds a flock on ``lock``: read from Linux's /proc/locks (lines
+    "N: FLOCK ADVISORY WRITE pid major:minor:inode start end"), without touching the lock."""
+    try:
+        inode = lock.stat().st_ino
+    except FileNotFoundError:
+        return False
+    for line in Path("/proc/locks").read_text().splitlines():
+        f = line.split()
+        if len(f) >= 6 and f[1] == "FLOCK" and f[4] == str(pid) and f[5].rsplit(":", 1)[-1] == str(inode):
+            return True
+    return False
+
+
 @pytest.fixture(scope="module")
 def big_records(tmp_path_factory):
-    # Large enough that writing the fold table takes a noticeable time.
-    return _records(tmp_path_factory.mktemp("big") / "records.csv", 150_000)
+    # Large enough that writing the fold table takes a noticeable time (tens of milliseconds
+    # against a 5 ms poll), small enough that designing it takes a couple of seconds.
+    return _records(tmp_path_factory.mktemp("big") / "records.csv", 50_000)
 
 
 @pytest.mark.slow
@@ -76,11 +91,19 @@ def test_a_run_stopped_mid_write_leaves_no_partial_file(big_records, tmp_path, s
 def test_a_second_run_on_the_same_output_is_refused(big_records, tmp_path):
     out = tmp_path / "folds.csv"
     first = _design(big_records, out)
+    lock = tmp_path / ".folds.csv.lock"
     deadline = time.monotonic() + 60
-    while time.monotonic() < deadline and not (tmp_path / ".folds.csv.lock").exists():
+    while time.monotonic() < deadline and not _held(lock, first.pid):  # the file appears before its flock
         time.sleep(0.005)
-    second = _design(big_records, out)
-    _, err2 = second.communicate(timeout=120)
+    assert _held(lock, first.pid), "the first run never took its lock"
+    # Hold the first run still (SIGSTOP) while the second starts, so the overlap does not depend
+    # on how long the first run takes; then let it finish (SIGCONT).
+    first.send_signal(signal.SIGSTOP)
+    try:
+        second = _design(big_records, out)
+        _, err2 = second.communicate(timeout=120)
+    finally:
+        first.send_signal(signal.SIGCONT)
     _, err1 = first.communicate(timeout=300)
     assert first.returncode == 0, err1
     assert second.returncode == 2 and "another splitter run is writing" in err2 and "--out" in err2

@@ -16,7 +16,9 @@ a fresh process so that its peak resident memory (ru_maxrss) is its own:
   ``boyce_index`` on the same raster (float64 values and areas, 1.6 GB, plus the
   Boyce sort), run only if the machine has the memory for it;
 * an exact reference for the area share, the full AUC and the Boyce P/E ratios:
-  integer cell counts per row times the row's cell area, summed with ``math.fsum``.
+  integer cell counts per row times the row's cell area (pyproj.Geod), summed with
+  ``math.fsum``; Boyce windows and presence shares computed here from the definition,
+  not with the package's helpers.
 
 Target (DESIGN §6, "rasters larger than memory are read in windows"): the streamed
 evaluation peaks under 1.5 GB, and gives the in-memory results (to 1e-12).
@@ -182,14 +184,24 @@ def run_exact(path: str, records: str) -> dict:
     import rasterio
     from rasterio.windows import Window
 
-    from splitter.evaluate import cell_areas
-    from splitter.evaluate.boyce import _window_mass, _windows
+    import pyproj
 
     data = np.load(records)
     presences, threshold = data["presences"], float(data["threshold"])
     u = np.unique(presences)
     with rasterio.open(path) as src:
-        row_area = cell_areas(src.transform, src.height, src.width, src.crs)
+        # Row areas from pyproj.Geod.polygon_area_perimeter (WGS84, the ellipsoid of EPSG:4326),
+        # each cell outline with its two parallel edges densified into 256 geodesic pieces
+        # (a geodesic between two points of one parallel bulges poleward; 256 pieces leave < 1e-9).
+        assert src.crs.to_epsg() == 4326
+        geod, t = pyproj.Geod(ellps="WGS84"), src.transform
+        lons = np.linspace(t.c, t.c + t.a, 257)
+        row_area = np.empty(src.height)
+        for r in range(src.height):
+            top = t.f + r * t.e
+            area, _ = geod.polygon_area_perimeter(np.r_[lons, lons[::-1]],
+                                                  np.r_[np.full(257, top), np.full(257, top + t.e)])
+            row_area[r] = abs(area) / 1e6
         nodata = src.nodata
         # First pass: value range (for the Boyce windows).
         lo, hi = np.inf, -np.inf
@@ -197,7 +209,11 @@ def run_exact(path: str, records: str) -> dict:
             v = src.read(1, window=Window(0, r0, src.width, min(STRIP, src.height - r0))).astype(np.float64)
             v = v[(v != nodata) & np.isfinite(v)]
             lo, hi = min(lo, v.min()), max(hi, v.max())
-        starts, ends, _ = _windows(lo, hi, 0.1, 0.01)
+        # Boyce windows as splitter.evaluate.boyce's module notes define them: width 0.1 of the
+        # range, starts evenly spaced from lo to hi - width at most 0.01 of the range apart (91).
+        n_windows = int(np.ceil(round(0.9 / 0.01, 9))) + 1
+        starts = lo + np.linspace(0.0, 0.9, n_windows) * (hi - lo)
+        ends = starts + 0.1 * (hi - lo)
         k = starts.size
         below = np.zeros((src.height, u.size), np.int64)  # cells < u_j, per row
         tied = np.zeros((src.height, u.size), np.int64)  # cells == u_j, per row
@@ -238,7 +254,9 @@ def run_exact(path: str, records: str) -> dict:
     group = np.searchsorted(u, presences)
     auc = math.fsum(b[group] + t[group] / 2.0) / presences.size
     expected = fsum_rows(at_or_above_start - above_end) / total
-    predicted = _window_mass(np.sort(presences), np.arange(1, presences.size + 1) / presences.size, starts, ends)
+    # Share of presences in each closed window [start, end], by plain binary searches.
+    ordered = np.sort(presences)
+    predicted = (np.searchsorted(ordered, ends, side="right") - np.searchsorted(ordered, starts, side="left")) / presences.size
     used = expected > 0
     return {
         "area_share": math.fsum(hit * row_area) / total,

@@ -201,7 +201,15 @@ def test_insufficient_folds_and_no_rule():
     # reference: fold a has 3 < 5 evaluation records; fold c has no calibration records
     assert res.verdicts[0] == "insufficient" and "3 evaluation" in res.reasons[0]
     assert res.verdicts[2] == "insufficient" and "no calibration" in res.reasons[2]
-    assert res.verdicts[1] in ("dependent", "independent")
+    # Fold b: evaluation records 20..29 against calibration records 0..19 along the equator, 5/29
+    # degrees apart; the nearest pair (19, 20) is 19.2 km apart (reference: pyproj.Geod.inv), beyond
+    # the 10 km range, so no evaluation record lies within the range: share 0 <= 0.5, independent.
+    import pyproj
+
+    _, _, gap_m = pyproj.Geod(ellps="WGS84").inv(5 * 19 / 29, 0.0, 5 * 20 / 29, 0.0)
+    assert gap_m / 1000 > 10.0
+    assert res.to_frame()["share_within_range"].iloc[1] == 0.0
+    assert res.verdicts[1] == "independent"
     res = audit_split(pts, cal[1:2], ev[1:2])
     # No range, covariates or groups: nothing to judge by.
     assert res.verdicts == ("insufficient",)

@@ -147,6 +147,6 @@ def test_one_covariate_and_missing_values():
     keep = np.isfinite(x2).all(axis=1)
     with_nan = schoener_d_resplit(x2, x > 0.5, null_splits=19, seed=3)
     complete = schoener_d_resplit(x2[keep], (x > 0.5)[keep], null_splits=19, seed=3)
-    # reference: the same records without the rows that miss a covariate
+    # consistency: the same records without the rows that miss a covariate
     assert with_nan.statistic == complete.statistic
     np.testing.assert_array_equal(with_nan.null, complete.null)

@@ -85,7 +85,7 @@ def test_missing_values_are_left_out():
     z_nan[:10] = np.nan
     a = empirical_semivariogram(x, y, z_nan, max_lag_km=20.0)
     b = empirical_semivariogram(x[10:], y[10:], z[10:], max_lag_km=20.0)
-    # reference: the same estimator on the 140 complete points
+    # consistency: the same estimator on the 140 complete points (missing values left out, not imputed)
     np.testing.assert_allclose(a.gamma, b.gamma, rtol=1e-12)
     assert a.n_points == 140  # reference: 150 points minus 10 missing values
 
@@ -99,7 +99,8 @@ def test_fit_recovers_exact_model_and_matches_skgstat_curve(model):
     truth = np.array([skg_model(h, 40.0, 2.0, 0.5) for h in lags], dtype=float)
     sv = Semivariogram(lags, truth, np.full(15, 1000), edges, 500)
     fit = fit_variogram(sv, model)
-    # reference: the parameters used to build the noise-free semivariogram
+    # reference: the parameters used to build the noise-free semivariogram; rel=1e-4: the least-squares
+    # optimiser stops at its convergence tolerance, not at machine precision, on a noise-free curve
     assert fit.range_km == pytest.approx(40.0, rel=1e-4)
     assert fit.nugget == pytest.approx(0.5, rel=1e-4)
     assert fit.sill == pytest.approx(2.5, rel=1e-4)
@@ -115,7 +116,7 @@ def test_exponential_effective_range_is_95_percent_of_partial_sill():
     lags = 0.5 * (edges[1:] + edges[:-1])
     sv = Semivariogram(lags, 1.0 - np.exp(-lags / 12.0), np.full(15, 100), edges, 100)
     fit = fit_variogram(sv, "exponential")
-    # reference: analytic, 1 - exp(-h/a) reaches 95 % (1 - e^-3) at h = 3a = 36 km
+    # reference: analytic, 1 - exp(-h/a) reaches 95 % (1 - e^-3) at h = 3a = 36 km (rel=1e-4: optimiser tolerance)
     assert fit.range_km == pytest.approx(36.0, rel=1e-4)
     assert fit.predict([fit.range_km])[0] == pytest.approx(1 - np.exp(-3.0), rel=1e-6)
 
@@ -134,8 +135,10 @@ def test_estimate_range_chooses_and_summarises():
         assert fit.weighted_sse == min(f.weighted_sse for f in pair)
     # reference: numpy.median of the chosen effective ranges (rule in the module docstring)
     assert est.suggested_block_km == pytest.approx(np.median([f.range_km for f in est.best.values()]))
-    # reference: analytic range of the simulated covariance (25 km), single realisations -> loose
-    assert 12.0 < est.suggested_block_km < 50.0
+    # reference: analytic range of the simulated covariance (25 km). Measured over seeds 7..16 of
+    # these three fields: the suggestion ran 22.9-37.4 km (mean 26.5, sd 4.1), so 15-40 km allows
+    # the worst seed plus ~0.6 sd above and 2.5 sd below.
+    assert 15.0 < est.suggested_block_km < 40.0
     text = json.dumps(est.to_dict(), allow_nan=False)
     assert "suggested_block_km" in text
 

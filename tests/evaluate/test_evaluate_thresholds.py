@@ -41,17 +41,49 @@ def test_signature_takes_no_evaluation_predictions():
     assert params == ["rule", "calibration_presence", "calibration_background"]  # contract: DESIGN §4
 
 
-def test_threshold_ignores_evaluation_data_and_order():
+def test_threshold_ignores_order_of_the_calibration_data():
     rng = np.random.default_rng(11)
     calib = rng.random(80)
     background = rng.random(300)
     first = choose_threshold("max-tss", calib, background)
-    # Evaluation predictions of any kind change nothing: only calibration arrays go in,
-    # and a reshuffle of the calibration arrays gives the same value.
     for _ in range(3):
-        _evaluation = rng.random(50)  # a new evaluation set each time, never passed in
         again = choose_threshold("max-tss", rng.permutation(calib), rng.permutation(background))
-        assert again == first  # analytic: depends on the calibration sets only
+        assert again == first  # analytic: a threshold of two sets does not depend on their order
+
+
+@pytest.mark.parametrize("rule", ["lowest", "quantile:0.1", "max-tss"])
+def test_evaluation_predictions_change_the_tests_but_not_the_threshold(tmp_path, rule):
+    """Through evaluate(): new predictions at a fold's evaluation records are passed in and change
+    that fold's binomial test, while its threshold (from calibration predictions) stays."""
+    import pandas as pd
+
+    import splitter
+    from tests.conftest import write_records_csv
+
+    src = write_records_csv(tmp_path / "r.csv", n_presence=120, n_background=120, seed=3)
+    folds = splitter.design(src, method="random", folds=3, seed=1)
+    recs = pd.read_csv(src, dtype={"record_id": str})
+    rng = np.random.default_rng(4)
+    base = np.where(recs.kind == "presence", 0.6, 0.4) + rng.uniform(-0.3, 0.3, len(recs))
+    evaluation_1 = np.isin(np.arange(len(recs)), folds.evaluation(1))
+
+    def run(scores_at_fold1_evaluation, name):
+        rows = []
+        for f in (1, 2, 3):
+            pred = base.copy()
+            if f == 1:
+                pred[evaluation_1] = scores_at_fold1_evaluation
+            rows.append(pd.DataFrame({"record_id": recs.record_id, "fold": f, "prediction": pred}))
+        path = tmp_path / f"{name}.csv"
+        pd.concat(rows).to_csv(path, index=False)
+        frame = splitter.evaluate(folds, prediction_table=path, threshold=rule, replicates=20, seed=1).to_frame()
+        return frame[frame.fold.astype(str) == "1"].iloc[0]
+
+    a = run(base[evaluation_1], "same")
+    b = run(rng.uniform(0.0, 1.0, evaluation_1.sum()), "new")  # new evaluation predictions
+    assert a.threshold == b.threshold  # calibration data only: the threshold does not move
+    # ... while the evaluation data did reach the tests: the binomial successes changed
+    assert a.successes != b.successes
 
 
 def test_lowest_and_value():

@@ -39,29 +39,46 @@ def _geod_min_km(a: Points, b: Points) -> np.ndarray:
     return d.reshape(ax.shape).min(axis=1) / 1000
 
 
-@settings(max_examples=15, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(seed=st.integers(0, 10_000), method=st.sampled_from(["blocks", "hexagons", "checkerboard", "random"]),
-       k=st.sampled_from([2, 4, 5]), buffer=st.sampled_from([0.0, 15.0, 40.0]), lat0=st.sampled_from([0.0, 45.0, 68.0]))
-def test_every_kept_record_evaluates_once_and_the_buffer_holds(seed, method, k, buffer, lat0):
-    recs = _records(120, 60, seed, lat0)
-    try:
-        a = splitter.design(recs, method=method, folds=k, block_size=40, buffer=buffer, seed=seed)
-    except InputError:
-        return  # e.g. a checkerboard fold without presences: a clear refusal is allowed
-    kept = a.fold >= 0
-    hits = np.zeros(len(a), int)
-    for i in a.folds:
-        hits[a.evaluation(i)] += 1
-        ev, cal = a.evaluation(i), a.calibration(i)
-        assert not np.intersect1d(ev, cal).size
-        if buffer:
-            # The guarantee: no calibration record of fold i lies closer than the buffer.
-            d = _geod_min_km(recs.points.take(cal), recs.points.take(ev))
-            assert d.min() >= buffer
-            gaps = a.gaps(i)
-            if gaps.size:  # and nothing was removed needlessly
-                assert _geod_min_km(recs.points.take(gaps), recs.points.take(ev)).max() < buffer
-    assert np.all(hits[kept] == 1) and np.all(hits[~kept] == 0)
+def test_every_kept_record_evaluates_once_and_the_buffer_holds():
+    """Property over seeds, methods, fold counts, buffers and latitudes (hypothesis).
+
+    A design may refuse with InputError (e.g. a checkerboard fold without presences); those
+    cases are counted, and the test fails unless most generated cases reach the checks."""
+    seen = {"checked": 0, "refused": []}
+
+    @settings(max_examples=15, deadline=None, derandomize=True, database=None,
+              suppress_health_check=[HealthCheck.too_slow])
+    @given(seed=st.integers(0, 10_000), method=st.sampled_from(["blocks", "hexagons", "checkerboard", "random"]),
+           k=st.sampled_from([2, 4, 5]), buffer=st.sampled_from([0.0, 15.0, 40.0]),
+           lat0=st.sampled_from([0.0, 45.0, 68.0]))
+    def check(seed, method, k, buffer, lat0):
+        recs = _records(120, 60, seed, lat0)
+        try:
+            a = splitter.design(recs, method=method, folds=k, block_size=40, buffer=buffer, seed=seed)
+        except InputError as e:
+            seen["refused"].append((method, k, str(e)))
+            return
+        kept = a.fold >= 0
+        hits = np.zeros(len(a), int)
+        for i in a.folds:
+            hits[a.evaluation(i)] += 1
+            ev, cal = a.evaluation(i), a.calibration(i)
+            assert not np.intersect1d(ev, cal).size
+            if buffer:
+                # The guarantee: no calibration record of fold i lies closer than the buffer.
+                d = _geod_min_km(recs.points.take(cal), recs.points.take(ev))
+                assert d.min() >= buffer
+                gaps = a.gaps(i)
+                if gaps.size:  # and nothing was removed needlessly
+                    assert _geod_min_km(recs.points.take(gaps), recs.points.take(ev)).max() < buffer
+        assert np.all(hits[kept] == 1) and np.all(hits[~kept] == 0)
+        seen["checked"] += 1
+
+    check()
+    total = seen["checked"] + len(seen["refused"])
+    # Most generated cases must reach the checks; refusals may only be the checkerboard's.
+    assert total >= 15 and seen["checked"] >= 0.75 * total, seen  # 15 = max_examples
+    assert all(m == "checkerboard" for m, _, _ in seen["refused"]), seen["refused"]
 
 
 def test_blocks_balance_presences_and_same_seed_gives_identical_files(tmp_path):
@@ -74,8 +91,10 @@ def test_blocks_balance_presences_and_same_seed_gives_identical_files(tmp_path):
         outs[-1]["design"] = p["design"].read_text().replace(str(tmp_path / f"run{run}"), "")
     assert outs[0] == outs[1]
     counts = a.counts()["evaluation_presence"]
-    # common practice: balanced folds; the greedy deal gets within one block's count
-    assert counts.max() - counts.min() <= 40
+    # analytic: 240 presences over 5 folds can be dealt 48 each; the best of balance_cells' 64 seeded
+    # greedy deals reaches that optimum here (measured at seeds 1, 2, 3, 7 and 8: exact every time)
+    assert counts.sum() == 240 and counts.tolist() == [48] * 5
+    assert a.parameters["presence_imbalance"] == 0.0  # (largest - smallest) / mean, documented in balance.py
     b = splitter.design(path, method="blocks", folds=5, block_size=40, buffer=10, seed=8)
     assert not np.array_equal(a.fold, b.fold)
 

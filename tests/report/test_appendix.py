@@ -15,6 +15,7 @@ import pytest
 
 from splitter.errors import InputError
 from splitter.report.appendix import Appendix, build_appendix
+from tests.images import drawn_share, pixels
 
 SPLITS = ("blocks", "random")
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # reference: PNG specification (ISO/IEC 15948), file signature
@@ -54,15 +55,22 @@ def test_every_file_is_written(built):
     # The returned paths name exactly the files on disk.
     assert {p.relative_to(out).as_posix() for p in app.tables} == {f for f in written if f.startswith("tables/")}
     assert {p.relative_to(out).as_posix() for p in app.figures} == {f for f in written if f.startswith("figures/")}
+    images = {}
     for p in app.figures:
         data = p.read_bytes()
         if p.suffix == ".png":
             assert data.startswith(PNG_SIGNATURE)  # reference: PNG file signature (ISO/IEC 15948)
+            images[p.stem] = img = pixels(data)  # read back with matplotlib.image.imread
+            assert min(img.shape[:2]) > 200 and drawn_share(img) > 0.02, p.name  # drawn, not blank
         else:
             root = ET.fromstring(data)  # reference: xml.etree parses a well-formed SVG document
             assert root.tag.endswith("svg")
     for p in app.tables:
         assert len(pd.read_csv(p)) > 0
+    # The two splits' figures come from different folds: distinct inputs, distinct pixels.
+    for stem in ("map", "distance_ecdf", "roc"):
+        a, b = images[f"{stem}_blocks"], images[f"{stem}_random"]
+        assert a.shape != b.shape or np.any(a != b), stem
 
 
 def test_run_folder_is_only_read(built):

@@ -1,6 +1,7 @@
 """Tests for splitter.report.dependence_figures."""
 
 import io
+import xml.etree.ElementTree as ET
 
 import matplotlib.pyplot as plt
 import numpy as np
@@ -12,6 +13,13 @@ from splitter.dependence.variogram import fit_ranges
 from splitter.report.dependence_figures import OKABE_ITO, plot_distance_ecdf, plot_variogram
 from splitter.errors import InputError
 from splitter.geo import Points
+from tests.images import drawn_share, pixels
+
+
+def _png(fig) -> np.ndarray:
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png")
+    return pixels(buf.getvalue())
 
 
 @pytest.fixture
@@ -37,9 +45,13 @@ def test_variogram_figure(range_estimate):
         # empirical points, spherical fit, exponential fit, block-size line
         assert len(ax.get_lines()) == 4
         assert ax.get_lines()[-1].get_xdata()[0] == 30.0
-    buf = io.BytesIO()
-    fig.savefig(buf, format="png")
-    assert buf.getvalue()[:4] == b"\x89PNG"
+    img = _png(fig)
+    w, h = fig.get_size_inches() * fig.dpi
+    assert img.shape[:2] == (round(h), round(w))  # reference: figure size x dpi (matplotlib savefig)
+    assert drawn_share(img) > 0.02  # four panels of points and curves, not a blank page
+    # Distinct inputs give distinct pixels: the block-size line moves.
+    other = _png(plot_variogram(range_estimate, chosen_block_km=60.0))
+    assert other.shape == img.shape and np.any(other != img)
     after = plt.get_fignums()
     assert before == after  # no figure registered with pyplot
 
@@ -58,10 +70,18 @@ def test_distance_ecdf_figure():
     assert len(ax.get_lines()) == 7
     colours = {line.get_color().upper() for line in ax.get_lines()[:4]}
     assert colours <= {c.upper() for c in OKABE_ITO}  # colour-blind-safe palette
-    fig.savefig(io.BytesIO(), format="svg")
+    svg = io.BytesIO()
+    fig.savefig(svg, format="svg")
+    root = ET.fromstring(svg.getvalue())  # reference: xml.etree parses a well-formed SVG document
+    ns = "{http://www.w3.org/2000/svg}"
+    assert root.tag == f"{ns}svg" and len(root.findall(f".//{ns}path")) >= 7  # at least one path per line
 
     dd2 = distance_diagnostics(pts, cal, ev)
-    assert len(plot_distance_ecdf(dd2).axes[0].get_lines()) == 5  # 4 folds + record->record
+    fig2 = plot_distance_ecdf(dd2)
+    assert len(fig2.axes[0].get_lines()) == 5  # 4 folds + record->record
+    a, b = _png(fig), _png(fig2)
+    assert drawn_share(a) > 0.02
+    assert a.shape == b.shape and np.any(a != b)  # distinct inputs, distinct pixels
 
 
 def test_wrong_object_raises():
