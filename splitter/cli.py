@@ -596,6 +596,7 @@ def audit(
     range_km: Optional[float] = typer.Option(_D.range_km, "--range-km", metavar="KM", help="Autocorrelation range in km."),
     range_from: Optional[Path] = typer.Option(_D.range_from, "--range-from", metavar="PATH", help="Folder written by 'splitter range'."),
     group_column: Optional[str] = typer.Option(_D.group_column, "--group-column", metavar="COLUMN", help="Survey method / source column."),
+    time_column: Optional[str] = typer.Option(_D.time_column, "--time-column", metavar="COLUMN", help="Year or date column: the time gap between evaluation and calibration records (default: the design's, else 'year')."),
     region: Optional[Path] = typer.Option(_D.region, "--region", metavar="PATH", help="Polygon of the prediction region."),
     x: Optional[str] = X_OPTION,
     y: Optional[str] = Y_OPTION,
@@ -626,6 +627,11 @@ def audit(
     _out().print("rules (a fold is dependent when any applicable rule fires):")
     for r in result.rules:
         _out().print(f"  {r['name']}: {r['rule']} (threshold {r['threshold']:g})")
+    if context.get("time_gaps"):
+        _out().print(f"time apart ({context['time_column']}; median years from an evaluation presence to the nearest "
+                     "calibration presence, share dated after all calibration): " + ", ".join(
+                         f"fold {g['fold']}: {g['median_years']:.1f} ({g['later_share']:.0%})" for g in context["time_gaps"]
+                         if g["median_years"] == g["median_years"]))
     rk = context.get("range_km")
     _out().print(f"autocorrelation range: {'not given' if rk is None else f'{rk:.1f} km'} ({context.get('range_source') or 'no range: distance rule not applied'})")
     for n in context.get("notes", []):

@@ -60,7 +60,14 @@ def write_range_tables(estimate, out_dir, extra: dict | None = None) -> dict:
 def write_audit_tables(result, context: dict, out_dir) -> dict:
     """audit.csv and audit.json (the range estimate, if any, is written by its own writer)."""
     out_dir = Path(out_dir)
-    paths = {"table": write_csv(result.to_frame(), out_dir / "audit.csv")}
+    frame = result.to_frame()
+    if context.get("time_gaps"):
+        # Time apart (years): a description beside the rules, per fold in the same order.
+        gaps = context["time_gaps"]
+        frame["time_gap_median_years"] = [g["median_years"] for g in gaps]
+        frame["time_gap_p10_years"] = [g["p10_years"] for g in gaps]
+        frame["time_later_share"] = [g["later_share"] for g in gaps]
+    paths = {"table": write_csv(frame, out_dir / "audit.csv")}
     doc = result.to_dict()
     doc["context"] = {k: v for k, v in context.items() if k not in ("range_estimate", "absences")}
     if context.get("absences") is not None:

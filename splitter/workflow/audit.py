@@ -27,6 +27,7 @@ def audit(
     fold_names: dict | None = None,
     min_evaluation: int = 5,
     null_splits: int = NULL_SPLITS,
+    time_column: str | None = None,
 ) -> tuple[AuditResult, dict]:
     """Measure how independent each fold's evaluation presences are.
 
@@ -43,6 +44,11 @@ def audit(
     survey's own covariates): the environmental overlap and envelope use them
     instead of rasters, standardised on background when there are at least 20
     background records, else on every kept record.
+
+    ``time_column`` (default: the design's time column, else a ``year`` column)
+    dates the records: each fold's time gap between evaluation and calibration
+    presences is reported in the context (``time_gaps``) and in ``audit.csv``
+    (:mod:`splitter.dependence.time_gap`); it is a description, not a rule.
 
     When the records hold absences, the same measures are taken a second time
     from evaluation absences to calibration absences (``context["absences"]``,
@@ -143,6 +149,26 @@ def audit(
         null_splits=null_splits, seed=seed,
     )
     context["null_splits"] = int(null_splits)
+    # Time apart: the column named, else the design's own time column, else a 'year' column.
+    params = assignment.parameters
+    designed = (getattr(params, "time_column", None) if not isinstance(params, dict)
+                else ((params.get("design") or {}).get("parameters") or {}).get("time_column"))
+    time_column = time_column or designed or ("year" if "year" in recs.table.columns else None)
+    if time_column is not None:
+        from splitter.dependence.time_gap import time_gaps
+        from splitter.partition.periods import decimal_years
+
+        if time_column not in recs.table.columns:
+            raise InputError(f"time_column={time_column!r}: no such column; columns are: "
+                             f"{', '.join(map(str, recs.table.columns))}.")
+        gaps = time_gaps(decimal_years(recs.table[time_column].to_numpy(object), f"time_column={time_column!r}"),
+                         cal, ev)
+        if gaps.n_dated.sum():
+            context["time_column"] = time_column
+            context["time_gaps"] = [
+                {"fold": label, "median_years": m, "p10_years": p, "later_share": s, "n_dated": int(n)}
+                for label, m, p, s, n in zip(labels, gaps.median_years, gaps.p10_years, gaps.later_share,
+                                             gaps.n_dated)]
     absent = kind == "absence"
     if absent.any():
         cal_a = [rows[absent[rows]] for rows in map(assignment.calibration, assignment.folds)]

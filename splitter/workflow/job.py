@@ -56,7 +56,7 @@ class JobOptions:
     group_column: str | None = field(default=None, metadata=_opt("--group-column", "text", (DESIGN, AUDIT)))
     calibrate_on: str | None = field(default=None, metadata=_opt("--calibrate-on", "text", (DESIGN,)))
     evaluate_on: str | None = field(default=None, metadata=_opt("--evaluate-on", "text", (DESIGN,)))
-    time_column: str | None = field(default=None, metadata=_opt("--time-column", "text", (DESIGN,)))
+    time_column: str | None = field(default=None, metadata=_opt("--time-column", "text", (DESIGN, AUDIT)))
     periods: int | None = field(default=None, metadata=_opt("--periods", "int", (DESIGN,)))
     calibrate_before: str | None = field(default=None, metadata=_opt("--calibrate-before", "text", (DESIGN,)))
     thin: str | None = field(default=None, metadata=_opt("--thin", "text", (DESIGN,)))
@@ -297,7 +297,7 @@ def audit_step(assignment, fold_names, options: JobOptions, out_dir, *, command:
     result, context = audit(assignment, env=list(o.env), covariates=list(o.covariate_column), range_km=o.range_km,
                             range_from=o.range_from,
                             group_column=o.group_column, region=o.region, seed=o.seed, fold_names=fold_names,
-                            null_splits=o.null_splits)
+                            null_splits=o.null_splits, time_column=o.time_column)
     context["command"] = command
     paths = write_audit(result, context, out_dir)
     return result, context, paths
