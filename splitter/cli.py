@@ -425,7 +425,7 @@ def _fmt_p(p) -> str:
 def evaluation_table(result, title: str):
     from rich import box
 
-    t = _table(title, box=box.SIMPLE_HEAD, padding=(0, 1))
+    t = _table(title, box=box.SIMPLE_HEAD, padding=(0, 1), pad_edge=False)
     for c in ("fold", "verdict", "p adj.", "binom p", "pROC p", "ratio", "null", "AUC", "TSS"):
         t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
     rows = [f.row for f in result.folds] + [result.summary.to_row()]
@@ -562,7 +562,7 @@ def audit_table(result, what: str = "presences"):
     """Per-fold dependence within 80 columns; why a fold was flagged goes under the table."""
     from rich import box
 
-    t = _table(f"residual dependence per fold, {what}: {result.verdict}", box=box.SIMPLE_HEAD, padding=(0, 1),
+    t = _table(f"residual dependence per fold, {what}: {result.verdict}", box=box.SIMPLE_HEAD, padding=(0, 1), pad_edge=False,
                caption_justify="left")
     for c in ("fold", "n", "NN km", "<range", "W1 km", "D", "out", "method", "verdict"):
         t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
