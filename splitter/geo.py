@@ -414,8 +414,12 @@ class NeighbourIndex:
         xyz = _unit_xyz(query)
         bound = float(_chord(radius_km * _SPHERE_SLACK)) * 1.000001 + 1e-12
         d, i = self._tree.query(xyz, k=1, distance_upper_bound=bound, workers=-1)
-        cand = np.flatnonzero(np.isfinite(d))
         hit = np.zeros(n, bool)
+        # A sphere distance under radius / slack is under the radius on the ellipsoid too
+        # (their ratio stays within 1 %): those need no geodesic.
+        sure = d <= float(_chord(radius_km / _SPHERE_SLACK))
+        hit[sure] = True
+        cand = np.flatnonzero(np.isfinite(d) & ~sure)
         if not cand.size:
             return hit
         dist = _distance_km(query.take(cand), self.reference.take(i[cand].astype(np.int64)))
@@ -430,6 +434,47 @@ class NeighbourIndex:
             best, _ = self._refine(query, xyz, unsure, best, idx, bounds, 8)
             hit[unsure[best[unsure] < radius_km]] = True
         return hit
+
+def proximity_cells(points: Points, radius_km: float) -> np.ndarray:
+    """An integer cell per point such that two points closer than ``radius_km`` lie in the
+    same or adjacent cells (3 x 3 in a plane, 3 x 3 x 3 on the unit sphere).
+
+    A cheap prefilter: :func:`adjacent_cells` widens a set of cells by one, and only the
+    points in the widened set can be near the points of the set.
+
+    Examples
+    --------
+    >>> p = Points.lonlat([0.0, 0.05, 3.0], [0.0, 0.0, 0.0])
+    >>> c = proximity_cells(p, 10.0)
+    >>> bool(np.isin(c[1], adjacent_cells(c[:1], p, 10.0))), bool(np.isin(c[2], adjacent_cells(c[:1], p, 10.0)))
+    (True, False)
+    """
+    if points.geographic:
+        size = float(_chord(radius_km * _SPHERE_SLACK)) * 1.000001 + 1e-12  # chord length, unit sphere
+        ijk = np.floor(_unit_xyz(points) / size).astype(np.int64)
+    else:
+        size = radius_km / _unit_factor_km(points.crs)
+        ijk = np.floor(np.column_stack([points.x, points.y, np.zeros(len(points))]) / size).astype(np.int64)
+    return _cell_key(ijk)
+
+
+_KEY_SPAN = 1 << 20  # cell indices fit in 21 bits each: unit-sphere cells of >= 10 m, planar grids up to 10^6 cells wide
+
+
+def _cell_key(ijk: np.ndarray) -> np.ndarray:
+    shifted = ijk + _KEY_SPAN
+    return (shifted[:, 0] << 42) | (shifted[:, 1] << 21) | shifted[:, 2]
+
+
+def adjacent_cells(cells: np.ndarray, points: Points, radius_km: float) -> np.ndarray:
+    """The distinct cells of :func:`proximity_cells` given, and every cell next to them."""
+    u = np.unique(cells)
+    ijk = np.column_stack([(u >> 42) - _KEY_SPAN, ((u >> 21) & (2 * _KEY_SPAN - 1)) - _KEY_SPAN,
+                           (u & (2 * _KEY_SPAN - 1)) - _KEY_SPAN])
+    dz = (-1, 0, 1) if points.geographic else (0,)
+    offsets = np.array([(a, b, c) for a in (-1, 0, 1) for b in (-1, 0, 1) for c in dz], dtype=np.int64)
+    return np.unique(_cell_key((ijk[:, None, :] + offsets[None, :, :]).reshape(-1, 3)))
+
 
 def nearest_km(query: Points, reference: Points) -> np.ndarray:
     """Distance (km) from each query point to its nearest reference point."""
