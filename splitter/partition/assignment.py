@@ -161,15 +161,20 @@ class FoldAssignment:
 
     def counts(self) -> pd.DataFrame:
         """Records per fold: evaluation and calibration counts by kind, and gaps."""
+        kinds = ("presence", "absence", "background")
+        # Kind codes once (hashing), then counts per fold by bincount: no string
+        # comparison per fold and kind over a million records.
+        code = pd.Categorical(self.kind, categories=kinds).codes.astype(np.int64)
+        code[code < 0] = len(kinds)  # any other word: counted nowhere
+        gaps = np.bincount(self.gap_folds, minlength=self.n_folds + 1) if self.gap_folds.size else None
         rows = []
         for i in self.folds:
-            ev, cal = self.evaluation(i), self.calibration(i)
+            ev = np.bincount(code[self.evaluation(i)], minlength=len(kinds) + 1)
+            cal = np.bincount(code[self.calibration(i)], minlength=len(kinds) + 1)
             row = {"fold": i}
-            for k in ("presence", "absence", "background"):
-                row[f"evaluation_{k}"] = int(np.sum(self.kind[ev] == k))
-            for k in ("presence", "absence", "background"):
-                row[f"calibration_{k}"] = int(np.sum(self.kind[cal] == k))
-            row["gap"] = int(np.sum(self.gap_folds == i))
+            row.update({f"evaluation_{k}": int(ev[j]) for j, k in enumerate(kinds)})
+            row.update({f"calibration_{k}": int(cal[j]) for j, k in enumerate(kinds)})
+            row["gap"] = int(gaps[i]) if gaps is not None and i < gaps.size else 0
             rows.append(row)
         return pd.DataFrame(rows)
 

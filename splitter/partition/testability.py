@@ -132,23 +132,26 @@ def check_folds(assignment, alpha: float = 0.05, adjust: str = "holm", omission:
     level = alpha / k if adjust == "holm" and k > 1 else alpha
     rows = []
     empty = []
+    # Kinds as small codes once: per fold only integer counts (no string comparisons).
+    code = np.zeros(assignment.kind.size, np.int8)
+    for j, word in enumerate(("presence", "absence", "background"), start=1):
+        code[assignment.kind == word] = j
     for i in assignment.folds:
-        ev = assignment.evaluation(i)
-        kind = assignment.kind[ev]
-        n = int(np.count_nonzero(kind == "presence"))
+        ev = code[assignment.evaluation(i)]
+        n = int(np.count_nonzero(ev == 1))
         if n == 0:
             empty.append(i)
         kept = assignment.calibration(i)
         gaps = assignment.gaps(i)
         before = kept.size + gaps.size
-        pres_kept = int(np.count_nonzero(assignment.kind[kept] == "presence"))
-        pres_gap = int(np.count_nonzero(assignment.kind[gaps] == "presence"))
+        pres_kept = int(np.count_nonzero(code[kept] == 1))
+        pres_gap = int(np.count_nonzero(code[gaps] == 1))
         m = max(1, int(np.floor(0.5 * n + 0.5)))
         rows.append(FoldCheck(
             fold=int(i),
             evaluation_presences=n,
-            evaluation_absences=int(np.count_nonzero(kind == "absence")),
-            evaluation_background=int(np.count_nonzero(kind == "background")),
+            evaluation_absences=int(np.count_nonzero(ev == 2)),
+            evaluation_background=int(np.count_nonzero(ev == 3)),
             binomial_bound=float(level ** (1.0 / n)) if n else 0.0,
             can_omit=bool(n and np.floor(m * omission + 1e-9) >= 1),
             calibration_presences=pres_kept,
