@@ -3,7 +3,8 @@
 Usage:
     python tests/benchmarks/run_all.py            # all stages, full sizes (about 15 min, 2 cores)
     python tests/benchmarks/run_all.py --quick    # smaller sizes, for a check (about 2 min)
-    python tests/benchmarks/run_all.py design partial_roc --repeat 5
+    python tests/benchmarks/run_all.py design partial_roc --repeat 5   # only these; the other
+                                       # rows of docs/performance.json are kept from the last run
 
 Each (stage, size) runs in a fresh process that times the floor and the work
 alternately, ``--repeat`` times each after one warm-up of the floor, so that machine
@@ -64,7 +65,7 @@ STAGES = {
                  "a bare windowed rasterio read counting valid cells"),
     "partial_roc": ([100_000, 1_000_000, 10_000_000], [100_000, 1_000_000], "cells", 2.0, None,
                     "np.sort of the cell values"),
-    "batch": ([20], [6], "runs", None, None, "the same runs one after another in one process"),
+    "batch": ([20, 200], [6], "runs", None, None, "the same runs one after another in one process"),
 }
 SLOPE_LIMIT = 1.15  # n log n over a decade or two has a fitted slope of about 1.1
 
@@ -266,7 +267,8 @@ def _measure(stage: str, n: int, repeat: int) -> dict:
         raise SystemExit(f"{stage} at {n}: the benchmark process failed")
     doc = json.loads(out.strip().splitlines()[-1])
     row = {"stage": stage, "size": n, "work_s": statistics.median(doc["work"]),
-           "floor_s": statistics.median(doc["floor"]), "peak_mb": usage.ru_maxrss / 1024, "repeat": repeat}
+           "floor_s": statistics.median(doc["floor"]), "peak_mb": usage.ru_maxrss / 1024, "repeat": repeat,
+           "measured": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime())}
     row["ratio"] = row["work_s"] / row["floor_s"]
     if doc["few"]:
         row["b10_s"] = statistics.median(doc["few"])
@@ -387,8 +389,19 @@ def main(argv) -> int:
         for n in sizes:
             # The largest sizes cost minutes per repeat: fewer repeats there, said in the table.
             repeat = args.repeat if n < max(sizes) or n <= 1_000_000 else max(1, args.repeat - 1)
+            if stage == "batch" and n > 20:
+                repeat = 1  # 200 runs take minutes each way
             print(f"{stage} at {n:,} ...", flush=True)
             rows.append(_measure(stage, n, repeat))
+    previous = DOCS / "performance.json"
+    if args.stages and not args.quick and previous.exists():
+        # Only some stages measured: keep the others' rows from the last full run (their dates differ;
+        # the JSON says which run each came from).
+        old = json.loads(previous.read_text())
+        kept = [r for r in old["rows"] if r["stage"] not in wanted]
+        rows = sorted(kept + rows, key=lambda r: (list(STAGES).index(r["stage"]), r["size"]))
+        startup = startup or old.get("startup", [])
+        wanted = [s for s in STAGES if any(r["stage"] == s for r in rows)]
     slopes = {s: _slope([r for r in rows if r["stage"] == s]) for s in wanted if s != "batch"}
     rows = _verdicts(rows)
     table = _table(rows, slopes)
