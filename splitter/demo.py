@@ -48,7 +48,7 @@ def _cmd(*parts, root=None) -> str:
 
 
 def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, folds: int = 5,
-             step=None) -> DemoRun:
+             step=None, generalise_km: float | None = None) -> DemoRun:
     """Run the demo and write everything under ``out_dir``.
 
     Parameters
@@ -60,6 +60,9 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     folds : int
     step : callable(str), optional
         Called with a short description before each step (progress display).
+    generalise_km : float, optional
+        Write every coordinate (fold tables, appendix) as the centre of its cell of
+        this size; the audit then measures between cell centres (it says so).
 
     Returns
     -------
@@ -96,7 +99,7 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
 
     # Both splits: the same records, covariates, baseline model and tests; only the folds differ.
     common = JobOptions(folds=folds, env=tuple(str(p) for p in env), seed=seed, range_from=str(out / "range"),
-                        model="baseline", replicates=replicates)
+                        model="baseline", replicates=replicates, generalise=generalise_km)
     plans = {
         "blocks": common.replace(method="blocks", block_size="auto", buffer=buffer_km),
         "random": common.replace(method="random"),
@@ -118,5 +121,5 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     write_optimism(optimism, out, extra={"fold_tables": {n: shown(splits[n]["dir"] / "folds.csv", out) for n in splits}})
 
     say("writing the methods appendix")
-    appendix = build_appendix(out, out / "appendix")
+    appendix = build_appendix(out, out / "appendix", generalise_km=generalise_km)
     return DemoRun(out, splits, range_km, appendix, optimism)

@@ -90,3 +90,21 @@ def test_generalise_must_be_positive(tmp_path):
     res = run("design", tmp_path / "r.csv", "--block-size", 40, "--generalise", -2, "--out", tmp_path / "g.csv")
     assert res.exit_code == 2 and "--generalise" in res.stderr and len(res.stderr.strip().splitlines()) == 1
     assert not (tmp_path / "g.csv").exists()
+
+
+def test_the_demo_generalises_every_coordinate_it_writes(tmp_path):
+    # The demo writes fold tables and an appendix: with --generalise both carry cell centres.
+    res = run("demo", tmp_path / "demo", "--generalise", 25, "--replicates", 20)
+    assert res.exit_code == 0, res.output
+    for split in ("blocks", "random"):
+        side = json.loads((tmp_path / "demo" / split / "folds.design.json").read_text())
+        table = pd.read_csv(tmp_path / "demo" / split / "folds.csv", dtype=str, keep_default_na=False)
+        assert side["generalised_km"] == 25.0 and (table["generalised_km"] == "25").all()
+        # reference: pyproj — every written point is a 25 km cell centre of the design's plane
+        tr = pyproj.Transformer.from_crs("EPSG:4326", pyproj.CRS.from_user_input(side["geometry_crs"]), always_xy=True)
+        if split == "blocks":
+            x, y = tr.transform(table["longitude"].astype(float).to_numpy(), table["latitude"].astype(float).to_numpy())
+            for v in (np.asarray(x) / 1000, np.asarray(y) / 1000):
+                assert np.allclose(v / 25 - 0.5, np.round(v / 25 - 0.5), atol=1e-6)
+    md = (tmp_path / "demo" / "appendix" / "appendix.md").read_text()
+    assert "generalised" in md and "25" in md
