@@ -133,9 +133,9 @@ def area_predicted(values, weights, threshold: float) -> float:
     >>> area_predicted([(np.array([0.1, 0.6]), None), (np.array([0.9]), None)], None, 0.5)  # two blocks
     0.6666666666666666
     """
-    from splitter.evaluate.boyce import _streamed
+    from splitter.evaluate.cells import is_streamed
 
-    if _streamed(values):
+    if is_streamed(values):
         from splitter.evaluate.cells import as_cells, summarise_surface
 
         return float(summarise_surface(as_cells(values), np.array([float(threshold)])).area_share_at(threshold))

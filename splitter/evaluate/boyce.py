@@ -168,7 +168,9 @@ def boyce_index(
         raise InputError("There are no evaluation presences; the Boyce index needs at least one.")
     if not np.all(np.isfinite(pres)):
         raise InputError("Some scores are missing or infinite; drop nodata cells and those records first.")
-    if surface is not None or _streamed(reference_values):
+    from splitter.evaluate.cells import is_streamed
+
+    if surface is not None or is_streamed(reference_values):
         return _boyce_streamed(pres, reference_values, width_share, step_share, value_range, surface)
     ref = np.asarray(reference_values, dtype=float).ravel()
     if ref.size == 0:
@@ -189,14 +191,6 @@ def boyce_index(
     ref_sorted = ref[order]
     expected = _window_weight(ref_sorted, w[order], starts, ends) / w.sum()
     return _from_expected(pres, starts, ends, width, expected)
-
-
-def _streamed(cells) -> bool:
-    """Cells given as a source, a function returning blocks or a list of blocks (not one array)."""
-    from splitter.evaluate.cells import CellSource
-
-    return (isinstance(cells, CellSource) or callable(cells)
-            or (isinstance(cells, list) and bool(cells) and not np.isscalar(cells[0])))
 
 
 def _boyce_streamed(pres, cells, width_share, step_share, value_range, surface) -> BoyceResult:

@@ -102,6 +102,12 @@ class CellSource:
             yield _block_arrays(b)
 
 
+def is_streamed(cells) -> bool:
+    """Cells given as a source, a function returning blocks or a list of blocks (not one array)."""
+    return (isinstance(cells, CellSource) or callable(cells)
+            or (isinstance(cells, list) and bool(cells) and not np.isscalar(cells[0])))
+
+
 def as_cells(cells, weights=None) -> CellSource:
     """A :class:`CellSource` from an array of cell values (with optional weights),
     a source, a function returning blocks, or a list of blocks.
@@ -111,10 +117,8 @@ def as_cells(cells, weights=None) -> CellSource:
     """
     if isinstance(cells, CellSource):
         return cells
-    if callable(cells):
-        return CellSource(cells)
-    if isinstance(cells, list) and cells and not np.isscalar(cells[0]):
-        return CellSource(lambda: cells)
+    if is_streamed(cells):
+        return CellSource(cells if callable(cells) else (lambda: cells))
     if not isinstance(cells, (np.ndarray, list, tuple)) and iter(cells) is cells:
         raise InputError(
             "The cells can be streamed only once here, but the tests pass over them more than once; "

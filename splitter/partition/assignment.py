@@ -13,6 +13,8 @@ from splitter.errors import InputError
 NO_FOLD = -1  # dropped records: written as an empty cell
 
 
+KINDS = ("presence", "absence", "background")
+
 @dataclass(frozen=True)
 class FoldAssignment:
     """Folds of a record table.
@@ -159,13 +161,18 @@ class FoldAssignment:
             "fold": self.gap_folds[order].astype(np.int64),
         })
 
+    @property
+    def kind_codes(self) -> np.ndarray:
+        """Each record's kind as its position in ``KINDS`` (3 for any other word): per-fold
+        counts are then bincounts, not string comparisons over a million records."""
+        code = pd.Categorical(self.kind, categories=KINDS).codes.astype(np.int64)
+        code[code < 0] = len(KINDS)
+        return code
+
     def counts(self) -> pd.DataFrame:
         """Records per fold: evaluation and calibration counts by kind, and gaps."""
-        kinds = ("presence", "absence", "background")
-        # Kind codes once (hashing), then counts per fold by bincount: no string
-        # comparison per fold and kind over a million records.
-        code = pd.Categorical(self.kind, categories=kinds).codes.astype(np.int64)
-        code[code < 0] = len(kinds)  # any other word: counted nowhere
+        kinds = KINDS
+        code = self.kind_codes
         gaps = np.bincount(self.gap_folds, minlength=self.n_folds + 1) if self.gap_folds.size else None
         rows = []
         for i in self.folds:

@@ -132,26 +132,23 @@ def check_folds(assignment, alpha: float = 0.05, adjust: str = "holm", omission:
     level = alpha / k if adjust == "holm" and k > 1 else alpha
     rows = []
     empty = []
-    # Kinds as small codes once: per fold only integer counts (no string comparisons).
-    code = np.zeros(assignment.kind.size, np.int8)
-    for j, word in enumerate(("presence", "absence", "background"), start=1):
-        code[assignment.kind == word] = j
+    code = assignment.kind_codes  # 0 presence, 1 absence, 2 background
     for i in assignment.folds:
         ev = code[assignment.evaluation(i)]
-        n = int(np.count_nonzero(ev == 1))
+        n = int(np.count_nonzero(ev == 0))
         if n == 0:
             empty.append(i)
         kept = assignment.calibration(i)
         gaps = assignment.gaps(i)
         before = kept.size + gaps.size
-        pres_kept = int(np.count_nonzero(code[kept] == 1))
-        pres_gap = int(np.count_nonzero(code[gaps] == 1))
+        pres_kept = int(np.count_nonzero(code[kept] == 0))
+        pres_gap = int(np.count_nonzero(code[gaps] == 0))
         m = max(1, int(np.floor(0.5 * n + 0.5)))
         rows.append(FoldCheck(
             fold=int(i),
             evaluation_presences=n,
-            evaluation_absences=int(np.count_nonzero(ev == 2)),
-            evaluation_background=int(np.count_nonzero(ev == 3)),
+            evaluation_absences=int(np.count_nonzero(ev == 1)),
+            evaluation_background=int(np.count_nonzero(ev == 2)),
             binomial_bound=float(level ** (1.0 / n)) if n else 0.0,
             can_omit=bool(n and np.floor(m * omission + 1e-9) >= 1),
             calibration_presences=pres_kept,

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from splitter.dependence.audit import AuditResult, audit_split
-from splitter.dependence.resplit import NULL_SPLITS
+from splitter.dependence.resplit import NULL_SPLITS, check_null_splits
 from splitter.errors import InputError
 from splitter.partition.assignment import FoldAssignment
 
@@ -58,6 +58,7 @@ def audit(
     -------
     AuditResult, and a dict of context (range source, notes, range estimate or None)
     """
+    null_splits = check_null_splits(null_splits)  # before any raster is read
     if assignment.records is None:
         raise InputError("the fold assignment carries no records; build it with splitter.design or splitter.read_fold_table.")
     recs = assignment.records

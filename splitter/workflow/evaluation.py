@@ -362,6 +362,8 @@ def evaluate(
         raise InputError(f"alpha={alpha}: give a level between 0 and 1 (e.g. 0.05).")
     if adjust not in ADJUSTMENTS:
         raise InputError(f"adjust={adjust!r}: use 'holm' (Holm's adjustment across folds) or 'none'.")
+    if isinstance(model, str) and model != "baseline":
+        raise InputError(f"model={model!r}: the built-in model is 'baseline' (pass other estimators from Python).")
     if covariates and model is None:
         raise InputError("`covariates` columns are for a model fitted here: give `model` (baseline) too.")
     if predictions is None and prediction_table is None and model is None:

@@ -292,8 +292,6 @@ def audit_step(assignment, fold_names, options: JobOptions, out_dir, *, command:
     from splitter.workflow.audit import audit
 
     o = options
-    if o.null_splits < 19:
-        raise InputError(f"null_splits={o.null_splits}: give at least 19 random re-splits (199 is the default).")
     result, context = audit(assignment, env=list(o.env), covariates=list(o.covariate_column), range_km=o.range_km,
                             range_from=o.range_from,
                             group_column=o.group_column, region=o.region, seed=o.seed, fold_names=fold_names,
@@ -311,10 +309,6 @@ def evaluate_step(assignment, fold_names, options: JobOptions, out_dir, *, comma
 
     o = options
     out_dir = Path(out_dir)
-    if o.model is not None and o.model != "baseline":
-        raise InputError(f"model={o.model!r}: the built-in model is 'baseline' (pass other estimators from Python).")
-    if o.adjust not in ("holm", "none"):
-        raise InputError(f"adjust={o.adjust!r}: use 'holm' (Holm's adjustment across folds) or 'none'.")
     result = evaluate(assignment, predictions=o.predictions, prediction_table=o.prediction_table, model=o.model,
                       env=list(o.env), covariates=list(o.covariate_column), region=o.region, threshold=o.threshold, omission=o.omission,
                       replicates=o.replicates, alpha=o.alpha, adjust=o.adjust, seed=o.seed,

@@ -15,11 +15,8 @@ import numpy as np
 import pandas as pd
 
 
-def invented_records(n: int, seed: int = 0):
+def invented_frame(n: int, seed: int = 0) -> pd.DataFrame:
     """Clustered presences (20 %) and uniform background over a 10 x 8 degree region."""
-    from splitter.geo import Points
-    from splitter.io.records import Records
-
     rng = np.random.default_rng(seed)
     n_p = n // 5
     centres = rng.uniform([0, 40], [10, 48], size=(200, 2))
@@ -27,9 +24,18 @@ def invented_records(n: int, seed: int = 0):
     lon = np.r_[centres[pick, 0] + rng.normal(0, 0.2, n_p), rng.uniform(0, 10, n - n_p)]
     lat = np.r_[centres[pick, 1] + rng.normal(0, 0.15, n_p), rng.uniform(40, 48, n - n_p)]
     kind = np.array(["presence"] * n_p + ["background"] * (n - n_p), object)
-    table = pd.DataFrame({"lon": lon, "lat": lat})
-    return Records(table=table, points=Points.lonlat(lon, lat), record_id=np.arange(1, n + 1).astype(str).astype(object),
-                   kind=kind, dropped=np.full(n, "", object), x_column="lon", y_column="lat")
+    return pd.DataFrame({"lon": lon, "lat": lat, "kind": kind})
+
+
+def invented_records(n: int, seed: int = 0):
+    """:func:`invented_frame` as splitter Records."""
+    from splitter.geo import Points
+    from splitter.io.records import Records
+
+    df = invented_frame(n, seed)
+    return Records(table=df[["lon", "lat"]], points=Points.lonlat(df.lon.to_numpy(), df.lat.to_numpy()),
+                   record_id=np.arange(1, n + 1).astype(str).astype(object), kind=df.kind.to_numpy(object),
+                   dropped=np.full(n, "", object), x_column="lon", y_column="lat")
 
 
 def main():

@@ -73,19 +73,17 @@ SLOPE_LIMIT = 1.15  # n log n over a decade or two has a fitted slope of about 1
 # ----------------------------------------------------------------------------- invented inputs
 
 def _records_csv(path: Path, n: int, seed: int = 0) -> Path:
-    """Clustered presences (20 %) and uniform background over 10 x 8 degrees, with two covariates."""
-    import pandas as pd
+    """bench_design's invented records (clustered presences, uniform background) with two covariates."""
+    sys.path.insert(0, str(HERE))
+    from bench_design import invented_frame
 
-    rng = np.random.default_rng(seed)
-    n_p = n // 5
-    centres = rng.uniform([0, 40], [10, 48], size=(200, 2))
-    pick = rng.integers(0, 200, n_p)
-    lon = np.r_[centres[pick, 0] + rng.normal(0, 0.2, n_p), rng.uniform(0, 10, n - n_p)]
-    lat = np.r_[centres[pick, 1] + rng.normal(0, 0.15, n_p), rng.uniform(40, 48, n - n_p)]
-    kind = np.where(np.arange(n) < n_p, "presence", "background")
-    pd.DataFrame({"record_id": np.arange(1, n + 1), "longitude": lon.round(5), "latitude": lat.round(5),
-                  "kind": kind, "temp": (20 - 0.8 * (lat - 40) + rng.normal(0, 1, n)).round(3),
-                  "moist": (0.5 + 0.04 * lon + rng.normal(0, 0.05, n)).round(4)}).to_csv(path, index=False)
+    rng = np.random.default_rng(seed + 1)
+    df = invented_frame(n, seed)
+    lon, lat = df.lon.to_numpy(), df.lat.to_numpy()
+    df = df.assign(record_id=np.arange(1, n + 1), longitude=lon.round(5), latitude=lat.round(5),
+                   temp=(20 - 0.8 * (lat - 40) + rng.normal(0, 1, n)).round(3),
+                   moist=(0.5 + 0.04 * lon + rng.normal(0, 0.05, n)).round(4))
+    df[["record_id", "longitude", "latitude", "kind", "temp", "moist"]].to_csv(path, index=False)
     return path
 
 
