@@ -34,6 +34,11 @@ __all__ = ["CellSource", "as_cells", "SuitabilitySurface", "summarise_surface", 
 # Cells keyed at a time inside a block: the lookup's temporaries (bucket numbers,
 # keys) then stay in the CPU caches.
 _CHUNK = 1 << 18
+# A streamed source keeps its cells in memory after its first pass when they fit in
+# this many bytes (about 1.5 * 10^8 float32 cells), so the kernels' later passes
+# (summary, null draws, null summary) never read or decode the raster again.
+# Larger rasters are read afresh on every pass, as before.
+KEEP_BYTES = 640 << 20
 
 
 # ----------------------------------------------------------------------------- source
@@ -61,6 +66,7 @@ class CellSource:
     # Cells held in memory (values, weights or None): kernels may then sort them once
     # and answer every query by binary search (see summarise_surface).
     in_memory: tuple | None = field(default=None, repr=False)
+    keep_bytes: int = field(default=KEEP_BYTES, repr=False)
     _cache: dict = field(default_factory=dict, repr=False)
 
     @classmethod
@@ -96,10 +102,54 @@ class CellSource:
                 self._cache["sorted"] = (v[order], w[order])
         return self._cache["sorted"]
 
+    def parts(self, count: int = 2) -> list:
+        """The blocks as ``count`` consecutive parts when they are kept in memory (each an
+        iterable of ``(values, weights)``), else one part: the stream itself."""
+        kept = self._cache.get("kept")
+        if kept is None or len(kept) < count:
+            return [self.blocks()]
+        cut = np.linspace(0, len(kept), count + 1).astype(int)
+        return [self._replay(kept[a:b]) for a, b in zip(cut[:-1], cut[1:])]
+
+    @staticmethod
+    def _replay(kept):
+        for v, runs in kept:
+            yield v, (None if runs is None else np.repeat(runs[0], runs[1]))
+
     def blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
-        """``(values, weights)`` of every block, in a fixed order."""
+        """``(values, weights)`` of every block, in a fixed order.
+
+        The first complete pass of a streamed source keeps its blocks (values as
+        given, weights run-length coded: a raster's areas change only from row to
+        row) while they fit in ``keep_bytes``; later passes replay them.
+        """
+        kept = self._cache.get("kept")
+        if kept is not None:
+            yield from self._replay(kept)
+            return
+        keeping = [] if self.in_memory is None and self.keep_bytes > 0 and "too_big" not in self._cache else None
+        size = 0
         for b in self.open_blocks():
-            yield _block_arrays(b)
+            v, w = _block_arrays(b)
+            if keeping is not None:
+                runs = None if w is None else _runs(w)
+                size += v.nbytes + (0 if runs is None else runs[0].nbytes + runs[1].nbytes)
+                if size > self.keep_bytes:
+                    keeping = None
+                    self._cache["too_big"] = True
+                else:
+                    keeping.append((v, runs))
+            yield v, w
+        if keeping is not None:
+            self._cache["kept"] = keeping
+
+
+def _runs(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Run-length code of a weight array: (value of each run, its length)."""
+    if w.size == 0:
+        return w[:0].copy(), np.zeros(0, np.int64)
+    starts = np.concatenate(([0], np.flatnonzero(w[1:] != w[:-1]) + 1))
+    return w[starts].copy(), np.diff(np.append(starts, w.size))
 
 
 def is_streamed(cells) -> bool:
@@ -118,7 +168,9 @@ def as_cells(cells, weights=None) -> CellSource:
     if isinstance(cells, CellSource):
         return cells
     if is_streamed(cells):
-        return CellSource(cells if callable(cells) else (lambda: cells))
+        if callable(cells):
+            return CellSource(cells)
+        return CellSource(lambda: cells, keep_bytes=0)  # a list of blocks is in memory already
     if not isinstance(cells, (np.ndarray, list, tuple)) and iter(cells) is cells:
         raise InputError(
             "The cells can be streamed only once here, but the tests pass over them more than once; "
@@ -170,9 +222,9 @@ class _CellKeys:
         self.n_keys = 2 * u.size + 1
         low = float(self.edges[0])
         span = float(self.edges[-1]) - low  # > 0: u_0+ > u_0
-        # About 16 buckets per key, so that few cells share a bucket with a key even
+        # About 8 buckets per key, so that few cells share a bucket with a key even
         # when there are many keys (the partial ROC's null places ~B n values).
-        buckets = int(min(1 << 24, max(1 << 16, 16 * self.n_keys)))
+        buckets = int(min(1 << 24, max(1 << 16, 8 * self.n_keys)))
         with np.errstate(over="ignore", divide="ignore"):
             scale = buckets / span
         self.use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
@@ -183,7 +235,10 @@ class _CellKeys:
             per_bucket = np.bincount(edge_bucket, minlength=buckets + 2)
             below = np.cumsum(per_bucket) - per_bucket  # edges in lower buckets
             self.table = below.astype(np.int32) if self.n_keys < 2**31 else below
-            self.shared = per_bucket > 0
+            # Edges per bucket, capped at 3 ("more than two"): a bucket with one or two
+            # edges places its cells by comparing with them, only fuller ones search.
+            self.count = np.minimum(per_bucket, 3).astype(np.int8)
+            self.padded = np.append(self.edges, np.inf)  # edges[t + 1] exists for the last edge too
 
     def __call__(self, vb: np.ndarray) -> np.ndarray:
         """Key (0 .. n_keys - 1) of every value of the block ``vb``."""
@@ -191,9 +246,18 @@ class _CellKeys:
             with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
                 b = _bucket(vb, self.low, self.scale, self.buckets)
             key = self.table[b]
-            near = np.flatnonzero(self.shared[b])
+            count = self.count[b]
+            near = np.flatnonzero(count)
             if near.size:
-                key[near] = np.searchsorted(self.edges, vb[near].astype(np.float64), side="right")
+                # A cell sharing its bucket with edges e[t] (and e[t + 1]): its key is t
+                # plus the number of those edges at or below it, exactly as a search gives.
+                v = vb[near].astype(np.float64)
+                t, c = key[near], count[near]
+                e = self.padded
+                key[near] = t + (v >= e[t]) + ((c >= 2) & (v >= e[t + 1]))
+                full = np.flatnonzero(c > 2)
+                if full.size:
+                    key[near[full]] = np.searchsorted(self.edges, v[full], side="right")
             return key
         # Query values span less than ~1e-300, or more than the float range:
         # a plain binary search for every cell.
@@ -362,6 +426,45 @@ def surface_range(cells) -> tuple[float, float]:
 
 
 
+def _tally(blocks, keys: _CellKeys) -> tuple:
+    """Slot weights, counts and value extremes of some blocks (one part of a summary)."""
+    slots = np.zeros(keys.n_keys)
+    n_values = n_cells = 0
+    lo = live_lo = np.inf
+    hi = live_hi = -np.inf
+    for v, w in blocks:
+        if v.size == 0:
+            continue
+        # min and max propagate NaN and show infinities: two reductions, no mask over the block.
+        bmin, bmax = float(v.min()), float(v.max())
+        if not (np.isfinite(bmin) and np.isfinite(bmax)):
+            raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
+        lo, hi = min(lo, bmin), max(hi, bmax)
+        n_values += v.size
+        if w is None:
+            n_cells += v.size
+            live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
+        else:
+            wmin, wsum = float(w.min()), float(w.sum())
+            if not (np.isfinite(wsum) and wmin >= 0.0):
+                raise InputError("Cell weights must be finite and not negative.")
+            if wmin > 0.0:
+                n_cells += v.size
+                live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
+            else:
+                live = v[w > 0]
+                n_cells += live.size
+                if live.size:
+                    live_lo, live_hi = min(live_lo, float(live.min())), max(live_hi, float(live.max()))
+        for start in range(0, v.size, _CHUNK):
+            key = keys(v[start : start + _CHUNK])
+            if w is None:
+                slots += np.bincount(key, minlength=keys.n_keys)
+            else:
+                slots += np.bincount(key, weights=w[start : start + _CHUNK], minlength=keys.n_keys)
+    return slots, n_values, n_cells, lo, hi, live_lo, live_hi
+
+
 def summarise_surface(cells, query_values) -> SuitabilitySurface:
     """Stream cell blocks once into exact weights around the query values.
 
@@ -403,40 +506,23 @@ def summarise_surface(cells, query_values) -> SuitabilitySurface:
     if source.in_memory is not None:
         return _summarise_sorted(source, q)
     keys = _CellKeys(q)
-    slots = np.zeros(keys.n_keys)
-    n_values = n_cells = 0
-    lo = live_lo = np.inf
-    hi = live_hi = -np.inf
-    for v, w in source.blocks():
-        if v.size == 0:
-            continue
-        # min and max propagate NaN and show infinities: two reductions, no mask over the block.
-        bmin, bmax = float(v.min()), float(v.max())
-        if not (np.isfinite(bmin) and np.isfinite(bmax)):
-            raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
-        lo, hi = min(lo, bmin), max(hi, bmax)
-        n_values += v.size
-        if w is None:
-            n_cells += v.size
-            live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
-        else:
-            wmin, wsum = float(w.min()), float(w.sum())
-            if not (np.isfinite(wsum) and wmin >= 0.0):
-                raise InputError("Cell weights must be finite and not negative.")
-            if wmin > 0.0:
-                n_cells += v.size
-                live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
-            else:
-                live = v[w > 0]
-                n_cells += live.size
-                if live.size:
-                    live_lo, live_hi = min(live_lo, float(live.min())), max(live_hi, float(live.max()))
-        for start in range(0, v.size, _CHUNK):
-            key = keys(v[start : start + _CHUNK])
-            if w is None:
-                slots += np.bincount(key, minlength=keys.n_keys)
-            else:
-                slots += np.bincount(key, weights=w[start : start + _CHUNK], minlength=keys.n_keys)
+    parts = source.parts()
+    if len(parts) == 1:
+        tallies = [_tally(parts[0], keys)]
+    else:
+        # Cells kept in memory: each half is tallied on its own core (numpy releases
+        # the GIL in the lookup), then the halves are added in a fixed order.
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(len(parts)) as pool:
+            tallies = list(pool.map(lambda part: _tally(part, keys), parts))
+    slots = tallies[0][0]
+    for t in tallies[1:]:
+        slots = slots + t[0]
+    n_values = sum(t[1] for t in tallies)
+    n_cells = sum(t[2] for t in tallies)
+    lo, hi = min(t[3] for t in tallies), max(t[4] for t in tallies)
+    live_lo, live_hi = min(t[5] for t in tallies), max(t[6] for t in tallies)
     if n_values == 0:
         raise InputError("No cell values were given; the testing region has no valid cells.")
     total = float(slots.sum())

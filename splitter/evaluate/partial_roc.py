@@ -454,21 +454,42 @@ def partial_roc(
     s = _presence_scores(presence_scores)
     source = as_cells(cell_values, cell_weights)
     surface = _ranked_surface(source, s, surface)
+    m = _sample_size(s.size, sample_share)
+    picks, drawn = null_draws(source, s.size, m, replicates, surface.total_weight, seed)
+    null_surface = summarise_surface(source, np.unique(drawn))
+    return tested(s, surface, picks, drawn, null_surface, omission)
+
+
+def null_draws(cells, n: int, m: int, replicates: int, total_weight: float, seed):
+    """The random numbers of a partial ROC test, in their fixed order.
+
+    Returns the bootstrap's presence indices, exactly ``rng.integers(0, n, size=(replicates, m))``,
+    then the values of ``replicates * n`` cells drawn by area from the same generator
+    (the null: presences placed at random). A caller that knows the cells' total
+    weight before summarising them can draw first and summarise once for every value.
+    """
+    rng = np.random.default_rng(seed)
+    picks = rng.integers(0, n, size=(replicates, m))
+    return picks, draw_cells(cells, replicates * n, total_weight, rng)
+
+
+def tested(s: np.ndarray, surface: SuitabilitySurface, picks: np.ndarray, drawn: np.ndarray,
+           null_surface: SuitabilitySurface, omission: float) -> PartialROCResult:
+    """The partial ROC result from summaries made for the presence scores ``s`` and for the
+    null's drawn cell values (one summary may serve both), and the draws of :func:`null_draws`."""
+    _ranked_surface(None, s, surface)
+    replicates, m = picks.shape
     n = s.size
     u, inverse = np.unique(s, return_inverse=True)
     inverse = inverse.ravel()
     table = _table(surface, u)
     curve = _curve(table, inverse)
     observed = float(_ratios(inverse[None, :], table, omission)[0])
-
-    rng = np.random.default_rng(seed)
-    m = _sample_size(n, sample_share)
-    boot = _ratios(inverse[rng.integers(0, n, size=(replicates, m))], table, omission)
+    boot = _ratios(inverse[picks], table, omission)
 
     # The null: n presences placed at random in the testing region, B times.
-    drawn = draw_cells(source, replicates * n, surface.total_weight, rng)
     null_values, null_keys = np.unique(drawn, return_inverse=True)
-    null_table = _table(summarise_surface(source, null_values), null_values)
+    null_table = _table(null_surface, null_values)
     null = _ratios(null_keys.reshape(replicates, n), null_table, omission)
     # Ratios equal to the observed one up to rounding count as "at least as
     # large" (the tolerance scipy.stats.monte_carlo_test uses).

@@ -1,32 +1,36 @@
 """A fold's binomial area share, partial ROC and Boyce index in as few passes as possible.
 
 The significance and performance tests of a fold need from the prediction raster
-only a handful of numbers, all known in advance of reading it:
+only a handful of numbers:
 
 * the cumulative binomial test: the area share of cells ``>= threshold``;
 * the partial ROC (Ecological Modelling 213, 2008): for every distinct evaluation
   presence value u, the area share of cells strictly below u and equal to u (see
-  :mod:`splitter.evaluate.partial_roc`; its bootstrap never looks at cells again,
-  its null of presences placed at random makes two passes of its own);
+  :mod:`splitter.evaluate.partial_roc`; its bootstrap never looks at cells again);
+  and for its null, presences placed at random by area, the same shares at the
+  drawn cells' values;
 * the continuous Boyce index ("Evaluating the ability of habitat suitability models
   to predict species presences", Ecological Modelling 2006): the area share of cells
   in each closed moving window ``[start, end]``, i.e. the area below each ``start``
   and at or below each ``end``.
 
 So the cells (a :class:`~splitter.evaluate.cells.CellSource`: an array in memory
-or a raster read in windows) are streamed once, in blocks (e.g. the row windows of
-:func:`splitter.io.rasters.valid_cells`), and each block is placed among the sorted
-*query values* (presence values, thresholds, window edges) with the same one-pass
-lookup as the in-memory partial ROC; one weighted ``bincount`` per block adds the
-block's area to every "strictly between two query values" and "equal to a query
-value" slot. The result, :class:`SuitabilitySurface`, holds those slot weights
-exactly (no binning of values): every number above is a sum of slots. Memory is
-one block plus O(number of query values), whatever the raster size.
+or a raster read in windows) pass three times, in blocks (e.g. the row windows of
+:func:`splitter.io.rasters.valid_cells`):
 
-The Boyce windows are laid on the range of the cell values, which is only known
-after a pass over the cells, so :func:`evaluate_surface` makes two passes when the
-Boyce index is asked for and no range is given: a cheap min/max pass, then the
-summary pass.
+1. the value range (where the Boyce windows lie) and the total area;
+2. the partial ROC null's cells, drawn by area (which needs only the total);
+3. one summary: each block is placed among the sorted *query values* (presence
+   values, thresholds, Boyce window edges and the null's drawn values) with one
+   lookup per cell; one weighted ``bincount`` per block adds the block's area to
+   every "strictly between two query values" and "equal to a query value" slot.
+
+Only the first pass reads a raster: a source keeps the cells it read in memory
+when they fit (:data:`~splitter.evaluate.cells.KEEP_BYTES`; the raster's own float
+type, areas run-length coded), so passes 2 and 3 never decode the file again;
+larger rasters are read afresh. The result, :class:`SuitabilitySurface`, holds
+the slot weights exactly (no binning of values): every number above is a sum of
+slots.
 
 The results equal ``area_predicted`` and ``boyce_index`` on all cells up to the
 order in which floating-point areas are summed (about 1e-15 relative); the partial
@@ -59,7 +63,7 @@ from splitter.evaluate.cells import (
     summarise_surface,
     surface_range,
 )
-from splitter.evaluate.partial_roc import PartialROCResult, _check_options, partial_roc
+from splitter.evaluate.partial_roc import PartialROCResult, _check_options, _sample_size, null_draws, tested
 
 __all__ = [
     "SuitabilitySurface",
@@ -161,6 +165,21 @@ def surface_queries(presence_scores=(), thresholds=(), boyce_range=None, width_s
 # ----------------------------------------------------------------------------- tests
 
 
+def _range_and_total(source) -> tuple[float, float, float]:
+    """Smallest and largest cell value and the summed weight: the first pass over the cells
+    (for a raster, the one that reads the file; a source keeps the cells for the later passes)."""
+    lo, hi, total = np.inf, -np.inf, 0.0
+    for v, w in source.blocks():
+        if v.size:
+            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
+            total += float(v.size) if w is None else float(w.sum())
+    if lo > hi:
+        raise InputError("No cell values were given; the testing region has no valid cells.")
+    if not (np.isfinite(lo) and np.isfinite(hi)):
+        raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
+    return lo, hi, total
+
+
 def evaluate_surface(
     cells,
     presence_scores,
@@ -181,9 +200,9 @@ def evaluate_surface(
     ----------
     cells : CellSource, callable or list of blocks
         The testing region's cells (see :func:`splitter.evaluate.cells.as_cells`),
-        e.g. ``lambda: valid_cells(path, region)``. Streamed once for the value
-        range when the Boyce index is asked for without ``value_range``, once for
-        the summary, and twice more for the partial ROC's null.
+        e.g. ``lambda: valid_cells(path, region)``. Passed over three times (range
+        and total area, the null's draws, one summary for every value asked about);
+        a raster is read once when its cells fit in memory.
     presence_scores : array_like of float
         Predictions at the evaluation presences.
     thresholds : array_like of float
@@ -221,19 +240,23 @@ def evaluate_surface(
         raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
     thr = _finite_scores(thresholds, "thresholds", "thresholds")
     source = as_cells(cells)
+    lo, hi, total = _range_and_total(source)
     boyce_range = None
     if boyce:
-        boyce_range = surface_range(source) if value_range is None else tuple(value_range)
+        boyce_range = (lo, hi) if value_range is None else tuple(value_range)
         if value_range is None and boyce_range[0] == boyce_range[1]:
             # Same message as the partial ROC gives, rather than the Boyce one about an empty range.
             raise InputError(
                 "All cell values of the testing region are equal, so the prediction does not rank "
                 "the region; check the prediction raster for this fold."
             )
-    queries = surface_queries(pres, thr, boyce_range, width_share, step_share)
+    # The null's cells are drawn before any summary (they need only the total area),
+    # so one summary answers for the presences, thresholds, Boyce edges and draws.
+    picks, drawn = null_draws(source, pres.size, _sample_size(pres.size, sample_share), replicates,
+                              total, seed)
+    queries = np.union1d(surface_queries(pres, thr, boyce_range, width_share, step_share), drawn)
     surface = summarise_surface(source, queries)
-    proc = partial_roc(source, pres, omission=omission, replicates=replicates, sample_share=sample_share,
-                       seed=seed, surface=surface)
+    proc = tested(pres, surface, picks, drawn, surface, omission)
     shares = np.array([surface.area_share_at(t) for t in thr])
     boyce_result = (boyce_index(pres, width_share=width_share, step_share=step_share, value_range=boyce_range,
                                 surface=surface) if boyce else None)

@@ -30,7 +30,8 @@ array([ 0.,  5., nan])
 from __future__ import annotations
 
 import contextlib
-from dataclasses import dataclass
+import os
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Iterator, NamedTuple
 
@@ -470,27 +471,52 @@ def sample_rasters(paths, points: Points, *, max_window_cells: int = WINDOW_CELL
 # ---------------------------------------------------------------------- valid cells
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class CellBlock:
     """Valid cells of one row window.
 
     Attributes
     ----------
     rows, cols : ndarray of int64
-        Cell indices in the (first) raster's grid.
-    values : ndarray of float64
-        Shape (m,) from :func:`valid_cells`; (m, k) for k rasters internally.
+        Cell indices in the (first) raster's grid (worked out from the window's
+        valid-cell mask when first asked for: the evaluation kernels never need them).
+    values : ndarray
+        Shape (m,) from :func:`valid_cells`, in the raster's own float type (float32
+        values stay float32: every kernel compares them exactly as float64); (m, k)
+        float64 for k rasters internally.
     areas : ndarray of float64
         Cell areas in km².
     """
 
-    rows: np.ndarray
-    cols: np.ndarray
     values: np.ndarray
     areas: np.ndarray
+    _rows: np.ndarray | None = field(default=None, repr=False)
+    _cols: np.ndarray | None = field(default=None, repr=False)
+    # (mask, row_off, col_off): where the valid cells lie in the window, row-major.
+    _where: tuple | None = field(default=None, repr=False)
+
+    @classmethod
+    def at(cls, rows, cols, values, areas) -> "CellBlock":
+        return cls(values, areas, np.asarray(rows), np.asarray(cols))
+
+    def _indices(self):
+        if self._rows is None:
+            mask, r0, c0 = self._where
+            r, c = np.nonzero(mask)
+            object.__setattr__(self, "_rows", r + r0)
+            object.__setattr__(self, "_cols", c + c0)
+        return self._rows, self._cols
+
+    @property
+    def rows(self) -> np.ndarray:
+        return self._indices()[0]
+
+    @property
+    def cols(self) -> np.ndarray:
+        return self._indices()[1]
 
     def __len__(self) -> int:
-        return self.rows.shape[0]
+        return self.values.shape[0]
 
 
 def _row_windows(info: RasterInfo, geom: BaseGeometry | None, window_rows: int | None) -> list[Window]:
@@ -549,8 +575,16 @@ class _CellReader:
     def __enter__(self):
         # Each window is read once, so GDAL's block cache (5 % of RAM by default)
         # only holds memory; a small cache keeps large rasters lean.
-        self._stack.enter_context(rasterio.Env(GDAL_CACHEMAX=64))
+        # GDAL decodes the tiles of a window on every core (a full-width window spans
+        # many tiles) unless the user set GDAL_NUM_THREADS.
+        threads = os.environ.get("GDAL_NUM_THREADS", "ALL_CPUS")
+        self._stack.enter_context(rasterio.Env(GDAL_CACHEMAX=64, GDAL_NUM_THREADS=threads))
         self.srcs = [self._stack.enter_context(rasterio.open(p)) for p in self.paths]
+        from rasterio.enums import MaskFlags
+
+        # Validity from nodata (or none at all) can be tested on the values themselves.
+        flags = set(self.srcs[0].mask_flag_enums[0])
+        self.fast_mask = flags <= {MaskFlags.nodata, MaskFlags.all_valid}
         return self
 
     def __exit__(self, *exc):
@@ -559,6 +593,37 @@ class _CellReader:
     def centres(self, rows, cols) -> Points:
         x, y = _apply(self.first.transform, cols + 0.5, rows + 0.5)
         return Points(x, y, self.first.crs)
+
+    def single(self, window: Window) -> CellBlock:
+        """Valid cells of the first raster alone, values in its own float type.
+
+        One read, one mask and one boolean selection per window: the evaluation
+        kernels stream every cell of a prediction raster through here, so no
+        float64 copy of the window and no cell indices are made.
+        """
+        src = self.srcs[0]
+        if self.fast_mask:
+            data = src.read(1, window=window)
+            if data.dtype.kind != "f":
+                data = data.astype(np.float64)
+            ok = np.isfinite(data)
+            if src.nodata is not None and not np.isnan(src.nodata):
+                ok &= data != data.dtype.type(src.nodata)
+        else:
+            # A mask band or alpha channel: GDAL's own mask says which cells are valid.
+            masked = src.read(1, window=window, masked=True)
+            data = np.asarray(masked.data)
+            if data.dtype.kind != "f":
+                data = data.astype(np.float64)
+            ok = ~np.ma.getmaskarray(masked) & np.isfinite(data)
+        if self.geom is not None:
+            ok &= rasterio.features.geometry_mask(
+                [self.geom], out_shape=ok.shape, transform=src.window_transform(window), invert=True
+            )
+        r0, c0 = int(window.row_off), int(window.col_off)
+        per_row = np.count_nonzero(ok, axis=1)
+        areas = np.repeat(self.row_areas[r0 : r0 + ok.shape[0]], per_row)
+        return CellBlock(data[ok], areas, _where=(ok, r0, c0))
 
     def block(self, window: Window) -> CellBlock:
         first_values = _read_float(self.srcs[0], window)
@@ -579,7 +644,7 @@ class _CellReader:
         values = np.column_stack(columns)
         keep = ~np.isnan(values).any(axis=1)
         rows, cols = rows[keep], cols[keep]
-        return CellBlock(rows, cols, values[keep], self.row_areas[rows])
+        return CellBlock.at(rows, cols, values[keep], self.row_areas[rows])
 
 
 def valid_cells(path, region=None, window_rows: int | None = None) -> Iterator[CellBlock]:
@@ -613,9 +678,9 @@ def valid_cells(path, region=None, window_rows: int | None = None) -> Iterator[C
     """
     with _CellReader([path], region, window_rows) as reader:
         for window in reader.windows:
-            block = reader.block(window)
+            block = reader.single(window)
             if len(block):
-                yield CellBlock(block.rows, block.cols, block.values[:, 0], block.areas)
+                yield block
 
 
 def cell_values_and_areas(path, region=None, window_rows: int | None = None) -> tuple[np.ndarray, np.ndarray]:

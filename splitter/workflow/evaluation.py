@@ -115,6 +115,9 @@ class FoldEvaluation:
     dropped_no_prediction: int
     warnings: tuple = ()
     scores: pd.DataFrame | None = field(default=None, repr=False)
+    # Area of the testing region in km² (raster cells only; NaN otherwise): the extent
+    # check reads it here instead of passing over the raster again.
+    region_km2: float = field(default=float("nan"), repr=False)
 
     @property
     def interpretation(self) -> str:
@@ -426,7 +429,7 @@ def evaluate(
         )
     summary = _summarise(folds_out, alpha)
     if predictions is not None:
-        _extent_check(assignment, predictions, names, region_geom, warnings)
+        _extent_check(assignment, folds_out[0].region_km2, warnings)
     params = {
         "threshold_rule": str(rule), "omission": omission, "replicates": int(replicates),
         "alpha": alpha, "seed": int(seed), "model": model_label, "covariates": covariates,
@@ -529,9 +532,8 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
 
     try:
         if path is not None:
-            # The testing region is the raster's valid cells, read in windows (a
-            # min/max pass, a summary pass and the partial ROC null's two passes),
-            # whatever the raster's size.
+            # The testing region is the raster's valid cells, read once in windows and
+            # kept in memory when they fit (else read again for each later pass).
             from splitter.io.rasters import valid_cells
 
             surf = evaluate_surface(lambda: valid_cells(path, region), s_ev_p, [thr.value], omission=omission,
@@ -540,6 +542,7 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
             boyce = surf.boyce.statistic if surf.boyce is not None else np.nan
             cell_lo, cell_hi = surf.surface.value_min, surf.surface.value_max
             area_source = "raster cells (area-weighted)"
+            region_km2 = surf.surface.total_weight
         else:
             if s_ev_o.size == 0:
                 raise InputError("no raster and no evaluation background/absences with predictions; the binomial test needs one of them.")
@@ -547,6 +550,7 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
             proc = partial_roc(s_ev_o, s_ev_p, None, omission=omission, replicates=replicates, seed=seed)
             boyce = boyce_index(s_ev_p, s_ev_o).statistic
             cell_lo, cell_hi = np.inf, -np.inf
+            region_km2 = float("nan")
             area_source = f"evaluation {other_kind} records"
     except InputError as e:
         where = f"{path}: " if path is not None else "prediction table: "
@@ -575,6 +579,7 @@ def _evaluate_fold(assignment, i, label, pattern, table, region, rule, omission,
         binomial=binom, partial_roc=proc, p_fold=p_fold, p_adjusted=p_fold, significant=False,
         measures=meas, boyce=float(boyce), n_other=int(s_ev_o.size), other_kind=other_kind,
         area_source=area_source, dropped_no_prediction=no_pred, warnings=tuple(fold_warn), scores=scores,
+        region_km2=region_km2,
     )
 
 
@@ -651,15 +656,13 @@ def _summarise(folds, alpha) -> SplitSummary:
     )
 
 
-def _extent_check(assignment, pattern, names, region, warnings):
-    """Warn when the testing region dwarfs the area the records occupy."""
+def _extent_check(assignment, region_km2, warnings):
+    """Warn when the testing region (the first fold's valid raster cells) dwarfs the area
+    the records occupy."""
     import shapely
 
     from splitter.geo import equal_area_crs, planar_km
-    from splitter.io.rasters import valid_cells
 
-    first = names.get(assignment.folds[0], str(assignment.folds[0]))
-    region_km2 = float(sum(b.areas.sum() for b in valid_cells(_fold_raster(pattern, first), region)))
     kept = (assignment.fold >= 0) & (assignment.kind == "presence")
     pts = assignment.records.points.take(np.flatnonzero(kept))
     crs = equal_area_crs(pts) if pts.geographic else pts.crs

@@ -36,3 +36,69 @@ def test_sorted_and_streamed_slots_equal_the_definition(weighted):
         assert (s.value_min, s.value_max) == (cells.min(), cells.max())
         live = cells[w > 0]
         assert (s.live_min, s.live_max) == (live.min(), live.max())
+
+
+def _counting_source(cells, weights, keep_bytes):
+    """A streamed source that counts how often its blocks are opened (reads of a raster)."""
+    opened = []
+
+    def open_blocks():
+        opened.append(1)
+        for i in range(0, cells.size, 7000):
+            yield cells[i:i + 7000], weights[i:i + 7000]
+
+    return CellSource(open_blocks, keep_bytes=keep_bytes), opened
+
+
+@pytest.mark.parametrize("keep_bytes", [1 << 30, 50_000])
+def test_streamed_source_is_read_once_when_it_fits(keep_bytes):
+    """Within its budget a source replays the cells it kept; over it, it reads again.
+    Either way every pass (and the two-part summary of kept cells) gives the slot weights
+    of the definition (brute force, as above). Weights change only from row to row, as a
+    raster's areas do, so their run-length code is exercised."""
+    rng = np.random.default_rng(8)
+    cells = np.round(rng.random(60_000), 3).astype(np.float32)  # ties, float32 as rasters give
+    weights = np.repeat(rng.uniform(0.5, 2.0, 600), 100)
+    weights[:100] = 0.0
+    queries = np.unique(np.r_[cells[:300].astype(float), 0.25, 0.5])
+    below = np.array([weights[cells < q].sum() for q in queries])
+    equal = np.array([weights[cells == q].sum() for q in queries])
+    source, opened = _counting_source(cells, weights, keep_bytes)
+    for _ in range(3):
+        s = summarise_surface(source, queries)
+        assert np.allclose(s.weight_below, below, rtol=1e-12, atol=1e-9)
+        assert np.allclose(s.weight_equal, equal, rtol=1e-12, atol=1e-9)
+    replayed = np.concatenate([w for _, w in source.blocks()])
+    np.testing.assert_array_equal(replayed, weights)
+    assert len(opened) == (1 if keep_bytes > cells.nbytes * 2 else 4)
+
+
+def test_evaluate_surface_reads_a_raster_once(tmp_path):
+    """Evaluating a fold from a raster decodes it once when its cells fit in memory, and
+    gives the same result as when every pass reads the file again."""
+    from rasterio.transform import from_origin
+
+    from splitter.evaluate.surface import evaluate_surface
+    from splitter.io.rasters import valid_cells, write_geotiff
+
+    rng = np.random.default_rng(2)
+    grid = rng.random((120, 90))
+    path = tmp_path / "p.tif"
+    write_geotiff(path, grid.astype(np.float32), from_origin(0, 60, 0.5, 0.5), "EPSG:4326")
+    presences = np.sqrt(rng.random(40))
+    reads = []
+
+    def cells():
+        reads.append(1)
+        return valid_cells(path, window_rows=16)
+
+    kept = evaluate_surface(cells, presences, thresholds=[0.3], replicates=99, seed=4)
+    assert len(reads) == 1
+    reads.clear()
+    fresh = evaluate_surface(CellSource(cells, keep_bytes=0), presences, thresholds=[0.3],
+                             replicates=99, seed=4)
+    assert len(reads) == 3  # range and total, null draws, summary
+    assert fresh.partial_roc.pvalue == kept.partial_roc.pvalue
+    assert fresh.partial_roc.auc_ratio == pytest.approx(kept.partial_roc.auc_ratio, rel=1e-12)
+    assert fresh.boyce.statistic == pytest.approx(kept.boyce.statistic, rel=1e-12)
+    np.testing.assert_allclose(fresh.area_shares, kept.area_shares, rtol=1e-12)

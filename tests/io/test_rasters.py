@@ -431,3 +431,42 @@ def test_write_geotiff_round_trip_and_byte_identical(tmp_path):
 def test_write_geotiff_rejects_non_2d(tmp_path):
     with pytest.raises(InputError, match="2-D"):
         write_geotiff(tmp_path / "x.tif", np.zeros(3), GEO_TRANSFORM, "EPSG:4326")
+
+
+def test_valid_cells_agree_with_rasterio_masks(tmp_path):
+    """The fast read (nodata compared in the raster's own type) and GDAL's mask agree.
+
+    Reference: rasterio's ``read(masked=True)`` of the whole band (GDAL's own validity),
+    for a float32 raster with nodata and NaN, an integer raster with nodata, and a raster
+    whose validity comes from an internal mask band rather than a nodata value.
+    """
+    rng = np.random.default_rng(5)
+    arr = rng.normal(0, 1, (30, 20)).astype("float32")
+    arr[rng.random(arr.shape) < 0.2] = NODATA
+    arr[rng.random(arr.shape) < 0.05] = np.nan
+    ints = rng.integers(0, 50, (30, 20)).astype("int16")
+    ints[ints == 7] = -1
+    paths = [make_raster(tmp_path / "f.tif", arr, GEO_TRANSFORM, "EPSG:4326")]
+    profile = dict(driver="GTiff", width=20, height=30, count=1, dtype="int16", crs="EPSG:4326",
+                   transform=GEO_TRANSFORM, nodata=-1)
+    with rasterio.open(tmp_path / "i.tif", "w", **profile) as dst:
+        dst.write(ints, 1)
+    paths.append(tmp_path / "i.tif")
+    masked_profile = dict(profile, dtype="float32", nodata=None)
+    with rasterio.Env(GDAL_TIFF_INTERNAL_MASK=True):
+        with rasterio.open(tmp_path / "m.tif", "w", **masked_profile) as dst:
+            dst.write(np.abs(arr), 1)  # NODATA cells are ordinary values here: only the mask hides them
+            dst.write_mask(np.where(rng.random(arr.shape) < 0.3, 0, 255).astype("uint8"))
+    paths.append(tmp_path / "m.tif")
+    for path in paths:
+        with rasterio.open(path) as src:
+            ref = src.read(1, masked=True)
+        ok = ~np.ma.getmaskarray(ref) & np.isfinite(ref.data.astype(float))
+        blocks = list(valid_cells(path, window_rows=7))
+        np.testing.assert_array_equal(np.concatenate([b.values for b in blocks]), ref.data[ok].astype(float))
+        rows, cols = np.nonzero(ok)
+        np.testing.assert_array_equal(np.concatenate([b.rows for b in blocks]), rows)
+        np.testing.assert_array_equal(np.concatenate([b.cols for b in blocks]), cols)
+        # reference: pyproj.Geod.polygon_area_perimeter of each row's cells
+        np.testing.assert_allclose(np.concatenate([b.areas for b in blocks]),
+                                   geod_row_areas_km2(GEO_TRANSFORM, 30, 20)[rows], rtol=1e-6)
