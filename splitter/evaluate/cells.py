@@ -543,6 +543,24 @@ def summarise_surface(cells, query_values) -> SuitabilitySurface:
 
 
 
+def _run_ends(vs: np.ndarray, q: np.ndarray, left: np.ndarray) -> np.ndarray:
+    """``np.searchsorted(vs, q, side="right")`` given the left positions: a few steps along
+    each run of cells equal to its query value (most runs are 0 or 1 long for continuous
+    predictions), then a search only for the queries with longer runs."""
+    right = left.copy()
+    for _ in range(3):
+        inside = right < vs.size
+        step = inside.copy()
+        step[inside] = vs[right[inside]] == q[inside]
+        if not step.any():
+            return right
+        right += step
+    rest = (right < vs.size)
+    rest[rest] = vs[right[rest]] == q[rest]
+    right[rest] = np.searchsorted(vs, q[rest], side="right")
+    return right
+
+
 def _summarise_sorted(source: CellSource, q: np.ndarray) -> SuitabilitySurface:
     """summarise_surface for cells in memory: the cells are sorted once (the floor of any
     exact method) and every set of query values is then placed by binary search, its slots
@@ -569,8 +587,9 @@ def _summarise_sorted(source: CellSource, q: np.ndarray) -> SuitabilitySurface:
     n = vs.size
     bounds = np.empty(2 * q.size + 2, dtype=np.int64)
     bounds[0], bounds[-1] = 0, n
-    bounds[1:-1:2] = np.searchsorted(vs, q, side="left")
-    bounds[2:-1:2] = np.searchsorted(vs, q, side="right")
+    left = np.searchsorted(vs, q, side="left")
+    bounds[1:-1:2] = left
+    bounds[2:-1:2] = _run_ends(vs, q, left)
     if ws is None:
         slots = np.diff(bounds).astype(np.float64)
     else:
@@ -625,12 +644,18 @@ def draw_cells(cells, count: int, total_weight: float, rng: np.random.Generator)
     True
     """
     targets = rng.random(count) * float(total_weight)
+    source = as_cells(cells)
+    if source.in_memory is not None and source.in_memory[1] is None:
+        # Equal weights: the cumulative weights are 1, 2, ..., N, so the cell a target
+        # falls in is its integer part (what the search below finds, without it).
+        v = source.in_memory[0]
+        return v[np.minimum(targets.astype(np.int64), v.size - 1)].astype(np.float64)
     order = np.argsort(targets, kind="stable")
     t = targets[order]
     out = np.empty(count, dtype=np.float64)
     done, offset = 0, 0.0
     last_value = None
-    for v, w in as_cells(cells).blocks():
+    for v, w in source.blocks():
         if v.size == 0:
             continue
         cum = np.arange(1.0, v.size + 1.0) if w is None else np.cumsum(w)

@@ -102,3 +102,31 @@ def test_evaluate_surface_reads_a_raster_once(tmp_path):
     assert fresh.partial_roc.auc_ratio == pytest.approx(kept.partial_roc.auc_ratio, rel=1e-12)
     assert fresh.boyce.statistic == pytest.approx(kept.boyce.statistic, rel=1e-12)
     np.testing.assert_allclose(fresh.area_shares, kept.area_shares, rtol=1e-12)
+
+
+def test_run_ends_equal_numpy_searchsorted_right():
+    """The right ends of tie runs, found by stepping, equal numpy's own search (reference:
+    ``np.searchsorted(..., side="right")``), for long runs, no runs, all-equal cells, one
+    cell, and queries outside the cells."""
+    from splitter.evaluate.cells import _run_ends
+
+    rng = np.random.default_rng(0)
+    for vs in (np.sort(np.round(rng.random(10_000), 2)), np.sort(rng.random(10_000)), np.zeros(5),
+               np.array([1.0])):
+        q = np.unique(np.r_[rng.choice(vs, 50), -1.0, 2.0, vs[-1]])
+        left = np.searchsorted(vs, q, side="left")
+        np.testing.assert_array_equal(_run_ends(vs, q, left), np.searchsorted(vs, q, side="right"))
+
+
+def test_equal_weight_draws_are_the_cells_the_cumulative_search_picks():
+    """Cells in memory with equal weights are drawn by the integer part of each target; the
+    reference is the definition (the first cell whose cumulative weight exceeds the target,
+    found with numpy's searchsorted over 1, 2, ..., N), on the same random numbers."""
+    from splitter.evaluate.cells import draw_cells
+
+    rng = np.random.default_rng(1)
+    cells = rng.random(5_000)
+    drawn = draw_cells(CellSource.from_array(cells), 20_000, float(cells.size), np.random.default_rng(9))
+    targets = np.random.default_rng(9).random(20_000) * cells.size
+    at = np.searchsorted(np.arange(1.0, cells.size + 1.0), targets, side="right")
+    np.testing.assert_array_equal(drawn, cells[at])
