@@ -312,8 +312,13 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
     shape = (grid,) * d
     k_e = [_kernel_matrix(axes[j], h_e[j]) for j in range(d)]
     k_c = [_kernel_matrix(axes[j], h_c[j]) for j in range(d)]
-    occupied, cell_code = np.unique(cell, return_inverse=True)  # only cells holding records
-    pooled = np.bincount(cell_code, minlength=occupied.size)
+    # Only cells holding records (as np.unique(cell, return_inverse=True), by counting, not sorting).
+    per_cell = np.bincount(cell, minlength=n_cells)
+    occupied = np.flatnonzero(per_cell)
+    code_of = np.zeros(n_cells, np.intp)
+    code_of[occupied] = np.arange(occupied.size)
+    cell_code = code_of[cell]
+    pooled = per_cell[occupied]
 
     def d_of(ev_counts: np.ndarray) -> np.ndarray:
         c = ev_counts.shape[0]

@@ -724,6 +724,7 @@ def _model_data_note(kinds_used: set, notes: list):
 def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed, names, notes, progress) -> pd.DataFrame:
     """Fit a model per fold on calibration records' covariate columns; predict every record of the fold."""
     from splitter.io.atomic import atomic_write
+    from splitter.io.records import plain_numbers
 
     table = assignment.records.table
     cols = []
@@ -731,8 +732,11 @@ def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed
         if c not in table.columns:
             raise InputError(f"covariates={c!r}: no such column in the fold table; columns are: "
                              f"{', '.join(map(str, table.columns))}.")
-        cols.append(pd.to_numeric(table[c].astype(str).str.strip().str.replace(",", ".", regex=False),
-                                  errors="coerce").to_numpy(float))
+        vals = plain_numbers(table[c])
+        if vals is None:
+            vals = pd.to_numeric(table[c].astype(str).str.strip().str.replace(",", ".", regex=False),
+                                 errors="coerce").to_numpy(float)
+        cols.append(vals)
     X = np.column_stack(cols)
     finite = np.isfinite(X).all(axis=1)
     kind = assignment.kind
