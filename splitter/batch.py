@@ -532,8 +532,13 @@ def _quiet_cluster(distributed, n_workers: int):
             # Two clusters on one machine: Dask moves the second's status page to a free
             # loopback port and says so; that is no concern of a batch.
             warnings.filterwarnings("ignore", message="Port .* is already in use")
+            # Each worker is one of several processes sharing the cores: one thread inside
+            # its kernels too (nearest neighbours, GDAL decoding, numerical libraries).
+            single = {name: "1" for name in ("SPLITTER_THREADS", "GDAL_NUM_THREADS", "OMP_NUM_THREADS",
+                                             "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")}
             return distributed.LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
-                                            dashboard_address=None, silence_logs=logging.CRITICAL)
+                                            dashboard_address=None, silence_logs=logging.CRITICAL,
+                                            env=single)
     finally:
         if main:
             signal.signal(signal.SIGINT, previous)

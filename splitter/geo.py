@@ -20,6 +20,7 @@ import pyproj.exceptions
 from scipy.spatial import cKDTree
 
 from splitter.errors import InputError
+from splitter.threads import threads
 
 WGS84 = pyproj.CRS.from_epsg(4326)
 GEOD = pyproj.Geod(ellps="WGS84")
@@ -321,13 +322,13 @@ class NeighbourIndex:
         if n == 0:
             return np.zeros(0), np.zeros(0, dtype=np.int64)
         if not self.reference.geographic:
-            d, i = self._tree.query(np.column_stack([query.x, query.y]), k=1, workers=-1)
+            d, i = self._tree.query(np.column_stack([query.x, query.y]), k=1, workers=threads())
             return d * self._factor, i.astype(np.int64)
 
         xyz = _unit_xyz(query)
         nref = len(self.reference)
         k = min(2, nref)
-        dd, ii = self._tree.query(xyz, k=k, workers=-1)
+        dd, ii = self._tree.query(xyz, k=k, workers=threads())
         dd, ii = dd.reshape(n, k), ii.reshape(n, k)
         idx = ii[:, 0].astype(np.int64)
         best = _distance_km(query, self.reference.take(idx))
@@ -354,7 +355,7 @@ class NeighbourIndex:
             return np.full(n, np.nan), np.full(n, -1, np.int64)
         self_idx = np.arange(n)
         coords = _unit_xyz(ref) if ref.geographic else np.column_stack([ref.x, ref.y])
-        dd, ii = self._tree.query(coords, k=2, workers=-1)
+        dd, ii = self._tree.query(coords, k=2, workers=threads())
         # With duplicates the first neighbour may be another point at distance 0.
         col = np.where(ii[:, 0] == self_idx, 1, 0)
         idx = ii[self_idx, col].astype(np.int64)
@@ -372,7 +373,7 @@ class NeighbourIndex:
         nref = len(self.reference)
         while todo.size:
             kk = min(k, nref)
-            dd, ii = self._tree.query(xyz[todo], k=kk, workers=-1)
+            dd, ii = self._tree.query(xyz[todo], k=kk, workers=threads())
             dd = dd.reshape(len(todo), kk)
             ii = ii.reshape(len(todo), kk)
             inside = dd <= bound[todo, None]
@@ -409,11 +410,11 @@ class NeighbourIndex:
             return np.zeros(n, bool)
         if not self.reference.geographic:
             d, _ = self._tree.query(np.column_stack([query.x, query.y]), k=1,
-                                    distance_upper_bound=radius_km / self._factor, workers=-1)
+                                    distance_upper_bound=radius_km / self._factor, workers=threads())
             return d * self._factor < radius_km
         xyz = _unit_xyz(query)
         bound = float(_chord(radius_km * _SPHERE_SLACK)) * 1.000001 + 1e-12
-        d, i = self._tree.query(xyz, k=1, distance_upper_bound=bound, workers=-1)
+        d, i = self._tree.query(xyz, k=1, distance_upper_bound=bound, workers=threads())
         hit = np.zeros(n, bool)
         # A sphere distance under radius / slack is under the radius on the ellipsoid too
         # (their ratio stays within 1 %): those need no geodesic.

@@ -106,7 +106,7 @@ class CellSource:
         """The blocks as ``count`` consecutive parts when they are kept in memory (each an
         iterable of ``(values, weights)``), else one part: the stream itself."""
         kept = self._cache.get("kept")
-        if kept is None or len(kept) < count:
+        if kept is None or count < 2 or len(kept) < count:
             return [self.blocks()]
         cut = np.linspace(0, len(kept), count + 1).astype(int)
         return [self._replay(kept[a:b]) for a, b in zip(cut[:-1], cut[1:])]
@@ -506,7 +506,9 @@ def summarise_surface(cells, query_values) -> SuitabilitySurface:
     if source.in_memory is not None:
         return _summarise_sorted(source, q)
     keys = _CellKeys(q)
-    parts = source.parts()
+    from splitter.threads import threads
+
+    parts = source.parts(min(2, threads()))
     if len(parts) == 1:
         tallies = [_tally(parts[0], keys)]
     else:

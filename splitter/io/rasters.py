@@ -575,10 +575,12 @@ class _CellReader:
     def __enter__(self):
         # Each window is read once, so GDAL's block cache (5 % of RAM by default)
         # only holds memory; a small cache keeps large rasters lean.
-        # GDAL decodes the tiles of a window on every core (a full-width window spans
+        # GDAL decodes the tiles of a window on several cores (a full-width window spans
         # many tiles) unless the user set GDAL_NUM_THREADS.
-        threads = os.environ.get("GDAL_NUM_THREADS", "ALL_CPUS")
-        self._stack.enter_context(rasterio.Env(GDAL_CACHEMAX=64, GDAL_NUM_THREADS=threads))
+        from splitter.threads import threads
+
+        decoders = os.environ.get("GDAL_NUM_THREADS", str(threads()))
+        self._stack.enter_context(rasterio.Env(GDAL_CACHEMAX=64, GDAL_NUM_THREADS=decoders))
         self.srcs = [self._stack.enter_context(rasterio.open(p)) for p in self.paths]
         from rasterio.enums import MaskFlags
 
