@@ -235,12 +235,16 @@ class SplitSummary:
     replicates: int
     jackknife: JackknifeResult | None = None
 
+    @property
+    def interpretation(self) -> str:
+        return "interpret" if self.significant else "do not interpret"
+
     def to_row(self) -> dict:
         """The ``all`` row of ``evaluation.csv``."""
         row = {
             "fold": "all",
             "significant": self.significant,
-            "interpretation": "interpret" if self.significant else "do not interpret",
+            "interpretation": self.interpretation,
             "p_adjusted": self.pvalue,
             "n_evaluation": self.n_evaluation,
             "successes": self.successes,
