@@ -290,7 +290,7 @@ def _display_fold_checks(split: SplitRun, checks: dict, source: str) -> list:
 
 
 def _display_rules(rules: list, names: list) -> Table:
-    rows = tuple((str(r.get("name")), str(r.get("rule")), P.fmt_level(r.get("threshold"))) for r in rules)
+    rows = tuple((str(r["name"]), str(r["rule"]), P.fmt_level(r["threshold"])) for r in rules)
     which = "all splits" if len(names) != 1 else f"split `{names[0]}`"
     return Table(caption=f"Audit rules and their thresholds ({which}). A fold is dependent when any rule fires, "
                          "independent when every rule that could be applied stays quiet, and insufficient otherwise.",
