@@ -329,28 +329,32 @@ def _display_audit(split: SplitRun, source: str, absences: bool = False) -> Tabl
                  source=source)
 
 
+def _share(value):
+    return lambda f: P.fmt_share(value(f))
+
+
 def _measure(name):
-    return lambda f: getattr(f.measures, name) if f.measures is not None else math.nan
+    return _share(lambda f: getattr(f.measures, name) if f.measures is not None else math.nan)
 
 
-#: The performance table's columns: label, a fold's value, and the ``all`` row's mean of it (None: no mean).
+def _interval(f) -> str:
+    lo, hi = f.partial_roc.ratio_low, f.partial_roc.ratio_high
+    return f"{P.fmt_share(lo)} – {P.fmt_share(hi)}" if math.isfinite(lo) and math.isfinite(hi) else ""
+
+
+#: The performance table's columns: label, a fold's cell, and the key of the ``all`` row's mean (None: no mean).
 PERFORMANCE = (
-    ("partial AUC ratio (observed)", lambda f: f.partial_roc.auc_ratio, "auc_ratio"),
-    ("ratio of random presences (median)", lambda f: f.partial_roc.null_median, None),
-    ("bootstrap 95% interval", lambda f: (f.partial_roc.ratio_low, f.partial_roc.ratio_high), None),
-    ("full AUC", lambda f: f.partial_roc.auc, "auc"),
+    ("partial AUC ratio (observed)", _share(lambda f: f.partial_roc.auc_ratio), "auc_ratio"),
+    ("ratio of random presences (median)", _share(lambda f: f.partial_roc.null_median), None),
+    ("bootstrap 95% interval", _interval, None),
+    ("full AUC", _share(lambda f: f.partial_roc.auc), "auc"),
     ("omission rate", _measure("omission_rate"), "omission_rate"),
     ("sensitivity", _measure("sensitivity"), "sensitivity"),
     ("specificity", _measure("specificity"), "specificity"),
     ("TSS", _measure("tss"), "tss"),
     ("kappa", _measure("kappa"), "kappa"),
-    ("Boyce index", lambda f: f.boyce, "boyce"),
+    ("Boyce index", _share(lambda f: f.boyce), "boyce"),
 )
-
-
-def _interval(lo_hi) -> str:
-    lo, hi = lo_hi
-    return f"{P.fmt_share(lo)} – {P.fmt_share(hi)}" if math.isfinite(lo) and math.isfinite(hi) else ""
 
 
 def _display_evaluation(split: SplitRun, source: str) -> tuple[Table, Table]:
@@ -358,22 +362,14 @@ def _display_evaluation(split: SplitRun, source: str) -> tuple[Table, Table]:
     ev = split.evaluation
     summary = ev.summary
     other = "background" if {f.other_kind for f in ev.folds} - {""} == {"background"} else ""
-    perf = [("pseudo-specificity" if (label == "specificity" and other == "background") else label, value, mean)
-            for label, value, mean in PERFORMANCE]
+    perf = [("pseudo-specificity" if (label == "specificity" and other == "background") else label, cell, mean)
+            for label, cell, mean in PERFORMANCE]
     sig_rows, perf_rows, classes = [], [], []
     for f in ev.folds:
         sig_rows.append((f.fold, "yes" if f.significant else "no", f.interpretation, P.fmt_p(f.p_adjusted),
                          P.fmt_p(f.binomial.pvalue), P.fmt_p(f.partial_roc.pvalue), P.fmt_count(f.n_evaluation),
                          P.fmt_count(f.binomial.statistic), P.fmt_share(f.area_predicted)))
-        cells = [f.fold, f.interpretation]
-        for label, value, _ in perf:
-            if not f.significant:
-                cells.append("—")
-            elif label == "bootstrap 95% interval":
-                cells.append(_interval(value(f)))
-            else:
-                cells.append(P.fmt_share(value(f)))
-        perf_rows.append(tuple(cells))
+        perf_rows.append(tuple([f.fold, f.interpretation] + [cell(f) if f.significant else "—" for _, cell, _ in perf]))
         classes.append("" if f.significant else "not-significant")
     sig_rows.append(("all folds", "yes" if summary.significant else "no", summary.interpretation,
                      P.fmt_p(summary.pvalue), P.fmt_p(summary.binomial_fisher_p), P.fmt_p(summary.partial_roc_fisher_p),
