@@ -59,12 +59,13 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from splitter.dependence.distance import DistanceDiagnostics, _num, check_folds, distance_diagnostics
-from splitter.dependence.environment import covariate_ranges, mess, schoener_d_resplit
+from splitter.dependence.distance import DistanceDiagnostics, _float, _num, check_folds, distance_diagnostics
+from splitter.dependence.environment import CovariateRanges, covariate_ranges, mess, schoener_d_resplit
 from splitter.dependence.resplit import (
     NULL_LEVEL,
     NULL_SPLITS,
     NullComparison,
+    NullSummary,
     check_null_splits,
     shared_group_resplit,
 )
@@ -185,6 +186,11 @@ class RuleOutcome:
     def to_dict(self) -> dict:
         return {k: _num(getattr(self, k)) for k in self.__dataclass_fields__}
 
+    @classmethod
+    def from_dict(cls, doc: dict) -> RuleOutcome:
+        """Rebuild from :meth:`to_dict` (null stays None for the optional fields)."""
+        return cls(**{k: doc[k] for k in cls.__dataclass_fields__})
+
 
 @dataclass(frozen=True, eq=False)
 class AuditResult:
@@ -196,7 +202,8 @@ class AuditResult:
     schoener_d, share_outside_envelope, shared_method_share : ndarray
         NaN where not computed.
     schoener_d_null, shared_method_null : tuple[NullComparison or None, ...]
-        Per fold, the measure against random re-splits of the fold's records.
+        Per fold, the measure against random re-splits of the fold's records
+        (NullSummary after :meth:`from_dict`: the re-split values are not stored).
     verdicts : tuple[str, ...]
         ``independent``, ``dependent`` or ``insufficient`` per fold.
     outcomes : tuple[tuple[RuleOutcome, ...], ...]
@@ -302,6 +309,58 @@ class AuditResult:
                 for label, r in zip(self.fold_labels, self.ranges)
             },
         }
+
+    @classmethod
+    def from_dict(cls, doc: dict) -> AuditResult:
+        """Rebuild an audit from :meth:`to_dict` (what ``audit.json`` holds).
+
+        ``audit.json`` also holds keys the audit step writes beside the result
+        (``context``, ``absences``): they are not read here.
+
+        What the JSON never held stays empty rather than made up: the raw
+        nearest-neighbour distances (see :meth:`DistanceDiagnostics.from_dict`),
+        and the re-split values behind the environment and collection-method
+        comparisons: ``schoener_d_null`` / ``shared_method_null`` hold a
+        :class:`~splitter.dependence.resplit.NullSummary` (the measure, the
+        re-splits' median and share) where a median or share was recorded, else
+        None. The outcomes carry each applied rule's re-split count and
+        whether the measure was degenerate. ``to_dict``, ``to_frame`` and
+        ``reasons`` of the result equal the original's.
+        """
+        rows = doc["folds"]
+        distance = DistanceDiagnostics.from_dict(doc)
+
+        def column(key):
+            return np.array([r[key] for r in rows], dtype=float)  # None -> NaN
+
+        def nulls(measure, prefix):
+            return tuple(
+                None if r[f"{prefix}_null_median"] is None and r[f"{prefix}_null_share"] is None
+                else NullSummary(_float(r[measure]), _float(r[f"{prefix}_null_median"]), _float(r[f"{prefix}_null_share"]))
+                for r in rows)
+
+        verdicts = tuple(str(r["verdict"]) for r in rows)
+        ranges = doc["covariate_ranges"]
+        return cls(
+            fold_labels=distance.fold_labels,
+            schoener_d=column("schoener_d"),
+            share_outside_envelope=column("share_outside_envelope"),
+            shared_method_share=column("shared_method_share"),
+            schoener_d_null=nulls("schoener_d", "schoener_d"),
+            shared_method_null=nulls("shared_method_share", "shared_method"),
+            verdicts=verdicts,
+            outcomes=tuple(tuple(RuleOutcome.from_dict(o) for o in r["outcomes"]) for r in rows),
+            # The reasons column is the note for an insufficient fold; otherwise it is written from the outcomes.
+            notes=tuple(str(r["reasons"]) if v == "insufficient" else "" for r, v in zip(rows, verdicts)),
+            verdict=str(doc["verdict"]),
+            rules=[dict(r) for r in doc["rules"]],
+            distance=distance,
+            ranges=tuple(None if ranges[label] is None else CovariateRanges.from_dict({"covariates": ranges[label]})
+                         for label in distance.fold_labels),
+            min_evaluation=int(doc["min_evaluation"]),
+            null_splits=int(doc["null_splits"]),
+            seed=int(doc["seed"]),
+        )
 
 
 def _group_codes(groups, n: int) -> np.ndarray:

@@ -60,6 +60,10 @@ class DistanceDiagnostics:
         Prediction location -> nearest kept record.
     record_to_record_km : ndarray
         Kept record -> nearest other kept record.
+    prediction_median_km, record_median_km : float
+        Medians of the two arrays above (NaN without them); fields, not
+        properties of the arrays, so that a summary read back by
+        :meth:`from_dict` keeps them without the raw distances.
     """
 
     fold_labels: tuple
@@ -73,17 +77,8 @@ class DistanceDiagnostics:
     evaluation_to_calibration_km: tuple
     prediction_to_record_km: np.ndarray | None
     record_to_record_km: np.ndarray
-
-    @property
-    def prediction_median_km(self) -> float:
-        d = self.prediction_to_record_km
-        return float(np.median(d)) if d is not None and d.size else float("nan")
-
-    @property
-    def record_median_km(self) -> float:
-        d = self.record_to_record_km
-        d = d[np.isfinite(d)]
-        return float(np.median(d)) if d.size else float("nan")
+    prediction_median_km: float
+    record_median_km: float
 
     def to_frame(self) -> pd.DataFrame:
         """One row per fold."""
@@ -109,6 +104,41 @@ class DistanceDiagnostics:
             "record_median_km": _num(self.record_median_km),
             "folds": [{k: _num(v) for k, v in r.items()} for r in rows],
         }
+
+    @classmethod
+    def from_dict(cls, doc: dict) -> DistanceDiagnostics:
+        """Rebuild the summary from :meth:`to_dict` (an audit's JSON holds the same keys).
+
+        The raw distances were never stored: ``evaluation_to_calibration_km`` holds an
+        empty array per fold, ``prediction_to_record_km`` is None and
+        ``record_to_record_km`` is empty. Every per-fold measure and both medians are
+        the stored ones.
+        """
+        rows = doc["folds"]
+
+        def column(key, dtype=float):
+            return np.array([r[key] for r in rows], dtype=dtype)  # None -> NaN for floats
+
+        return cls(
+            fold_labels=tuple(str(r["fold"]) for r in rows),
+            n_evaluation=column("n_evaluation", np.int64),
+            n_calibration=column("n_calibration", np.int64),
+            nn_median_km=column("nn_median_km"),
+            nn_p10_km=column("nn_p10_km"),
+            share_within_range=column("share_within_range"),
+            wasserstein_km=column("wasserstein_km"),
+            range_km=None if doc["range_km"] is None else float(doc["range_km"]),
+            evaluation_to_calibration_km=tuple(np.zeros(0) for _ in rows),
+            prediction_to_record_km=None,
+            record_to_record_km=np.zeros(0),
+            prediction_median_km=_float(doc["prediction_median_km"]),
+            record_median_km=_float(doc["record_median_km"]),
+        )
+
+
+def _float(v) -> float:
+    """A number read back from JSON: null (how :func:`_num` writes NaN) is NaN again."""
+    return float("nan") if v is None else float(v)
 
 
 def _num(v):
@@ -271,4 +301,6 @@ def distance_diagnostics(
         evaluation_to_calibration_km=tuple(raw),
         prediction_to_record_km=d_pred,
         record_to_record_km=d_rec,
+        prediction_median_km=float(np.median(d_pred)) if d_pred is not None and d_pred.size else float("nan"),
+        record_median_km=float(np.median(d_rec[np.isfinite(d_rec)])) if np.isfinite(d_rec).any() else float("nan"),
     )

@@ -433,6 +433,18 @@ class CovariateRanges:
         return {"covariates": [{k: (v if isinstance(v, str) else _num(v)) for k, v in r.items()}
                                for r in self.to_frame().to_dict(orient="records")]}
 
+    @classmethod
+    def from_dict(cls, doc: dict) -> CovariateRanges:
+        """Rebuild from :meth:`to_dict` (null read as NaN)."""
+        rows = doc["covariates"]
+
+        def column(key):
+            return np.array([r[key] for r in rows], dtype=float)  # None -> NaN
+
+        return cls(names=tuple(str(r["covariate"]) for r in rows), calibration_min=column("calibration_min"),
+                   calibration_max=column("calibration_max"), evaluation_min=column("evaluation_min"),
+                   evaluation_max=column("evaluation_max"), share_outside=column("share_outside"))
+
 
 def covariate_ranges(cal, eval, names=None) -> CovariateRanges:
     """Range of each covariate in calibration and evaluation records.

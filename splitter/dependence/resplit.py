@@ -136,6 +136,19 @@ class NullComparison:
         return bool(self.share >= 1.0 - level - 1e-12)
 
 
+@dataclass(frozen=True)
+class NullSummary:
+    """What an audit's JSON keeps of a :class:`NullComparison`: the measure, the re-splits'
+    median and the share of them at least as dependent (the per-re-split values are not
+    stored). ``AuditResult.from_dict`` fills ``schoener_d_null`` / ``shared_method_null``
+    with these; they answer ``statistic``, ``median`` and ``share`` as a NullComparison does.
+    """
+
+    statistic: float
+    median: float
+    share: float
+
+
 def shared_group_resplit(codes, evaluation, null_splits: int = NULL_SPLITS, seed=0) -> NullComparison:
     """Share of evaluation records whose group also occurs in calibration, designed and re-split.
 

@@ -235,6 +235,35 @@ class RangeEstimate:
             },
         }
 
+    @classmethod
+    def from_dict(cls, doc: dict) -> RangeEstimate:
+        """Rebuild from :meth:`to_dict` (``range.json``, or a design sidecar's ``range_summary``;
+        other keys, such as the command line, are not read). Null is read as NaN."""
+
+        def arr(v):
+            return np.array(v, dtype=float)  # None -> NaN
+
+        svs = {
+            name: Semivariogram(lags_km=arr(s["lags_km"]), gamma=arr(s["gamma"]),
+                                pair_counts=np.asarray(s["pair_counts"], np.int64),
+                                bin_edges_km=arr(s["bin_edges_km"]), n_points=int(s["n_points"]))
+            for name, s in doc["semivariograms"].items()
+        }
+        # JSON keys come back sorted; the fits keep the covariates' own order.
+        order = list(dict.fromkeys(f["covariate"] for f in doc["fits"] if f["covariate"] in svs))
+        svs = {name: svs[name] for name in order + [n for n in svs if n not in order]}
+        fits, best = [], {}
+        for f in doc["fits"]:
+            fit = VariogramFit(**{k: (np.nan if f[k] is None else f[k]) for k in VariogramFit.__dataclass_fields__})
+            fits.append(fit)
+            if f["chosen"]:
+                best[fit.covariate] = fit
+        for name in svs:
+            if name not in best:
+                best[name] = min((f for f in fits if f.covariate == name), key=lambda f: f.weighted_sse)
+        return cls(semivariograms=svs, fits=tuple(fits), best=best, suggested_block_km=float(doc["suggested_block_km"]),
+                   summary_rule=doc["summary_rule"], notes=tuple(doc["notes"]))
+
 
 def _jsonable(v):
     if isinstance(v, (bool, np.bool_)):

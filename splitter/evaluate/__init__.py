@@ -26,6 +26,7 @@ from splitter.evaluate.partial_roc import (
     partial_roc,
     roc_curve_area,
 )
+from splitter.evaluate.results import EvaluationResult, FoldEvaluation, SplitSummary
 from splitter.evaluate.thresholds import Threshold, ThresholdRule, choose_threshold
 
 __all__ = [
@@ -33,6 +34,8 @@ __all__ = [
     "BoyceResult",
     "CellSource",
     "CombinedPValue",
+    "EvaluationResult",
+    "FoldEvaluation",
     "FoldSummary",
     "JackknifeResult",
     "Measures",
@@ -40,6 +43,7 @@ __all__ = [
     "OptimismResult",
     "PartialROCResult",
     "ROCCurve",
+    "SplitSummary",
     "SuitabilitySurface",
     "as_cells",
     "Threshold",

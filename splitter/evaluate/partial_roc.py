@@ -146,7 +146,9 @@ class PartialROCResult:
     ratios : numpy.ndarray
         The B bootstrap ratios.
     null_ratios : numpy.ndarray
-        The B null ratios.
+        The B null ratios. Both are empty, and ``sample_size`` and ``n_cells`` None,
+        in a fold read back from evaluation.json, which keeps only their summaries
+        (``FoldEvaluation.from_row``).
     curve : ROCCurve
         The exact curve on all presences, for plotting.
     """

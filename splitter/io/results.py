@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from splitter.io.atomic import atomic_write
@@ -57,17 +58,22 @@ def write_range_tables(estimate, out_dir, extra: dict | None = None) -> dict:
     return paths
 
 
-def write_audit_tables(result, context: dict, out_dir) -> dict:
-    """audit.csv and audit.json (the range estimate, if any, is written by its own writer)."""
-    out_dir = Path(out_dir)
+def audit_frame(result, context: dict) -> pd.DataFrame:
+    """The rows of audit.csv: the result's table and, when the audit dated the records, the time gaps."""
     frame = result.to_frame()
     if context.get("time_gaps"):
         # Time apart (years): a description beside the rules, per fold in the same order.
         gaps = context["time_gaps"]
-        frame["time_gap_median_years"] = [g["median_years"] for g in gaps]
-        frame["time_gap_p10_years"] = [g["p10_years"] for g in gaps]
-        frame["time_later_share"] = [g["later_share"] for g in gaps]
-    paths = {"table": write_csv(frame, out_dir / "audit.csv")}
+        for column, key in (("time_gap_median_years", "median_years"), ("time_gap_p10_years", "p10_years"),
+                            ("time_later_share", "later_share")):
+            frame[column] = np.array([g[key] for g in gaps], dtype=float)  # null read back from JSON -> NaN
+    return frame
+
+
+def write_audit_tables(result, context: dict, out_dir) -> dict:
+    """audit.csv and audit.json (the range estimate, if any, is written by its own writer)."""
+    out_dir = Path(out_dir)
+    paths = {"table": write_csv(audit_frame(result, context), out_dir / "audit.csv")}
     doc = result.to_dict()
     doc["context"] = {k: v for k, v in context.items() if k not in ("range_estimate", "absences")}
     if context.get("absences") is not None:

@@ -27,12 +27,12 @@ import pandas as pd
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
 from splitter.io.paths import portable_text
-from splitter.io.results import write_csv
+from splitter.io.results import audit_frame, write_csv
 from splitter.report import paragraph as P
 from splitter.report.document import Bullets, Code, Document, Figure, Heading, Table, Text, to_markdown
 from splitter.report.html import to_html
 from splitter.report.maps import SPATIAL_METHODS, MapPlane, cell_grid, generalise_coordinates, map_extent, plot_fold_map
-from splitter.report.panels import plot_roc_panels, range_estimate_from_dict
+from splitter.report.panels import plot_roc_panels
 from splitter.report.rundir import Run, SplitRun, load_run, sha256_file
 from splitter.report.style import save
 
@@ -79,10 +79,6 @@ def _num(v) -> float:
         return float(v)
     except (TypeError, ValueError):
         return float("nan")
-
-
-def _truthy(v) -> bool:
-    return str(v).strip().lower() in ("true", "1", "yes")
 
 
 def _version(dist: str) -> str:
@@ -294,7 +290,7 @@ def _display_fold_checks(split: SplitRun, checks: dict, source: str) -> list:
 
 
 def _display_rules(rules: list, names: list) -> Table:
-    rows = tuple((str(r.get("name")), str(r.get("rule")), P.fmt_level(r.get("threshold"))) for r in rules)
+    rows = tuple((str(r["name"]), str(r["rule"]), P.fmt_level(r["threshold"])) for r in rules)
     which = "all splits" if len(names) != 1 else f"split `{names[0]}`"
     return Table(caption=f"Audit rules and their thresholds ({which}). A fold is dependent when any rule fires, "
                          "independent when every rule that could be applied stays quiet, and insufficient otherwise.",
@@ -302,89 +298,89 @@ def _display_rules(rules: list, names: list) -> Table:
 
 
 def _display_audit(split: SplitRun, source: str, absences: bool = False) -> Table:
-    t = split.audit_absences_table if absences else split.audit_table
-    if t is None:
-        t = pd.DataFrame(split.audit.get("folds", [])).astype(str)
-
-    def cnt(v):
-        return P.fmt_count(_num(v)) if math.isfinite(_num(v)) else ""
-
-    spec = [("fold", "fold", str), ("verdict", "verdict", str),
-            ("n_evaluation", "evaluation records", cnt), ("n_calibration", "calibration records", cnt),
-            ("nn_median_km", "NN median (km)", lambda v: P.fmt_km_value(_num(v))),
-            ("nn_p10_km", "NN 10th percentile (km)", lambda v: P.fmt_km_value(_num(v))),
-            ("share_within_range", "share within range", lambda v: P.fmt_share(_num(v))),
-            ("wasserstein_km", "W1 vs prediction locations (km)", lambda v: P.fmt_km_value(_num(v))),
-            ("schoener_d", "Schoener's D", lambda v: P.fmt_share(_num(v))),
-            ("share_outside_envelope", "share outside envelope", lambda v: P.fmt_share(_num(v))),
-            ("shared_method_share", "share with shared method", lambda v: P.fmt_share(_num(v)))]
-    spec = [s for s in spec if s[0] in t.columns]
-    cells = [[fn(r[c]) for c, _, fn in spec] for _, r in t.iterrows()]
+    a = split.audit_absences if absences else split.audit
+    d = a.distance
+    spec = [("fold", a.fold_labels, str), ("verdict", a.verdicts, str),
+            ("evaluation records", d.n_evaluation, P.fmt_count), ("calibration records", d.n_calibration, P.fmt_count),
+            ("NN median (km)", d.nn_median_km, P.fmt_km_value),
+            ("NN 10th percentile (km)", d.nn_p10_km, P.fmt_km_value),
+            ("share within range", d.share_within_range, P.fmt_share),
+            ("W1 vs prediction locations (km)", d.wasserstein_km, P.fmt_km_value),
+            ("Schoener's D", a.schoener_d, P.fmt_share),
+            ("share outside envelope", a.share_outside_envelope, P.fmt_share),
+            ("share with shared method", a.shared_method_share, P.fmt_share)]
+    cells = [[fn(values[i]) for _, values, fn in spec] for i in range(len(a.fold_labels))]
     # Columns no fold could fill (no covariates or groups given) are left out of the page, not the CSV.
     keep = [j for j in range(len(spec)) if j < 2 or any(row[j] for row in cells)]
     rows = tuple(tuple(row[j] for j in keep) for row in cells)
-    dropped = [spec[j][1] for j in range(len(spec)) if j not in keep]
+    dropped = [spec[j][0] for j in range(len(spec)) if j not in keep]
     notes = ["NN: distance (geodesic for longitude/latitude, straight-line in a projected or local grid) from an "
              "evaluation record to its nearest calibration record" + (" of the same kind" if absences else "") + ". W1: "
              "Wasserstein-1 distance between those distances and the prediction-location-to-record distances. "
              "Envelope: the calibration records' covariate ranges (MESS < 0 outside)."]
     if dropped:
         notes.append("Not computed for any fold (no input for it): " + ", ".join(dropped) + ".")
-    if "reasons" in t.columns:
-        fired = [(str(r["fold"]), str(r["reasons"])) for _, r in t.iterrows()
-                 if str(r.get("verdict")) != "independent" and str(r["reasons"]).strip()]
-        notes += [f"Fold {f}: {why}." for f, why in fired]
-    verdict = ((split.audit.get("absences") or {}).get("verdict") if absences else split.audit.get("verdict"))
+    notes += [f"Fold {f}: {why}." for f, verdict, why in zip(a.fold_labels, a.verdicts, a.reasons)
+              if verdict != "independent" and why.strip()]
     what = ": evaluation absences to calibration absences" if absences else ""
-    return Table(caption=f"Residual dependence audit, split `{split.name}`{what} (verdict: {verdict}).",
-                 columns=tuple(spec[j][1] for j in keep), rows=rows, css_class="audit",
+    return Table(caption=f"Residual dependence audit, split `{split.name}`{what} (verdict: {a.verdict}).",
+                 columns=tuple(spec[j][0] for j in keep), rows=rows, css_class="audit",
                  element_id=f"audit-{_safe(split.name)}" + ("-absences" if absences else ""), notes=tuple(notes),
                  source=source)
 
 
-PERFORMANCE = [("auc_ratio", "partial AUC ratio (observed)"), ("auc_ratio_null_median", "ratio of random presences (median)"),
-               ("auc_ratio_interval", "bootstrap 95% interval"),
-               ("auc", "full AUC"), ("omission_rate", "omission rate"), ("sensitivity", "sensitivity"),
-               ("specificity", "specificity"), ("tss", "TSS"), ("kappa", "kappa"), ("boyce", "Boyce index")]
+def _share(value):
+    return lambda f: P.fmt_share(value(f))
 
 
-def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> tuple[Table, Table]:
+def _measure(name):
+    return _share(lambda f: getattr(f.measures, name) if f.measures is not None else math.nan)
+
+
+def _interval(f) -> str:
+    lo, hi = f.partial_roc.ratio_low, f.partial_roc.ratio_high
+    return f"{P.fmt_share(lo)} – {P.fmt_share(hi)}" if math.isfinite(lo) and math.isfinite(hi) else ""
+
+
+#: The performance table's columns: label, a fold's cell, and the key of the ``all`` row's mean (None: no mean).
+PERFORMANCE = (
+    ("partial AUC ratio (observed)", _share(lambda f: f.partial_roc.auc_ratio), "auc_ratio"),
+    ("ratio of random presences (median)", _share(lambda f: f.partial_roc.null_median), None),
+    ("bootstrap 95% interval", _interval, None),
+    ("full AUC", _share(lambda f: f.partial_roc.auc), "auc"),
+    ("omission rate", _measure("omission_rate"), "omission_rate"),
+    ("sensitivity", _measure("sensitivity"), "sensitivity"),
+    ("specificity", _measure("specificity"), "specificity"),
+    ("TSS", _measure("tss"), "tss"),
+    ("kappa", _measure("kappa"), "kappa"),
+    ("Boyce index", _share(lambda f: f.boyce), "boyce"),
+)
+
+
+def _display_evaluation(split: SplitRun, source: str) -> tuple[Table, Table]:
     """Two tables: significance (first, always shown) and performance (significant folds only)."""
-    other = ""
-    if "other_kind" in frame.columns:
-        kinds = set(frame["other_kind"].astype(str)) - {"", "nan"}
-        other = "background" if kinds == {"background"} else ""
-    perf = [(k, "pseudo-specificity" if (k == "specificity" and other == "background") else lab) for k, lab in PERFORMANCE]
-    fold_rows = frame[frame["fold"].astype(str) != "all"]
-    all_sig = bool(len(fold_rows)) and all(_truthy(v) for v in fold_rows["significant"])
+    ev = split.evaluation
+    summary = ev.summary
+    other = "background" if {f.other_kind for f in ev.folds} - {""} == {"background"} else ""
+    perf = [("pseudo-specificity" if (label == "specificity" and other == "background") else label, cell, mean)
+            for label, cell, mean in PERFORMANCE]
     sig_rows, perf_rows, classes = [], [], []
-    for _, r in frame.iterrows():
-        is_all = str(r["fold"]) == "all"
-        sig = _truthy(r.get("significant"))
-        label = "all folds" if is_all else str(r["fold"])
-        interp = str(r.get("interpretation", ""))
-        sig_rows.append((
-            label, "yes" if sig else "no", interp,
-            P.fmt_p(_num(r.get("p_adjusted"))),
-            P.fmt_p(_num(r.get("binomial_p"))),
-            P.fmt_p(_num(r.get("partial_roc_p"))),
-            P.fmt_count(_num(r.get("n_evaluation"))) if math.isfinite(_num(r.get("n_evaluation"))) else "",
-            P.fmt_count(_num(r.get("successes"))) if math.isfinite(_num(r.get("successes"))) else "",
-            P.fmt_share(_num(r.get("area_predicted"))),
-        ))
-        cells = [label, interp]
-        show = sig and (not is_all or _num(r.get("n_interpretable", 0)) > 0)
-        for k, _ in perf:
-            if not show:
-                cells.append("—")
-            elif k == "auc_ratio_interval":
-                lo, hi = _num(r.get("auc_ratio_low")), _num(r.get("auc_ratio_high"))
-                cells.append(f"{P.fmt_share(lo)} – {P.fmt_share(hi)}" if math.isfinite(lo) and math.isfinite(hi) else "")
-            else:
-                cells.append(P.fmt_share(_num(r.get(k))))
-        perf_rows.append(tuple(cells))
-        classes.append("summary" if is_all else ("" if sig else "not-significant"))
-    par = (split.evaluation or {}).get("parameters", {})
+    for f in ev.folds:
+        sig_rows.append((f.fold, "yes" if f.significant else "no", f.interpretation, P.fmt_p(f.p_adjusted),
+                         P.fmt_p(f.binomial.pvalue), P.fmt_p(f.partial_roc.pvalue), P.fmt_count(f.n_evaluation),
+                         P.fmt_count(f.binomial.statistic), P.fmt_share(f.area_predicted)))
+        perf_rows.append(tuple([f.fold, f.interpretation] + [cell(f) if f.significant else "—" for _, cell, _ in perf]))
+        classes.append("" if f.significant else "not-significant")
+    sig_rows.append(("all folds", "yes" if summary.significant else "no", summary.interpretation,
+                     P.fmt_p(summary.pvalue), P.fmt_p(summary.binomial_fisher_p), P.fmt_p(summary.partial_roc_fisher_p),
+                     P.fmt_count(summary.n_evaluation), P.fmt_count(summary.successes),
+                     P.fmt_share(summary.means["area_predicted"])))
+    show = summary.significant and summary.n_interpretable > 0
+    perf_rows.append(tuple(["all folds", summary.interpretation] +
+                           [("" if mean is None else P.fmt_share(summary.means[mean])) if show else "—"
+                            for _, _, mean in perf]))
+    classes.append("summary")
+    par = ev.parameters
     tag = _safe(split.name)
     sig_table = Table(
         caption=f"Per-fold significance, split `{split.name}` (threshold `{par.get('threshold_rule')}`, chosen from "
@@ -414,7 +410,7 @@ def _display_evaluation(split: SplitRun, frame: pd.DataFrame, source: str) -> tu
         notes.append("Specificity is computed against background points, not true absences (pseudo-specificity).")
     perf_table = Table(
         caption=f"Per-fold performance at the threshold, split `{split.name}`.",
-        columns=tuple(["fold", "interpretation"] + [lab for _, lab in perf]), rows=tuple(perf_rows),
+        columns=tuple(["fold", "interpretation"] + [label for label, _, _ in perf]), rows=tuple(perf_rows),
         css_class="evaluation performance", element_id=f"performance-{tag}", row_classes=tuple(classes),
         notes=tuple(notes), source=source)
     return sig_table, perf_table
@@ -431,17 +427,15 @@ def _comparison_frame(splits) -> pd.DataFrame:
                "nn_median_km_min": np.nan, "nn_median_km_max": np.nan,
                "auc_ratio_mean_significant": np.nan}
         if s.audit is not None:
-            f = s.audit.get("folds", [])
-            row["audit_verdict"] = s.audit.get("verdict", "")
-            row["independent_folds"] = sum(str(r.get("verdict")) == "independent" for r in f)
-            med = np.array([_num(r.get("nn_median_km")) for r in f], float)
+            row["audit_verdict"] = s.audit.verdict
+            row["independent_folds"] = s.audit.verdicts.count("independent")
+            med = s.audit.distance.nn_median_km
             if np.isfinite(med).any():
                 row["nn_median_km_min"], row["nn_median_km_max"] = np.nanmin(med), np.nanmax(med)
         if s.evaluation is not None:
-            f = s.evaluation.get("folds", [])
-            good = [r for r in f if r.get("significant")]
+            good = [f for f in s.evaluation.folds if f.significant]
             row["significant_folds"] = len(good)
-            v = np.array([_num(r.get("auc_ratio")) for r in good], float)
+            v = np.array([f.partial_roc.auc_ratio for f in good], float)
             if np.isfinite(v).any():
                 row["auc_ratio_mean_significant"] = float(np.nanmean(v))
         rows.append(row)
@@ -471,14 +465,18 @@ def _display_comparison(df: pd.DataFrame, source: str) -> Table:
                  rows=tuple(rows), css_class="comparison", element_id="comparison", source=source)
 
 
-def _display_range(doc: dict, source: str) -> Table:
+def _fits_frame(est) -> pd.DataFrame:
+    """The range_fits table: every fit as range.json lists it (keys sorted, as the JSON writes them)."""
+    return pd.DataFrame([dict(sorted(f.items())) for f in est.to_dict()["fits"]])
+
+
+def _display_range(est, source: str) -> Table:
     rows = []
-    for f in doc.get("fits", []):
-        rows.append((str(f.get("covariate")), str(f.get("model")),
-                     "not reached" if f.get("range_at_bound") else P.fmt_km_value(_num(f.get("range_km"))),
-                     P.fmt_share(_num(f.get("r2"))), "yes" if f.get("chosen") else ""))
+    for f in est.fits:
+        rows.append((f.covariate, f.model, "not reached" if f.range_at_bound else P.fmt_km_value(f.range_km),
+                     P.fmt_share(f.r2), "yes" if est.best[f.covariate] is f else ""))
     return Table(caption=f"Variogram fits per covariate; suggested block size "
-                         f"{P.fmt_km(doc.get('suggested_block_km'))}.",
+                         f"{P.fmt_km(est.suggested_block_km)}.",
                  columns=("covariate", "model", "effective range (km)", "R²", "chosen"), rows=tuple(rows),
                  css_class="range", element_id="range-fits", source=source)
 
@@ -532,17 +530,6 @@ def _map_figure(w: _Writer, s: SplitRun, c: _Coords, plane: MapPlane, plane_word
     return Figure(stem, cap, alt=f"map of records by fold, split {s.name}")
 
 
-def _ratio_frames(splits) -> dict:
-    frames = {}
-    for s in splits:
-        if s.evaluation is None or not s.evaluation.get("folds"):
-            continue
-        df = pd.DataFrame(s.evaluation["folds"])
-        if {"auc_ratio", "auc_ratio_low", "auc_ratio_high", "significant"} <= set(df.columns):
-            frames[s.name] = df.astype({"significant": str})
-    return frames
-
-
 def _block_size_for_variogram(splits) -> tuple[float | None, str]:
     for s in splits:
         if s.method in SPATIAL_METHODS and s.parameters.get("block_size_km") is not None:
@@ -569,15 +556,15 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
     intro[0] += f" ({P.fmt_list(f'`{n}`' for n in names)})."
     if same_records:
         intro.append(P.records_sentence(splits[0].design))
-    range_doc = run.range
+    range_est = run.range
     range_source = "range/range.json" if run.range is not None else ""
-    if range_doc is None:
+    if range_est is None:
         for s in splits:
             if s.range_summary is not None:
-                range_doc, range_source = s.range_summary, f"{s.name}: design sidecar (block size auto)"
+                range_est, range_source = s.range_summary, f"{s.name}: design sidecar (block size auto)"
                 break
-    if range_doc is not None:
-        intro.append(P.range_sentence(range_doc))
+    if range_est is not None:
+        intro.append(P.range_sentence(range_est))
     blocks.append(Text(" ".join(intro), "methods"))
     for s in splits:
         blocks.append(Text(P.split_paragraph(s, plane_words, include_records=not same_records), "methods"))
@@ -616,24 +603,17 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
 
     # 3. Autocorrelation range
     blocks.append(Heading(1, "Autocorrelation range", "range"))
-    if range_doc is not None:
-        block_km, block_split = _block_size_for_variogram(splits)
-        try:
-            from splitter.report.dependence_figures import plot_variogram
+    if range_est is not None:
+        from splitter.report.dependence_figures import plot_variogram
 
-            est = range_estimate_from_dict(range_doc)
-            fig = plot_variogram(est, chosen_block_km=block_km)
-            stem = w.figure(fig, "variogram")
-        except (KeyError, TypeError, ValueError):
-            stem = w.copy_figure(run.range_figure, "variogram") if run.range_figure is not None else None
-        rtab = w.table(pd.DataFrame(range_doc.get("fits", [])), "range_fits")
-        blocks.append(_display_range(range_doc, rtab))
-        if stem:
-            which = (f"the block size of split `{block_split}` ({P.fmt_km(block_km)})" if block_km is not None
-                     else f"the suggested block size ({P.fmt_km(range_doc.get('suggested_block_km'))})")
-            blocks.append(Figure(stem, f"Empirical semivariograms (dots) with the fitted spherical and exponential "
-                                       f"models, one panel per covariate; dotted vertical line: {which}. "
-                                       f"Source: {range_source}.", alt="semivariograms"))
+        block_km, block_split = _block_size_for_variogram(splits)
+        stem = w.figure(plot_variogram(range_est, chosen_block_km=block_km), "variogram")
+        blocks.append(_display_range(range_est, w.table(_fits_frame(range_est), "range_fits")))
+        which = (f"the block size of split `{block_split}` ({P.fmt_km(block_km)})" if block_km is not None
+                 else f"the suggested block size ({P.fmt_km(range_est.suggested_block_km)})")
+        blocks.append(Figure(stem, f"Empirical semivariograms (dots) with the fitted spherical and exponential "
+                                   f"models, one panel per covariate; dotted vertical line: {which}. "
+                                   f"Source: {range_source}.", alt="semivariograms"))
     else:
         blocks.append(Text("No autocorrelation range was estimated in this run (no range/range.json and no "
                            "block size chosen with 'auto')."))
@@ -643,11 +623,10 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
     audited = [s for s in splits if s.audit is not None]
     rule_sets: set = set()
     if audited:
-        rule_sets = {tuple((r.get("name"), r.get("rule"), r.get("threshold")) for r in s.audit.get("rules", []))
-                     for s in audited}
+        rule_sets = {tuple((r["name"], r["rule"], r["threshold"]) for r in s.audit.rules) for s in audited}
         if len(rule_sets) == 1:
-            blocks.append(_display_rules(audited[0].audit.get("rules", []), [s.name for s in audited]))
-            w.table(pd.DataFrame(audited[0].audit.get("rules", [])), "audit_rules")
+            blocks.append(_display_rules(audited[0].audit.rules, [s.name for s in audited]))
+            w.table(pd.DataFrame(audited[0].audit.rules), "audit_rules")
     for s in splits:
         tag = _safe(s.name)
         blocks.append(Heading(2, f"Split `{s.name}`", f"audit-{tag}"))
@@ -655,17 +634,17 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
             blocks.append(Text(f"Split `{s.name}` was not audited: no `audit/audit.json` in its folder."))
             continue
         if len(rule_sets) != 1:
-            blocks.append(_display_rules(s.audit.get("rules", []), [s.name]))
-            w.table(pd.DataFrame(s.audit.get("rules", [])), f"{tag}_audit_rules")
-        t = s.audit_table if s.audit_table is not None else pd.DataFrame(s.audit.get("folds", []))
-        src = w.table(_reorder(t, AUDIT_FIRST), f"{tag}_audit")
+            blocks.append(_display_rules(s.audit.rules, [s.name]))
+            w.table(pd.DataFrame(s.audit.rules), f"{tag}_audit_rules")
+        # The run's audit.csv rows, written again from the audit read back (the same bytes, reordered).
+        src = w.table(_reorder(audit_frame(s.audit, s.audit_context), AUDIT_FIRST), f"{tag}_audit")
         blocks.append(_display_audit(s, src))
-        if s.audit_absences_table is not None:  # a survey's absences, audited on their own
-            src = w.table(_reorder(s.audit_absences_table, AUDIT_FIRST), f"{tag}_audit_absences")
+        if s.audit_absences is not None:  # a survey's absences, audited on their own
+            src = w.table(_reorder(s.audit_absences.to_frame(), AUDIT_FIRST), f"{tag}_audit_absences")
             blocks.append(_display_audit(s, src, absences=True))
-        ctx = s.audit.get("context", {}) or {}
-        if ctx.get("prediction_locations"):
-            blocks.append(Text(f"Prediction locations for the distance comparison: {ctx['prediction_locations']}."))
+        if s.audit_context.get("prediction_locations"):
+            blocks.append(Text(f"Prediction locations for the distance comparison: "
+                               f"{s.audit_context['prediction_locations']}."))
         if s.distance_figure is not None:
             stem = w.copy_figure(s.distance_figure, f"distance_ecdf_{tag}")
             if stem:
@@ -683,32 +662,24 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         if s.evaluation is None:
             blocks.append(Text(f"Split `{s.name}` was not evaluated: no `evaluation/evaluation.json` in its folder."))
             continue
-        t = s.evaluation_table
-        if t is None:
-            t = pd.DataFrame(s.evaluation.get("folds", []) + [s.evaluation.get("all", {})]).astype(str)
-        src = w.table(_reorder(t, EVAL_FIRST), f"{tag}_evaluation")
-        blocks += list(_display_evaluation(s, t, src))
-        for msg in s.evaluation.get("warnings", []) or []:
+        ev = s.evaluation
+        src = w.table(_reorder(ev.to_frame(), EVAL_FIRST), f"{tag}_evaluation")
+        blocks += list(_display_evaluation(s, src))
+        for msg in ev.warnings:
             blocks.append(Text(f"Warning recorded by the evaluation: {msg}", "warning"))
-        curves = s.evaluation.get("curves") or {}
-        par = s.evaluation.get("parameters", {})
-        if curves:
-            fig = plot_roc_panels(curves, s.evaluation.get("folds", []), float(par.get("omission", 0.05)),
-                                  title=f"split {s.name}")
-            stem = w.figure(fig, f"roc_{tag}")
-            cut = 1.0 - float(par.get("omission", 0.05))
-            blocks.append(Figure(stem, f"Split `{s.name}`: exact area-based ROC curve of each fold (every prediction "
-                                       f"value is a threshold), with the null line (dashed) and the cut-off "
-                                       f"1 - E = {cut:g} (dotted); the shaded part above it is the partial area "
-                                       f"tested. Grey curves: not significant, do not interpret.",
-                                 alt=f"ROC curves, split {s.name}"))
-    frames = _ratio_frames(splits)
-    if frames:
+        omission = ev.summary.omission
+        stem = w.figure(plot_roc_panels(ev.folds, omission, title=f"split {s.name}"), f"roc_{tag}")
+        blocks.append(Figure(stem, f"Split `{s.name}`: exact area-based ROC curve of each fold (every prediction "
+                                   f"value is a threshold), with the null line (dashed) and the cut-off "
+                                   f"1 - E = {1.0 - omission:g} (dotted); the shaded part above it is the partial area "
+                                   f"tested. Grey curves: not significant, do not interpret.",
+                             alt=f"ROC curves, split {s.name}"))
+    evaluated = {s.name: s.evaluation for s in splits if s.evaluation is not None}
+    if evaluated:
         from splitter.report.evaluation_figures import plot_ratio_intervals
 
-        alpha = float(next(s.evaluation["parameters"].get("alpha", 0.05) for s in splits if s.name in frames))
-        fig = plot_ratio_intervals(frames, alpha)
-        stem = w.figure(fig, "auc_ratio_intervals")
+        alpha = float(next(iter(evaluated.values())).parameters.get("alpha", 0.05))
+        stem = w.figure(plot_ratio_intervals(evaluated, alpha), "auc_ratio_intervals")
         blocks.append(Figure(stem, "Partial AUC ratio per fold: bootstrap mean and 95% interval against the null "
                                    "ratio of 1; filled markers: significant folds, open markers: not significant "
                                    "(do not interpret).", alt="AUC ratio intervals", width_pct=72))
@@ -743,23 +714,22 @@ def _reproducibility(run: Run, splits) -> list:
                              (f" (the folds were written by {P.fmt_list(recorded)})." if recorded else "."),
                      columns=("package", "version"), rows=tuple(versions), css_class="software"))
     seeds = []
-    if run.range is not None and run.range.get("seed") is not None:
-        seeds.append(("range", "range estimate", str(run.range.get("seed"))))
+    if run.range_context.get("seed") is not None:
+        seeds.append(("range", "range estimate", str(run.range_context["seed"])))
     for s in splits:
         seeds.append((s.name, "design", str(s.design.get("seed", ""))))
         if s.audit is not None:
-            seeds.append((s.name, "audit", _seed_from((s.audit.get("context") or {}).get("command")) or "not recorded"))
+            seeds.append((s.name, "audit", _seed_from(s.audit_context.get("command")) or "not recorded"))
         if s.evaluation is not None:
-            seeds.append((s.name, "evaluation", str((s.evaluation.get("parameters") or {}).get("seed", ""))))
+            seeds.append((s.name, "evaluation", str(s.evaluation.parameters.get("seed", ""))))
     out.append(Table(caption="Seeds of every random step.", columns=("split", "step", "seed"), rows=tuple(seeds),
                      css_class="seeds"))
     cmds = []
-    if run.range is not None and run.range.get("command"):
-        cmds += ["# range estimate", run.range["command"]]
+    if run.range_context.get("command"):
+        cmds += ["# range estimate", run.range_context["command"]]
     for s in splits:
-        for label, cmd in (("design", s.design.get("command")),
-                           ("audit", (s.audit or {}).get("context", {}).get("command") if s.audit else None),
-                           ("evaluation", (s.evaluation or {}).get("command") if s.evaluation else None)):
+        for label, cmd in (("design", s.design.get("command")), ("audit", s.audit_context.get("command")),
+                           ("evaluation", s.evaluation_context.get("command"))):
             if cmd:
                 cmds += [f"# {s.name}: {label}", str(cmd)]
     out.append(Text("Command lines recorded in the run's files:"))

@@ -21,7 +21,7 @@ def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
     paths = write_evaluation_tables(result, out_dir, extra=extra)
     for f in result.folds:
         fig = plot_roc(f, result.parameters["omission"])
-        save(fig, out_dir / "figures" / f"roc_fold_{f.row['fold']}")
+        save(fig, out_dir / "figures" / f"roc_fold_{f.fold}")
     paths["figures"] = out_dir / "figures"
     return paths
 

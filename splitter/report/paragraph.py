@@ -1,9 +1,9 @@
 """The methods paragraph, written from a run's recorded parameters and results.
 
-Every number in the text comes from the run's files (design sidecar, audit and
-evaluation JSON, range estimate) through the formatters below, which the
-appendix tables use too, so text and tables always agree and a reader (or a
-test) can parse the numbers back:
+Every number in the text comes from the run's files (design sidecar, and the
+audit, evaluation and range results read back from their JSON) through the
+formatters below, which the appendix tables use too, so text and tables always
+agree and a reader (or a test) can parse the numbers back:
 
 * counts: plain integers, no thousands separator (``2430``);
 * distances: km with one decimal (``123.9 km``);
@@ -154,23 +154,21 @@ def records_sentence(design: dict) -> str:
     return text
 
 
-def range_sentence(range_doc: dict) -> str:
-    fits = range_doc.get("fits", []) or []
-    covs = list(dict.fromkeys(f.get("covariate") for f in fits))
-    chosen = [f for f in fits if f.get("chosen")]
+def range_sentence(est) -> str:
+    """The range estimate (a RangeEstimate) in one or two sentences."""
+    covs = list(dict.fromkeys(f.covariate for f in est.fits))
     text = (f"The autocorrelation range was estimated from empirical semivariograms of {fmt_count(len(covs))} "
             f"covariates ({fmt_list(covs)}), each fitted with spherical and exponential models by weighted least squares; "
-            f"the suggested block size is {fmt_km(range_doc.get('suggested_block_km'))}")
-    rule = range_doc.get("summary_rule")
-    if rule:
-        text += f" ({rule})"
+            f"the suggested block size is {fmt_km(est.suggested_block_km)}")
+    if est.summary_rule:
+        text += f" ({est.summary_rule})"
     text += "."
     parts = []
-    for f in chosen:
-        if f.get("range_at_bound"):
-            parts.append(f"{f['covariate']}: range not reached within the sampled distances")
+    for f in (f for f in est.fits if est.best[f.covariate] is f):
+        if f.range_at_bound:
+            parts.append(f"{f.covariate}: range not reached within the sampled distances")
         else:
-            parts.append(f"{f['covariate']}: {fmt_km(f['range_km'])} ({f['model']})")
+            parts.append(f"{f.covariate}: {fmt_km(f.range_km)} ({f.model})")
     if parts:
         text += " Chosen effective ranges: " + "; ".join(parts) + "."
     return text
@@ -275,21 +273,17 @@ def _audit_sentences(split) -> list[str]:
     a = split.audit
     if a is None:
         return ["The split was not audited for residual dependence (no audit/audit.json in its folder)."]
-    rows = a.get("folds", []) or []
-    ctx = a.get("context", {}) or {}
-    verdicts = [str(r.get("verdict", "")) for r in rows]
-    k = len(rows)
-    rng = _num(a.get("range_km", ctx.get("range_km")))
+    ctx = split.audit_context
+    d = a.distance
     text = "Residual dependence was audited per fold"
-    if math.isfinite(rng):
-        text += f" against an autocorrelation range of {fmt_km(rng)}"
+    if d.range_km is not None:
+        text += f" against an autocorrelation range of {fmt_km(d.range_km)}"
         if ctx.get("range_source"):
             src = str(ctx["range_source"]).split(" (")[0]
             text += f" ({src})"
     text += "."
     out = [text]
-    med = np.array([_num(r.get("nn_median_km")) for r in rows], float)
-    within = np.array([_num(r.get("share_within_range")) for r in rows], float)
+    med, within = d.nn_median_km, d.share_within_range
     if np.isfinite(med).any():
         s = (f"The median distance from an evaluation record to its nearest calibration record ran from "
              f"{fmt_km(np.nanmin(med))} to {fmt_km(np.nanmax(med))} across folds")
@@ -297,13 +291,13 @@ def _audit_sentences(split) -> list[str]:
             s += (f", and the share of evaluation records within the range of a calibration record from "
                   f"{fmt_share(np.nanmin(within))} to {fmt_share(np.nanmax(within))}")
         out.append(s + ".")
-    rules = a.get("rules", []) or []
-    if rules:
+    if a.rules:
         out.append("Rules applied (thresholds in the audit table): " +
-                   "; ".join(f"{r.get('name')} (threshold {fmt_level(r.get('threshold'))})" for r in rules) + ".")
-    out.append(f"{fmt_count(verdicts.count('independent'))} of {fmt_count(k)} folds were judged independent, "
-               f"{fmt_count(verdicts.count('dependent'))} dependent and {fmt_count(verdicts.count('insufficient'))} "
-               f"insufficient; the split's audit verdict is {a.get('verdict', 'not given')}.")
+                   "; ".join(f"{r['name']} (threshold {fmt_level(r['threshold'])})" for r in a.rules) + ".")
+    v = a.verdicts
+    out.append(f"{fmt_count(v.count('independent'))} of {fmt_count(len(v))} folds were judged independent, "
+               f"{fmt_count(v.count('dependent'))} dependent and {fmt_count(v.count('insufficient'))} "
+               f"insufficient; the split's audit verdict is {a.verdict}.")
     return out
 
 
@@ -326,11 +320,9 @@ def _evaluation_sentences(split) -> list[str]:
     e = split.evaluation
     if e is None:
         return ["The split was not evaluated (no evaluation/evaluation.json in its folder)."]
-    par = e.get("parameters", {}) or {}
-    rows = e.get("folds", []) or []
-    k = len(rows)
-    sig = [bool(r.get("significant")) for r in rows]
-    n_sig = sum(sig)
+    par = e.parameters
+    k = len(e.folds)
+    n_sig = sum(f.significant for f in e.folds)
     out = [
         f"Predictions came from {_model_words(par)}. The threshold was chosen from calibration presences only: "
         f"`{par.get('threshold_rule')}`, {threshold_words(par.get('threshold_rule'))}.",
@@ -351,30 +343,29 @@ def _evaluation_sentences(split) -> list[str]:
         f"only; the conventional bootstrap p (share of replicates with ratio <= 1) is reported beside it for comparison "
         f"with published studies but not used, as it calls models of no skill significant when presences are few.",
     ]
-    summary = e.get("all") or {}
-    if summary.get("combined_test") == "jackknife":
+    summary = e.summary
+    if summary.jackknife is not None:
+        jack = summary.jackknife
         out.append(
             f"Every fold held a single evaluation presence, so the split was judged by the jackknife test "
             f"(\"Predicting species distributions from small numbers of occurrence records\", Journal of "
-            f"Biogeography 2007): {fmt_count(summary.get('jackknife_successes', 0))} of "
-            f"{fmt_count(summary.get('jackknife_n', 0))} held-out presences were predicted present, p = "
-            f"{fmt_p(_num(summary.get('jackknife_p')))} (the exact upper tail of the sum of the folds' independent "
+            f"Biogeography 2007): {fmt_count(jack.statistic)} of {fmt_count(jack.n)} held-out presences were "
+            f"predicted present, p = {fmt_p(jack.pvalue)} (the exact upper tail of the sum of the folds' independent "
             f"chances, each its fold's share of area predicted present)."
         )
-    elif summary.get("combined_test") == "holm":
-        out.append(f"The split as a whole was judged by its smallest Holm-adjusted p, "
-                   f"{fmt_p(_num(summary.get('p_adjusted')))}.")
-    out.append(_data_used_sentence(rows))
+    elif summary.combined_test == "holm":
+        out.append(f"The split as a whole was judged by its smallest Holm-adjusted p, {fmt_p(summary.pvalue)}.")
+    out.append(_data_used_sentence(e.folds))
     s = f"{fmt_count(n_sig)} of {fmt_count(k)} folds were significant"
-    good = [r for r in rows if r.get("significant")]
-    ratios = np.array([_num(r.get("auc_ratio")) for r in good], float)
-    aucs = np.array([_num(r.get("auc")) for r in good], float)
+    good = [f for f in e.folds if f.significant]
+    ratios = np.array([f.partial_roc.auc_ratio for f in good], float)
+    aucs = np.array([f.partial_roc.auc for f in good], float)
     if good and np.isfinite(ratios).any():
         s += (f"; among them the observed partial AUC ratio ran from {fmt_share(np.nanmin(ratios))} to "
               f"{fmt_share(np.nanmax(ratios))} and the full AUC from {fmt_share(np.nanmin(aucs))} to "
               f"{fmt_share(np.nanmax(aucs))}")
     out.append(s + ".")
-    bad = [str(r.get("fold")) for r, ok in zip(rows, sig) if not ok]
+    bad = [f.fold for f in e.folds if not f.significant]
     if bad:
         out.append(f"Fold{'s' if len(bad) > 1 else ''} {fmt_list(bad)} {'were' if len(bad) > 1 else 'was'} not "
                    f"significant: marked \"do not interpret\", and {'their' if len(bad) > 1 else 'its'} performance "
@@ -386,11 +377,10 @@ _OTHER_WORDS = {"absence": "evaluation absences (sites surveyed where the specie
                 "background": "evaluation background points"}
 
 
-def _data_used_sentence(rows) -> str:
+def _data_used_sentence(folds) -> str:
     """Which kind of data each test set the evaluation presences against."""
-    raster = any(str(r.get("area_source", "")).startswith("raster") for r in rows)
-    others = sorted({str(r.get("other_kind")) for r in rows if str(r.get("other_kind", "")) in _OTHER_WORDS
-                     and (_num(r.get("n_other")) or 0) > 0})
+    raster = any(f.area_source.startswith("raster") for f in folds)
+    others = sorted({f.other_kind for f in folds if f.other_kind in _OTHER_WORDS and f.n_other > 0})
     other = " or ".join(_OTHER_WORDS[o] for o in others) if others else "no absences or background"
     again = " or ".join(_OTHER_WORDS[o].split(" (")[0] for o in others) if others else other
     if raster:
@@ -424,20 +414,20 @@ def comparison_paragraph(splits) -> str:
     for s in splits:
         b = f"`{s.name}` ({METHOD_WORDS.get(s.method, s.method)})"
         if s.audit is not None:
-            v = [str(r.get("verdict")) for r in s.audit.get("folds", [])]
-            b += (f": audit verdict {s.audit.get('verdict')} ({fmt_count(v.count('independent'))} of "
+            v = s.audit.verdicts
+            b += (f": audit verdict {s.audit.verdict} ({fmt_count(v.count('independent'))} of "
                   f"{fmt_count(len(v))} folds independent)")
         else:
             b += ": not audited"
         if s.evaluation is not None:
-            rows = s.evaluation.get("folds", [])
-            b += f", {fmt_count(sum(bool(r.get('significant')) for r in rows))} of {fmt_count(len(rows))} folds significant"
+            folds = s.evaluation.folds
+            b += f", {fmt_count(sum(f.significant for f in folds))} of {fmt_count(len(folds))} folds significant"
         else:
             b += ", not evaluated"
         bits.append(b)
     text = "Side by side: " + "; ".join(bits) + "."
-    dep = [s.name for s in splits if s.audit is not None and s.audit.get("verdict") == "dependent"]
-    ind = [s.name for s in splits if s.audit is not None and s.audit.get("verdict") == "independent"]
+    dep = [s.name for s in splits if s.audit is not None and s.audit.verdict == "dependent"]
+    ind = [s.name for s in splits if s.audit is not None and s.audit.verdict == "independent"]
     if dep and ind:
         text += (f" Evaluation records of a split judged dependent ({fmt_list(f'`{n}`' for n in dep)}) sit close to "
                  f"calibration records, so its tests mostly measure interpolation between neighbours; the "

@@ -5,8 +5,14 @@ beside its fold table) or a folder holding several split folders one level down,
 plus optionally ``range/range.json``. Every part other than the design is
 optional: a split may not have been audited or evaluated yet.
 
-This module is part of the report shell: it reads files and returns plain
-frozen records; it never writes.
+The audit, evaluation and range come back as the objects the steps returned
+(``AuditResult``, ``EvaluationResult``, ``RangeEstimate``, rebuilt by their
+``from_dict``); what a step wrote beside its result (command line, sources,
+notes) comes back as that step's context. A file that does not hold a whole
+result is bad input, named with what to do.
+
+This module is part of the report shell: it reads files and returns frozen
+records; it never writes.
 """
 
 from __future__ import annotations
@@ -17,10 +23,12 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
-import pandas as pd
 import pyproj
 
+from splitter.dependence.audit import AuditResult
+from splitter.dependence.variogram import RangeEstimate
 from splitter.errors import InputError
+from splitter.evaluate.results import EvaluationResult
 
 SIDECAR = ".design.json"
 TABLE_SUFFIXES = (".csv", ".gpkg", ".parquet")
@@ -62,7 +70,12 @@ class SplitRecords:
 class SplitRun:
     """Everything one split folder holds.
 
-    ``audit``/``evaluation`` are None when that step was not run.
+    ``audit``/``evaluation`` are None when that step was not run. The contexts
+    hold what the step wrote beside its result: the audit's command line, range
+    source, prediction locations, notes and time gaps; the evaluation's command
+    line and fold table. ``audit_absences`` is the second audit, absences to
+    absences, of a run with absences. ``range_summary`` is the range estimate the
+    design stored for ``--block-size auto``.
     """
 
     name: str
@@ -70,12 +83,13 @@ class SplitRun:
     table_path: Path
     design: dict
     records: SplitRecords = field(repr=False)
-    audit: dict | None = field(default=None, repr=False)
-    audit_table: pd.DataFrame | None = field(default=None, repr=False)
-    audit_absences_table: pd.DataFrame | None = field(default=None, repr=False)
+    audit: AuditResult | None = field(default=None, repr=False)
+    audit_absences: AuditResult | None = field(default=None, repr=False)
+    audit_context: dict = field(default_factory=dict, repr=False)
     distance_figure: Path | None = None
-    evaluation: dict | None = field(default=None, repr=False)
-    evaluation_table: pd.DataFrame | None = field(default=None, repr=False)
+    evaluation: EvaluationResult | None = field(default=None, repr=False)
+    evaluation_context: dict = field(default_factory=dict, repr=False)
+    range_summary: RangeEstimate | None = field(default=None, repr=False)
     files: tuple = ()
 
     @property
@@ -103,22 +117,17 @@ class SplitRun:
         except InputError:
             return None
 
-    @property
-    def range_summary(self) -> dict | None:
-        """The range estimate stored in the sidecar (``--block-size auto``)."""
-        rs = self.parameters.get("range_summary")
-        return rs if isinstance(rs, dict) and rs.get("semivariograms") else None
-
 
 @dataclass(frozen=True)
 class Run:
-    """A run directory: one or more splits, and the range estimate if any."""
+    """A run directory: one or more splits, and the range estimate if any (``range_context``:
+    what the range step wrote beside it, such as its seed and command line)."""
 
     folder: Path
     splits: tuple
-    range: dict | None = field(default=None, repr=False)
+    range: RangeEstimate | None = field(default=None, repr=False)
+    range_context: dict = field(default_factory=dict, repr=False)
     range_path: Path | None = None
-    range_figure: Path | None = None
 
 
 def sha256_file(path) -> str:
@@ -134,6 +143,46 @@ def _load_json(path: Path) -> dict:
         return json.loads(path.read_text(encoding="utf-8"))
     except (OSError, UnicodeDecodeError, json.JSONDecodeError) as e:
         raise InputError(f"{path}: cannot be read as JSON ({e.__class__.__name__}); re-run the step that wrote it.") from None
+
+
+#: Step -> what its file holds, for the message when it does not.
+_HOLDS = {"design": "design sidecar", "audit": "audit", "evaluate": "evaluation", "range": "range estimate"}
+
+
+def _result(path: Path, step: str, read, doc):
+    """``read(doc)``; a document that does not hold a whole result is bad input."""
+    try:
+        return read(doc)
+    except (KeyError, IndexError, TypeError, ValueError, AttributeError) as e:
+        what = f"no {e}" if isinstance(e, KeyError) else " ".join(str(e).split())
+        raise InputError(f"{path}: not a complete {_HOLDS[step]} as splitter writes it ({what}); "
+                         f"run 'splitter {step}' again to write it.") from None
+
+
+def _context(doc: dict, result) -> dict:
+    """The keys a step wrote beside its result's own."""
+    return {k: v for k, v in doc.items() if k not in result.to_dict()}
+
+
+def _read_audit(doc: dict) -> tuple:
+    absences = doc.get("absences")
+    return (AuditResult.from_dict(doc), AuditResult.from_dict(absences) if absences is not None else None,
+            dict(doc.get("context") or {}))
+
+
+def _read_evaluation(doc: dict) -> tuple:
+    result = EvaluationResult.from_dict(doc)
+    return result, _context(doc, result)
+
+
+def _read_range(doc: dict) -> tuple:
+    result = RangeEstimate.from_dict(doc)
+    return result, _context(doc, result)
+
+
+def _range_summary(design: dict):
+    rs = (design.get("parameters") or {}).get("range_summary")
+    return RangeEstimate.from_dict(rs) if isinstance(rs, dict) and rs.get("semivariograms") else None
 
 
 def _sidecars(folder: Path) -> list[Path]:
@@ -180,14 +229,10 @@ def _read_records(table_path: Path, design: dict) -> SplitRecords:
     )
 
 
-def _read_table(path: Path) -> pd.DataFrame:
-    # Text first: the appendix prints the run's values, it does not re-type them.
-    return pd.read_csv(path, dtype=str, keep_default_na=False)
-
-
 def load_split(sidecar: Path, name: str) -> SplitRun:
     """Read one split (design sidecar, fold table, audit/ and evaluation/ if present)."""
     design = _load_json(sidecar)
+    range_summary = _result(sidecar, "design", _range_summary, design)
     table_path = _table_for(sidecar)
     folder = sidecar.parent
     files = [table_path, sidecar]
@@ -196,34 +241,29 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
         files.append(gaps)
     records = _read_records(table_path, design)
 
-    audit = audit_table = audit_absences_table = distance_figure = None
+    audit = audit_absences = distance_figure = None
+    audit_context: dict = {}
     audit_json = folder / "audit" / "audit.json"
     if audit_json.exists():
-        audit = _load_json(audit_json)
-        files.append(audit_json)
-        if (folder / "audit" / "audit.csv").exists():
-            audit_table = _read_table(folder / "audit" / "audit.csv")
-            files.append(folder / "audit" / "audit.csv")
-        if (folder / "audit" / "audit_absences.csv").exists():
-            audit_absences_table = _read_table(folder / "audit" / "audit_absences.csv")
-            files.append(folder / "audit" / "audit_absences.csv")
+        audit, audit_absences, audit_context = _result(audit_json, "audit", _read_audit, _load_json(audit_json))
+        # The tables are written from the same results: listed (with their digests), not read.
+        files += [p for p in (audit_json, folder / "audit" / "audit.csv", folder / "audit" / "audit_absences.csv")
+                  if p.exists()]
         stem = folder / "audit" / "distance_ecdf"
         if stem.with_suffix(".png").exists():
             distance_figure = stem
 
-    evaluation = evaluation_table = None
+    evaluation = None
+    evaluation_context: dict = {}
     ev_json = folder / "evaluation" / "evaluation.json"
     if ev_json.exists():
-        evaluation = _load_json(ev_json)
-        files.append(ev_json)
-        if (folder / "evaluation" / "evaluation.csv").exists():
-            evaluation_table = _read_table(folder / "evaluation" / "evaluation.csv")
-            files.append(folder / "evaluation" / "evaluation.csv")
+        evaluation, evaluation_context = _result(ev_json, "evaluate", _read_evaluation, _load_json(ev_json))
+        files += [p for p in (ev_json, folder / "evaluation" / "evaluation.csv") if p.exists()]
     return SplitRun(
         name=name, folder=folder, table_path=table_path, design=design, records=records,
-        audit=audit, audit_table=audit_table, audit_absences_table=audit_absences_table,
-        distance_figure=distance_figure,
-        evaluation=evaluation, evaluation_table=evaluation_table, files=tuple(files),
+        audit=audit, audit_absences=audit_absences, audit_context=audit_context, distance_figure=distance_figure,
+        evaluation=evaluation, evaluation_context=evaluation_context, range_summary=range_summary,
+        files=tuple(files),
     )
 
 
@@ -256,10 +296,8 @@ def load_run(run_dir) -> Run:
             "give a folder written by 'splitter design' (or the demo)."
         )
     splits = tuple(load_split(p, name) for p, name in found)
-    rng = rng_path = rng_fig = None
     candidate = run_dir / "range" / "range.json"
-    if candidate.exists():
-        rng, rng_path = _load_json(candidate), candidate
-        if (run_dir / "range" / "variogram.png").exists():
-            rng_fig = run_dir / "range" / "variogram"
-    return Run(folder=run_dir, splits=splits, range=rng, range_path=rng_path, range_figure=rng_fig)
+    if not candidate.exists():
+        return Run(folder=run_dir, splits=splits)
+    estimate, context = _result(candidate, "range", _read_range, _load_json(candidate))
+    return Run(folder=run_dir, splits=splits, range=estimate, range_context=context, range_path=candidate)

@@ -8,7 +8,7 @@ significant when both tests reject the null of no predictive ability at
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field, replace
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -16,11 +16,6 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.evaluate import (
-    BinomialResult,
-    JackknifeResult,
-    Measures,
-    PartialROCResult,
-    Threshold,
     ThresholdRule,
     binomial_test,
     boyce_index,
@@ -33,6 +28,7 @@ from splitter.evaluate import (
     partial_roc,
     predict_suitability,
 )
+from splitter.evaluate.results import CANNOT_OMIT, MEASURES, EvaluationResult, FoldEvaluation, SplitSummary
 from splitter.evaluate.surface import evaluate_surface
 from splitter.partition.assignment import FoldAssignment
 
@@ -46,261 +42,7 @@ EXTENT_BUFFER_KM = 50.0
 EXTENT_RATIO = 2.0
 MIN_PRESENCES = 5
 
-COLUMNS = [
-    "fold", "significant", "interpretation", "p_adjusted", "p_fold", "n_evaluation", "threshold_rule", "threshold",
-    "area_predicted", "successes", "binomial_p", "auc", "auc_ratio", "auc_ratio_null_median", "partial_roc_p",
-    "auc_ratio_mean", "auc_ratio_low", "auc_ratio_high", "partial_roc_p_bootstrap", "partial_roc_note",
-    "omission", "replicates",
-    "omission_rate", "sensitivity", "specificity", "commission_rate",
-    "correct_classification_rate", "tss", "kappa", "specificity_name", "commission_name", "boyce", "n_other",
-    "other_kind",
-    "area_source", "dropped_no_prediction", "warnings",
-]
-SUMMARY_COLUMNS = [
-    "combined_test", "n_interpretable", "n_significant_folds", "jackknife_successes", "jackknife_n", "jackknife_p",
-]
 ADJUSTMENTS = ("holm", "none")
-# One note for every fold whose bootstrap samples cannot omit a presence.
-CANNOT_OMIT = "cannot omit any presence (round(0.5 n) x E < 1): bootstrap ratios exceed 1 for any model"
-
-
-@dataclass(frozen=True)
-class FoldEvaluation:
-    """Everything measured on one fold: significance first, then performance.
-
-    Attributes
-    ----------
-    fold : str
-        Fold label.
-    n_evaluation : int
-        Evaluation presences with a prediction.
-    threshold : Threshold
-        From calibration presences (never evaluation data).
-    area_predicted : float
-        Share of the testing region (or of evaluation background/absences)
-        predicted present: the binomial test's p.
-    binomial : BinomialResult
-    partial_roc : PartialROCResult
-    p_fold : float
-        The larger of the binomial and partial-ROC p-values (both must reject).
-    p_adjusted : float
-        ``p_fold`` adjusted across the split's folds (Holm), or equal to it with
-        ``adjust="none"``.
-    significant : bool
-        ``p_adjusted < alpha``.
-    measures : Measures or None
-        Confusion-matrix measures (None without evaluation background/absences).
-    boyce : float
-        Continuous Boyce index.
-    n_other, other_kind, area_source, dropped_no_prediction, warnings
-        What the tests compared presences with, and what was left out.
-    scores : pandas.DataFrame
-        Every record the fold's tests looked at, with its prediction.
-    """
-
-    fold: str
-    n_evaluation: int
-    threshold: Threshold
-    area_predicted: float
-    binomial: BinomialResult
-    partial_roc: PartialROCResult = field(repr=False)
-    p_fold: float
-    p_adjusted: float
-    significant: bool
-    measures: Measures | None
-    boyce: float
-    n_other: int
-    other_kind: str
-    area_source: str
-    dropped_no_prediction: int
-    warnings: tuple = ()
-    scores: pd.DataFrame | None = field(default=None, repr=False)
-    # Area of the testing region in km² (raster cells only; NaN otherwise): the extent
-    # check reads it here instead of passing over the raster again.
-    region_km2: float = field(default=float("nan"), repr=False)
-
-    @property
-    def interpretation(self) -> str:
-        return "interpret" if self.significant else "do not interpret"
-
-    @property
-    def curve_x(self) -> np.ndarray:
-        return self.partial_roc.curve.x
-
-    @property
-    def curve_y(self) -> np.ndarray:
-        return self.partial_roc.curve.y
-
-    @property
-    def ratios(self) -> np.ndarray:
-        return self.partial_roc.ratios
-
-    def to_row(self) -> dict:
-        """One row of ``evaluation.csv``."""
-        proc = self.partial_roc
-        meas = self.measures.to_dict() if self.measures is not None else {}
-        return {
-            "fold": self.fold,
-            "significant": self.significant,
-            "interpretation": self.interpretation,
-            "p_adjusted": self.p_adjusted,
-            "p_fold": self.p_fold,
-            "n_evaluation": self.n_evaluation,
-            "threshold_rule": self.threshold.rule,
-            "threshold": self.threshold.value,
-            "area_predicted": self.area_predicted,
-            "successes": self.binomial.statistic,
-            "binomial_p": self.binomial.pvalue,
-            "auc": proc.auc,
-            "auc_ratio": proc.auc_ratio,
-            "auc_ratio_null_median": proc.null_median,
-            "partial_roc_p": proc.pvalue,
-            "auc_ratio_mean": proc.bootstrap_mean,
-            "auc_ratio_low": proc.ratio_low,
-            "auc_ratio_high": proc.ratio_high,
-            "partial_roc_p_bootstrap": proc.pvalue_bootstrap,
-            "partial_roc_note": "" if proc.can_omit else CANNOT_OMIT,
-            "omission": proc.omission,
-            "replicates": proc.replicates,
-            **{k: meas.get(k, np.nan) for k in ("omission_rate", "sensitivity", "specificity", "commission_rate",
-                                                 "correct_classification_rate", "tss", "kappa")},
-            "specificity_name": ("" if self.measures is None else
-                                 "pseudo-specificity" if self.other_kind == "background" else "specificity"),
-            "commission_name": ("" if self.measures is None else
-                                "pseudo-commission rate" if self.other_kind == "background" else "commission rate"),
-            "boyce": self.boyce,
-            "n_other": self.n_other,
-            "other_kind": self.other_kind,
-            "area_source": self.area_source,
-            "dropped_no_prediction": self.dropped_no_prediction,
-            "warnings": "; ".join(self.warnings),
-        }
-
-    @property
-    def row(self) -> dict:
-        return self.to_row()
-
-
-@dataclass(frozen=True)
-class SplitSummary:
-    """The ``all`` row: one verdict for the split, from a stated combined test.
-
-    Attributes
-    ----------
-    combined_test : str
-        ``"holm"``: the split is significant when at least one fold is after Holm's
-        adjustment (p = the smallest adjusted p, a test of "no fold has skill" that
-        holds its size); ``"jackknife"``: every fold holds exactly one evaluation
-        presence, and the jackknife test decides.
-    pvalue : float
-        The combined test's p-value.
-    significant : bool
-    n_folds, n_significant_folds, n_interpretable : int
-        Folds, folds significant on their own rule, and folds whose measures enter
-        the means (the significant ones).
-    n_evaluation, successes : int
-        Summed over folds.
-    means, sds : dict
-        Performance means and standard deviations over interpretable folds only.
-    binomial_fisher_p, partial_roc_fisher_p : float
-        Fisher-combined p-values of the folds' tests, as a description (the folds
-        are not fully independent).
-    jackknife : JackknifeResult or None
-    """
-
-    combined_test: str
-    pvalue: float
-    significant: bool
-    n_folds: int
-    n_significant_folds: int
-    n_interpretable: int
-    n_evaluation: int
-    successes: int
-    means: dict
-    sds: dict
-    binomial_fisher_p: float
-    partial_roc_fisher_p: float
-    threshold_rule: str
-    omission: float
-    replicates: int
-    jackknife: JackknifeResult | None = None
-
-    def to_row(self) -> dict:
-        """The ``all`` row of ``evaluation.csv``."""
-        row = {
-            "fold": "all",
-            "significant": self.significant,
-            "interpretation": "interpret" if self.significant else "do not interpret",
-            "p_adjusted": self.pvalue,
-            "n_evaluation": self.n_evaluation,
-            "successes": self.successes,
-            "binomial_p": self.binomial_fisher_p,
-            "partial_roc_p": self.partial_roc_fisher_p,
-            "threshold_rule": self.threshold_rule,
-            "omission": self.omission,
-            "replicates": self.replicates,
-            "combined_test": self.combined_test,
-            "n_interpretable": self.n_interpretable,
-            "n_significant_folds": self.n_significant_folds,
-            "jackknife_successes": self.jackknife.statistic if self.jackknife else np.nan,
-            "jackknife_n": self.jackknife.n if self.jackknife else np.nan,
-            "jackknife_p": self.jackknife.pvalue if self.jackknife else np.nan,
-        }
-        for m in MEASURES:
-            row[m] = self.means.get(m, np.nan)
-            row[f"{m}_sd"] = self.sds.get(m, np.nan)
-        test = ("jackknife test over the one-presence folds" if self.combined_test == "jackknife"
-                else "Holm's adjustment across folds (smallest adjusted p)")
-        row["warnings"] = (f"verdict from {test}; measures are means over the {self.n_interpretable} "
-                           f"interpretable fold(s) (SD in *_sd); binomial_p and partial_roc_p here are "
-                           "Fisher-combined, a description only")
-        return row
-
-
-@dataclass(frozen=True)
-class EvaluationResult:
-    """Per-fold significance and performance, plus an ``all`` row.
-
-    Attributes
-    ----------
-    folds : tuple of FoldEvaluation
-    summary : SplitSummary
-    parameters : dict
-    warnings : tuple of str
-    """
-
-    folds: tuple
-    summary: SplitSummary
-    parameters: dict
-    warnings: tuple
-
-    def to_frame(self) -> pd.DataFrame:
-        rows = [f.to_row() for f in self.folds] + [self.summary.to_row()]
-        df = pd.DataFrame(rows)
-        cols = COLUMNS + [c for c in df.columns if c not in COLUMNS]
-        return df.reindex(columns=cols)
-
-    def to_dict(self) -> dict:
-        def clean(v):
-            if isinstance(v, (np.floating, float)):
-                return None if not np.isfinite(v) else float(v)
-            if isinstance(v, np.integer):
-                return int(v)
-            if isinstance(v, np.bool_):
-                return bool(v)
-            if isinstance(v, dict):
-                return {k: clean(x) for k, x in v.items()}
-            if isinstance(v, (list, tuple)):
-                return [clean(x) for x in v]
-            return v
-
-        return clean({
-            "parameters": self.parameters,
-            "warnings": list(self.warnings),
-            "folds": [f.to_row() for f in self.folds],
-            "all": self.summary.to_row(),
-            "curves": {f.fold: {"x": f.curve_x.tolist(), "y": f.curve_y.tolist()} for f in self.folds},
-        })
 
 
 def _kind_rows(assignment, rows, kind):
@@ -609,8 +351,6 @@ def _score_table(assignment, label, parts) -> pd.DataFrame:
         columns=["record_id", "fold", "role", "kind", "prediction", "dropped"])
 
 
-MEASURES = ["area_predicted", "auc", "auc_ratio", "auc_ratio_mean", "omission_rate", "sensitivity",
-            "specificity", "commission_rate", "correct_classification_rate", "tss", "kappa", "boyce"]
 
 
 def _summarise(folds, alpha) -> SplitSummary:
