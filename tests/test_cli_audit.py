@@ -179,3 +179,22 @@ def test_range_bad_input(tmp_path):
     assert_one_line_error(run("range", src, "--response", "--out", tmp_path / "r"), "absences")
     assert_one_line_error(run("range", src, "--covariate-column", "longitude", "--sample", 10, "--out", tmp_path / "r"),
                           "--sample 10")
+
+
+def test_range_figure_is_byte_identical_in_fresh_processes(tmp_path):
+    """The SVG's element ids are hashed with matplotlib's rcParams salt at save time; a figure
+    saved before any other set it got random ids (fresh process, range as the first figure).
+    Reference: the same command in two new interpreters must write the same bytes."""
+    import subprocess
+    import sys
+
+    outs = []
+    for name in ("a", "b"):
+        (tmp_path / name).mkdir()
+        # Same folder name under two working folders: the recorded command is the same too.
+        subprocess.run([str(Path(sys.executable).with_name("splitter")), "range", "--env", str(ENV[0]),
+                        "--sample", "300", "--seed", "1", "--out", "out"],
+                       check=True, capture_output=True, cwd=tmp_path / name)
+        outs.append(tmp_path / name / "out")
+    for fname in ("variogram.svg", "variogram.png", "range.json", "range.csv"):
+        assert (outs[0] / fname).read_bytes() == (outs[1] / fname).read_bytes(), fname

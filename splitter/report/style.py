@@ -34,7 +34,11 @@ def save(fig: Figure, path_stem, formats=("png", "svg")) -> list:
         path = Path(f"{path_stem}.{fmt}")
         path.parent.mkdir(parents=True, exist_ok=True)
         meta = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
-        with atomic_path(path) as tmp:
+        # SVG element ids come from a hash salted with rcParams at save time: a fixed salt
+        # here makes every figure byte-identical run to run, however it was built.
+        import matplotlib
+
+        with atomic_path(path) as tmp, matplotlib.rc_context({"svg.hashsalt": RC["svg.hashsalt"]}):
             fig.savefig(tmp, format=fmt, metadata=meta)
         out.append(path)
         # The layout is worked out by the first save; the other formats reuse it rather than
