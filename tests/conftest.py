@@ -87,3 +87,30 @@ def run_copy(demo_run, tmp_path):
     dst = tmp_path / "run"
     shutil.copytree(demo_run, dst, ignore=shutil.ignore_patterns("appendix"))
     return dst
+
+
+# The file whose tests first read the shared demo run; it is collected first.
+_DEMO_FIRST = "tests/report/test_appendix.py"
+
+
+def pytest_collection_modifyitems(config, items):
+    """Order files for two workers (``--dist loadfile`` sends a file whole to one worker).
+
+    The first file that needs the shared demo run goes first, so one worker builds the demo
+    while the other runs the rest; the other files that read the demo run go last, when it
+    exists, so no worker waits on the demo's lock. Within each group, files holding a test
+    marked ``slow`` go first (longest first), so the last files to finish are short ones.
+    """
+    def path(item):
+        return item.nodeid.split("::", 1)[0]
+
+    demo_files = {path(i) for i in items if {"demo_command", "demo_run"} & set(i.fixturenames)}
+    slow_files = {path(i) for i in items if i.get_closest_marker("slow")}
+
+    def rank(item):
+        p = path(item)
+        if p == _DEMO_FIRST:
+            return 0
+        return (3 if p in demo_files else 1) + (0 if p in slow_files else 1)
+
+    items.sort(key=rank)  # stable: the order within each group is kept

@@ -11,6 +11,7 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pyproj
+import pytest
 from typer.testing import CliRunner
 
 from splitter.cli import app
@@ -92,6 +93,7 @@ def test_generalise_must_be_positive(tmp_path):
     assert not (tmp_path / "g.csv").exists()
 
 
+@pytest.mark.slow
 def test_the_demo_generalises_every_coordinate_it_writes(tmp_path):
     # The demo writes fold tables and an appendix: with --generalise both carry cell centres.
     res = run("demo", tmp_path / "demo", "--generalise", 25, "--replicates", 20)
