@@ -10,7 +10,6 @@ import pandas as pd
 import pyproj
 import pytest
 import rasterio
-import skgstat as skg
 from scipy import stats
 
 from splitter.errors import InputError
@@ -199,6 +198,8 @@ def test_truth_records_the_ranges(demo):
 
 @pytest.mark.parametrize("name, true_range_km", [("canopy", 40.0), ("moisture", 150.0)])
 def test_covariate_range_can_be_recovered(demo, name, true_range_km):
+    import skgstat as skg  # here, not at collection: it loads numba (0.5 s) on every worker
+
     with rasterio.open(demo / f"{name}.tif") as src:
         z = src.read(1)
         t = src.transform

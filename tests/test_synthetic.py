@@ -4,7 +4,6 @@ import warnings
 
 import numpy as np
 import pytest
-import skgstat as skg
 from scipy import stats
 
 from splitter.errors import InputError
@@ -93,6 +92,8 @@ def test_mean_and_sd_of_one_large_field():
     ("gaussian", np.sqrt(4.0 / np.log(20.0))),
 ])
 def test_fitted_variogram_range_matches(model, skgstat_factor):
+    import skgstat as skg  # here, not at collection: it loads numba (0.5 s) on every worker
+
     range_km = 15.0
     z = gaussian_field((200, 200), 1.0, range_km, seed=3, model=model)
     rng = np.random.default_rng(11)
