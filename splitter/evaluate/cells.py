@@ -116,6 +116,16 @@ class CellSource:
         for v, runs in kept:
             yield v, (None if runs is None else np.repeat(runs[0], runs[1]))
 
+    def run_blocks(self) -> Iterator[tuple[np.ndarray, tuple | None]]:
+        """``(values, runs)`` of every block: the weights as runs of equal weight, ``(weight of
+        each run, its length)``, or None for equal weights; kept blocks are not expanded."""
+        kept = self._cache.get("kept")
+        if kept is not None:
+            yield from kept
+            return
+        for v, w in self.blocks():
+            yield v, (None if w is None else _runs(w))
+
     def blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
         """``(values, weights)`` of every block, in a fixed order.
 
@@ -617,8 +627,9 @@ def draw_cells(cells, count: int, total_weight: float, rng: np.random.Generator)
     This is where presences of a model with no predictive ability would fall:
     anywhere in the testing region, each place as likely as its area. One pass
     over the blocks: ``count`` uniform targets on [0, total weight) are sorted,
-    and each block takes the targets that fall within its own cumulative weight.
-    Zero-weight cells are never drawn.
+    and each block takes the targets that fall within its own cumulative weight,
+    found run by run of equal weight (a raster row's cells share one area), then
+    cell by cell within the run. Zero-weight cells are never drawn.
 
     Parameters
     ----------
@@ -657,22 +668,31 @@ def draw_cells(cells, count: int, total_weight: float, rng: np.random.Generator)
     out = np.empty(count, dtype=np.float64)
     done, offset = 0, 0.0
     last_value = None
-    for v, w in source.blocks():
+    for v, runs in source.run_blocks():
         if v.size == 0:
             continue
-        cum = np.arange(1.0, v.size + 1.0) if w is None else np.cumsum(w)
+        # Runs of equal weight (a raster's cells share their row's area): the cumulative
+        # weight is needed only at run ends, not at every cell.
+        rv, rl = (np.ones(1), np.array([v.size])) if runs is None else runs
+        mass = rv * rl
+        cum = np.cumsum(mass)
         block_total = float(cum[-1])
         if block_total <= 0.0:
             continue
+        first = np.cumsum(rl) - rl  # first cell of each run
+        weighted = np.flatnonzero(rv > 0)
         end = int(np.searchsorted(t, offset + block_total, side="left"))
         if end > done:
-            # The cell whose cumulative weight first exceeds the target; an empty
-            # (zero-weight) cell has no interval of its own and is never chosen.
-            at = np.searchsorted(cum, t[done:end] - offset, side="right")
-            out[order[done:end]] = v[np.minimum(at, v.size - 1)]
+            # The run whose cumulative weight first exceeds the target (a zero-weight run
+            # has no interval of its own and is never chosen), then the cell within it.
+            u = t[done:end] - offset
+            r = np.minimum(np.searchsorted(cum, u, side="right"), weighted[-1])
+            before = np.concatenate(([0.0], cum[:-1]))[r]
+            j = np.clip(np.floor((u - before) / rv[r]), 0, rl[r] - 1).astype(np.int64)
+            out[order[done:end]] = v[first[r] + j]
             done = end
         offset += block_total
-        last_value = v[np.flatnonzero(cum == block_total)[0]]  # last cell with weight
+        last_value = v[first[weighted[-1]] + rl[weighted[-1]] - 1]  # last cell with weight
     if done < count:
         # Targets a rounding error above the summed weight: the last weighted cell.
         if last_value is None:
