@@ -114,44 +114,53 @@ class CellSource:
     @staticmethod
     def _replay(kept):
         for v, runs in kept:
-            yield v, (None if runs is None else np.repeat(runs[0], runs[1]))
-
-    def run_blocks(self) -> Iterator[tuple[np.ndarray, tuple | None]]:
-        """``(values, runs)`` of every block: the weights as runs of equal weight, ``(weight of
-        each run, its length)``, or None for equal weights; kept blocks are not expanded."""
-        kept = self._cache.get("kept")
-        if kept is not None:
-            yield from kept
-            return
-        for v, w in self.blocks():
-            yield v, (None if w is None else _runs(w))
+            yield v, _expand(runs)
 
     def blocks(self) -> Iterator[tuple[np.ndarray, np.ndarray | None]]:
         """``(values, weights)`` of every block, in a fixed order.
 
         The first complete pass of a streamed source keeps its blocks (values as
-        given, weights run-length coded: a raster's areas change only from row to
-        row) while they fit in ``keep_bytes``; later passes replay them.
+        given, weights as runs of equal weight: a raster's areas change only from row
+        to row) while they fit in ``keep_bytes``; later passes replay them.
         """
+        return self._stream(as_runs=False)
+
+    def run_blocks(self) -> Iterator[tuple[np.ndarray, tuple | None]]:
+        """``(values, runs)`` of every block: the weights as runs of equal weight, ``(weight of
+        each run, its length)``, or None for equal weights; never expanded cell by cell
+        when the source already has them as runs (kept blocks, raster windows)."""
+        return self._stream(as_runs=True)
+
+    def _stream(self, as_runs: bool):
         kept = self._cache.get("kept")
         if kept is not None:
-            yield from self._replay(kept)
+            for v, runs in kept:
+                yield v, (runs if as_runs else _expand(runs))
             return
         keeping = [] if self.in_memory is None and self.keep_bytes > 0 and "too_big" not in self._cache else None
         size = 0
         for b in self.open_blocks():
-            v, w = _block_arrays(b)
+            v, w, runs = _block_parts(b)
+            if runs is None and w is not None and (as_runs or keeping is not None):
+                runs = _runs(w)
             if keeping is not None:
-                runs = None if w is None else _runs(w)
                 size += v.nbytes + (0 if runs is None else runs[0].nbytes + runs[1].nbytes)
                 if size > self.keep_bytes:
                     keeping = None
                     self._cache["too_big"] = True
                 else:
                     keeping.append((v, runs))
-            yield v, w
+            if as_runs:
+                yield v, runs
+            else:
+                yield v, (w if w is not None else _expand(runs))
         if keeping is not None:
             self._cache["kept"] = keeping
+
+
+def _expand(runs) -> np.ndarray | None:
+    """One weight per cell from runs of equal weight (None stays None: equal weights)."""
+    return None if runs is None else np.repeat(runs[0], runs[1])
 
 
 def _runs(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -377,6 +386,22 @@ def _finite_scores(values, what: str, name: str) -> np.ndarray:
     if not np.all(np.isfinite(s)):
         raise InputError(f"Some {what} are missing or infinite; drop those {name} first.")
     return s
+
+
+def _block_parts(block) -> tuple[np.ndarray, np.ndarray | None, tuple | None]:
+    """(values, weights, runs) of one streamed block: a raster window that carries its
+    areas as row runs gives those (weights None), any other block its weights."""
+    runs = getattr(block, "area_runs", None)
+    if runs is None:
+        return (*_block_arrays(block), None)
+    v = np.asarray(block.values)
+    if v.dtype.kind != "f":
+        v = v.astype(np.float64)
+    rv = np.asarray(runs[0], dtype=np.float64)
+    rl = np.asarray(runs[1], dtype=np.int64)
+    if int(rl.sum()) != v.size:
+        raise InputError(f"A block has {int(rl.sum())} cell weights for {v.size} cell values; give one weight per cell.")
+    return v.ravel(), None, (rv, rl)
 
 
 def _block_arrays(block) -> tuple[np.ndarray, np.ndarray | None]:

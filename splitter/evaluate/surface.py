@@ -169,10 +169,10 @@ def _range_and_total(source) -> tuple[float, float, float]:
     """Smallest and largest cell value and the summed weight: the first pass over the cells
     (for a raster, the one that reads the file; a source keeps the cells for the later passes)."""
     lo, hi, total = np.inf, -np.inf, 0.0
-    for v, w in source.blocks():
+    for v, runs in source.run_blocks():
         if v.size:
             lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
-            total += float(v.size) if w is None else float(w.sum())
+            total += float(v.size) if runs is None else float(np.dot(runs[0], runs[1]))
     if lo > hi:
         raise InputError("No cell values were given; the testing region has no valid cells.")
     if not (np.isfinite(lo) and np.isfinite(hi)):

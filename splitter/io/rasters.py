@@ -485,19 +485,30 @@ class CellBlock:
         values stay float32: every kernel compares them exactly as float64); (m, k)
         float64 for k rasters internally.
     areas : ndarray of float64
-        Cell areas in km².
+        Cell areas in km² (expanded from ``area_runs`` when first asked for).
+    area_runs : (ndarray, ndarray) or None
+        The areas as runs: the area of each row holding valid cells and how many it
+        holds (cells of a row share its area). Kernels that pass over the cells
+        more than once keep these instead of one area per cell.
     """
 
     values: np.ndarray
-    areas: np.ndarray
+    _areas: np.ndarray | None = field(default=None, repr=False)
     _rows: np.ndarray | None = field(default=None, repr=False)
     _cols: np.ndarray | None = field(default=None, repr=False)
     # (mask, row_off, col_off): where the valid cells lie in the window, row-major.
     _where: tuple | None = field(default=None, repr=False)
+    area_runs: tuple | None = field(default=None, repr=False)
 
     @classmethod
     def at(cls, rows, cols, values, areas) -> "CellBlock":
-        return cls(values, areas, np.asarray(rows), np.asarray(cols))
+        return cls(values, np.asarray(areas, dtype=np.float64), np.asarray(rows), np.asarray(cols))
+
+    @property
+    def areas(self) -> np.ndarray:
+        if self._areas is None:
+            object.__setattr__(self, "_areas", np.repeat(*self.area_runs))
+        return self._areas
 
     def _indices(self):
         if self._rows is None:
@@ -624,8 +635,9 @@ class _CellReader:
             )
         r0, c0 = int(window.row_off), int(window.col_off)
         per_row = np.count_nonzero(ok, axis=1)
-        areas = np.repeat(self.row_areas[r0 : r0 + ok.shape[0]], per_row)
-        return CellBlock(data[ok], areas, _where=(ok, r0, c0))
+        filled = per_row > 0
+        runs = (self.row_areas[r0 : r0 + ok.shape[0]][filled], per_row[filled])
+        return CellBlock(data[ok], _where=(ok, r0, c0), area_runs=runs)
 
     def block(self, window: Window) -> CellBlock:
         first_values = _read_float(self.srcs[0], window)
