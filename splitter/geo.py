@@ -355,7 +355,10 @@ class NeighbourIndex:
             return np.full(n, np.nan), np.full(n, -1, np.int64)
         self_idx = np.arange(n)
         coords = _unit_xyz(ref) if ref.geographic else np.column_stack([ref.x, ref.y])
-        dd, ii = self._tree.query(coords, k=2, workers=threads())
+        # Geographic: one candidate more than the point and its nearest, so that only the
+        # rows whose next candidate is still within the slack need the wider search.
+        k = 2 if not ref.geographic else min(3, n)
+        dd, ii = self._tree.query(coords, k=k, workers=threads())
         # With duplicates the first neighbour may be another point at distance 0.
         col = np.where(ii[:, 0] == self_idx, 1, 0)
         idx = ii[self_idx, col].astype(np.int64)
@@ -363,7 +366,10 @@ class NeighbourIndex:
             return dd[self_idx, col] * self._factor, idx
         best = _distance_km(ref, ref.take(idx))
         bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
-        return self._refine(ref, coords, self_idx, best, idx, bound, 8, exclude=self_idx)
+        # Any point nearer on the ellipsoid is within the slack on the sphere: a row whose
+        # last candidate lies beyond it has seen every such point (itself and its nearest).
+        todo = np.flatnonzero(dd[:, -1] <= bound) if k > 2 else self_idx
+        return self._refine(ref, coords, todo, best, idx, bound, 8, exclude=self_idx)
 
     def _refine(self, query, xyz, todo, best, idx, bound, k, exclude=None):
         """Check every candidate within ``bound`` (chord) for the rows in ``todo``.

@@ -131,3 +131,26 @@ def test_nearest_other_lone_point_and_bad_input():
         distance_diagnostics(ok, [[0]], [[5]])
     with pytest.raises(InputError):
         distance_diagnostics(ok, [[0]], [[1]], range_km=-3)
+
+
+def test_nearest_other_is_the_brute_force_geodesic_nearest():
+    """Leave-self-out nearest neighbours on WGS84. Reference: pyproj.Geod.inv over every pair
+    (the smallest distance to any other point; among equal distances, the smallest index).
+    Clustered points with exact duplicates and near-ties, where the sphere and the ellipsoid
+    can disagree on the order, are the cases the candidate filter must not miss."""
+    import pyproj
+
+    from splitter.geo import NeighbourIndex
+
+    rng = np.random.default_rng(12)
+    lon = np.r_[rng.normal(10, 0.05, 300), rng.normal(-60, 8, 300)]
+    lat = np.r_[rng.normal(60, 0.05, 300), rng.normal(-20, 20, 300)]
+    lon[:40], lat[:40] = np.round(lon[:40], 1), np.round(lat[:40], 1)  # duplicates
+    d, i = NeighbourIndex(Points.lonlat(lon, lat)).nearest_other()
+    n = lon.size
+    a, b = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
+    _, _, dist = pyproj.Geod(ellps="WGS84").inv(lon[a.ravel()], lat[a.ravel()], lon[b.ravel()], lat[b.ravel()])
+    dist = dist.reshape(n, n) / 1000.0
+    np.fill_diagonal(dist, np.inf)
+    np.testing.assert_allclose(d, dist.min(axis=1), rtol=1e-12, atol=1e-9)
+    np.testing.assert_array_equal(i, np.argmin(dist, axis=1))  # argmin: the first, smallest index
