@@ -347,6 +347,8 @@ class SuitabilitySurface:
 
     def _positions(self, values, what: str) -> np.ndarray:
         q = np.asarray(values, dtype=np.float64).ravel()
+        if q.size == self.query_values.size and np.array_equal(q, self.query_values):
+            return np.arange(q.size)  # summarised for exactly these values (the null's draws)
         pos = np.searchsorted(self.query_values, q)
         found = pos < self.query_values.size
         found[found] = self.query_values[pos[found]] == q[found]
@@ -534,7 +536,9 @@ def summarise_surface(cells, query_values) -> SuitabilitySurface:
     >>> s.weight_below.tolist(), s.weight_equal.tolist(), s.weight_above.tolist()
     ([1.0], [2.0], [1.0])
     """
-    q = np.unique(_finite_scores(query_values, "query values", "values"))
+    q = _finite_scores(query_values, "query values", "values")
+    if not np.all(q[1:] > q[:-1]):  # already ascending and distinct (np.unique's output): no sort
+        q = np.unique(q)
     if q.size == 0:
         raise InputError("No query values were given; pass the presence scores and thresholds to summarise for.")
     source = as_cells(cells)

@@ -458,8 +458,9 @@ def partial_roc(
     surface = _ranked_surface(source, s, surface)
     m = _sample_size(s.size, sample_share)
     picks, drawn = null_draws(source, s.size, m, replicates, surface.total_weight, seed)
-    null_surface = summarise_surface(source, np.unique(drawn))
-    return tested(s, surface, picks, drawn, null_surface, omission)
+    null_values, null_keys = np.unique(drawn, return_inverse=True)
+    null_surface = summarise_surface(source, null_values)
+    return tested(s, surface, picks, drawn, null_surface, omission, null_unique=(null_values, null_keys))
 
 
 def null_draws(cells, n: int, m: int, replicates: int, total_weight: float, seed):
@@ -476,9 +477,10 @@ def null_draws(cells, n: int, m: int, replicates: int, total_weight: float, seed
 
 
 def tested(s: np.ndarray, surface: SuitabilitySurface, picks: np.ndarray, drawn: np.ndarray,
-           null_surface: SuitabilitySurface, omission: float) -> PartialROCResult:
+           null_surface: SuitabilitySurface, omission: float, null_unique=None) -> PartialROCResult:
     """The partial ROC result from summaries made for the presence scores ``s`` and for the
-    null's drawn cell values (one summary may serve both), and the draws of :func:`null_draws`."""
+    null's drawn cell values (one summary may serve both), and the draws of :func:`null_draws`;
+    ``null_unique`` is ``np.unique(drawn, return_inverse=True)`` when the caller has it."""
     _ranked_surface(None, s, surface)
     replicates, m = picks.shape
     n = s.size
@@ -490,7 +492,7 @@ def tested(s: np.ndarray, surface: SuitabilitySurface, picks: np.ndarray, drawn:
     boot = _ratios(inverse[picks], table, omission)
 
     # The null: n presences placed at random in the testing region, B times.
-    null_values, null_keys = np.unique(drawn, return_inverse=True)
+    null_values, null_keys = np.unique(drawn, return_inverse=True) if null_unique is None else null_unique
     null_table = _table(null_surface, null_values)
     null = _ratios(null_keys.reshape(replicates, n), null_table, omission)
     # Ratios equal to the observed one up to rounding count as "at least as
