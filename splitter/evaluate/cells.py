@@ -29,7 +29,7 @@ import numpy as np
 
 from splitter.errors import InputError
 
-__all__ = ["CellSource", "as_cells", "SuitabilitySurface", "summarise_surface", "surface_range", "draw_cells"]
+__all__ = ["CellSource", "as_cells", "SuitabilitySurface", "summarise_surface", "surface_extent", "surface_range", "draw_cells"]
 
 # Cells keyed at a time inside a block: the lookup's temporaries (bucket numbers,
 # keys) then stay in the CPU caches.
@@ -134,8 +134,7 @@ class CellSource:
     def _stream(self, as_runs: bool):
         kept = self._cache.get("kept")
         if kept is not None:
-            for v, runs in kept:
-                yield v, (runs if as_runs else _expand(runs))
+            yield from (kept if as_runs else self._replay(kept))
             return
         keeping = [] if self.in_memory is None and self.keep_bytes > 0 and "too_big" not in self._cache else None
         size = 0
@@ -391,29 +390,16 @@ def _finite_scores(values, what: str, name: str) -> np.ndarray:
 
 
 def _block_parts(block) -> tuple[np.ndarray, np.ndarray | None, tuple | None]:
-    """(values, weights, runs) of one streamed block: a raster window that carries its
-    areas as row runs gives those (weights None), any other block its weights."""
-    runs = getattr(block, "area_runs", None)
-    if runs is None:
-        return (*_block_arrays(block), None)
-    v = np.asarray(block.values)
-    if v.dtype.kind != "f":
-        v = v.astype(np.float64)
-    rv = np.asarray(runs[0], dtype=np.float64)
-    rl = np.asarray(runs[1], dtype=np.int64)
-    if int(rl.sum()) != v.size:
-        raise InputError(f"A block has {int(rl.sum())} cell weights for {v.size} cell values; give one weight per cell.")
-    return v.ravel(), None, (rv, rl)
+    """(values, weights, runs) of one streamed block.
 
-
-def _block_arrays(block) -> tuple[np.ndarray, np.ndarray | None]:
-    """(values, weights) of one streamed block.
-
-    A block is a ``CellBlock`` from :func:`splitter.io.rasters.valid_cells` (values
-    and areas), a ``(values, weights)`` pair (weights may be None), or a bare array
-    of values (equal weights).
+    A block is a ``CellBlock`` from :func:`splitter.io.rasters.valid_cells` (values,
+    and areas as row runs: weights None, runs given), a ``(values, weights)`` pair
+    (weights may be None), or a bare array of values (equal weights).
     """
-    if hasattr(block, "values") and hasattr(block, "areas"):
+    runs = getattr(block, "area_runs", None)
+    if runs is not None:
+        values, weights = block.values, None
+    elif hasattr(block, "values") and hasattr(block, "areas"):
         values, weights = block.values, block.areas
     elif isinstance(block, tuple) and len(block) == 2:
         values, weights = block
@@ -423,18 +409,22 @@ def _block_arrays(block) -> tuple[np.ndarray, np.ndarray | None]:
     if v.dtype.kind != "f":
         v = v.astype(np.float64)
     v = v.ravel()
+    if runs is not None:
+        rv, rl = np.asarray(runs[0], dtype=np.float64), np.asarray(runs[1], dtype=np.int64)
+        if int(rl.sum()) != v.size:
+            raise InputError(f"A block has {int(rl.sum())} cell weights for {v.size} cell values; give one weight per cell.")
+        return v, None, (rv, rl)
     if weights is None:
-        return v, None
+        return v, None, None
     w = np.asarray(weights, dtype=np.float64).ravel()
     if w.shape != v.shape:
         raise InputError(f"A block has {w.size} cell weights for {v.size} cell values; give one weight per cell.")
-    return v, w
+    return v, w, None
 
 
-
-
-def surface_range(cells) -> tuple[float, float]:
-    """Smallest and largest cell value over streamed blocks (the cheap first pass).
+def surface_extent(cells) -> tuple[float, float, float]:
+    """Smallest and largest cell value and the summed weight: one pass over the blocks
+    (for a raster, the pass that reads the file; a source keeps the cells for later passes).
 
     Parameters
     ----------
@@ -443,24 +433,34 @@ def surface_range(cells) -> tuple[float, float]:
 
     Returns
     -------
-    (float, float)
+    (float, float, float)
+
+    Examples
+    --------
+    >>> surface_extent([np.array([0.4, 0.2]), (np.array([0.9]), np.array([2.5]))])
+    (0.2, 0.9, 4.5)
+    """
+    lo, hi, total = np.inf, -np.inf, 0.0
+    for v, runs in as_cells(cells).run_blocks():
+        if v.size:
+            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
+            total += float(v.size) if runs is None else float(np.dot(runs[0], runs[1]))
+    if lo > hi:
+        raise InputError("No cell values were given; the testing region has no valid cells.")
+    if not (np.isfinite(lo) and np.isfinite(hi)):
+        raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
+    return lo, hi, total
+
+
+def surface_range(cells) -> tuple[float, float]:
+    """Smallest and largest cell value over streamed blocks (:func:`surface_extent`'s first two).
 
     Examples
     --------
     >>> surface_range([np.array([0.4, 0.2]), np.array([0.9])])
     (0.2, 0.9)
     """
-    lo, hi = np.inf, -np.inf
-    for v, _ in as_cells(cells).blocks():
-        if v.size:
-            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
-    if lo > hi:
-        raise InputError("No cell values were given; the testing region has no valid cells.")
-    if not (np.isfinite(lo) and np.isfinite(hi)):
-        raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
-    return lo, hi
-
-
+    return surface_extent(cells)[:2]
 
 
 def _tally(blocks, keys: _CellKeys) -> tuple:

@@ -61,6 +61,7 @@ from splitter.evaluate.cells import (
     _finite_scores,
     as_cells,
     summarise_surface,
+    surface_extent,
     surface_range,
 )
 from splitter.evaluate.partial_roc import PartialROCResult, _check_options, _sample_size, null_draws, tested
@@ -165,21 +166,6 @@ def surface_queries(presence_scores=(), thresholds=(), boyce_range=None, width_s
 # ----------------------------------------------------------------------------- tests
 
 
-def _range_and_total(source) -> tuple[float, float, float]:
-    """Smallest and largest cell value and the summed weight: the first pass over the cells
-    (for a raster, the one that reads the file; a source keeps the cells for the later passes)."""
-    lo, hi, total = np.inf, -np.inf, 0.0
-    for v, runs in source.run_blocks():
-        if v.size:
-            lo, hi = min(lo, float(v.min())), max(hi, float(v.max()))
-            total += float(v.size) if runs is None else float(np.dot(runs[0], runs[1]))
-    if lo > hi:
-        raise InputError("No cell values were given; the testing region has no valid cells.")
-    if not (np.isfinite(lo) and np.isfinite(hi)):
-        raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
-    return lo, hi, total
-
-
 def evaluate_surface(
     cells,
     presence_scores,
@@ -240,7 +226,7 @@ def evaluate_surface(
         raise InputError("There are no evaluation presences; the partial ROC needs at least one.")
     thr = _finite_scores(thresholds, "thresholds", "thresholds")
     source = as_cells(cells)
-    lo, hi, total = _range_and_total(source)
+    lo, hi, total = surface_extent(source)
     boyce_range = None
     if boyce:
         boyce_range = (lo, hi) if value_range is None else tuple(value_range)

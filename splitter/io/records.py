@@ -383,6 +383,22 @@ def plain_numbers(column: pd.Series) -> np.ndarray | None:
         return None
 
 
+def covariate_numbers(column: pd.Series) -> np.ndarray:
+    """A covariate column as floats: plain numbers cast at once, else spaces trimmed and a
+    decimal comma read as a point, anything else missing (NaN).
+
+    Examples
+    --------
+    >>> covariate_numbers(pd.Series([" 1,5", "2", "", "n/a"])).tolist()
+    [1.5, 2.0, nan, nan]
+    """
+    fast = plain_numbers(column)
+    if fast is not None:
+        return fast
+    text = column.astype(str).str.strip().str.replace(",", ".", regex=False)
+    return pd.to_numeric(text, errors="coerce").to_numpy(float)
+
+
 def _numbers(column: pd.Series) -> np.ndarray:
     """Coordinates as floats; a decimal comma (``45,12``) is read as a point."""
     fast = plain_numbers(column)

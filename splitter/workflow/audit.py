@@ -188,18 +188,13 @@ def audit(
 
 def _covariate_columns(table, covariates) -> np.ndarray:
     """Site covariates from the table's columns (decimal commas read as points; blanks as missing)."""
-    import pandas as pd
-
-    from splitter.io.records import plain_numbers
+    from splitter.io.records import covariate_numbers
 
     cols = []
     for c in covariates:
         if c not in table.columns:
             raise InputError(f"covariates={c!r}: no such column; columns are: {', '.join(map(str, table.columns))}.")
-        vals = plain_numbers(table[c])
-        if vals is None:
-            text = table[c].astype(str).str.strip().str.replace(",", ".", regex=False)
-            vals = pd.to_numeric(text, errors="coerce").to_numpy(float)
+        vals = covariate_numbers(table[c])
         if not np.isfinite(vals).any():
             raise InputError(f"covariates={c!r}: the column holds no numbers; name a numeric column.")
         cols.append(vals)

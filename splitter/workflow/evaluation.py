@@ -464,7 +464,7 @@ def _model_data_note(kinds_used: set, notes: list):
 def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed, names, notes, progress) -> pd.DataFrame:
     """Fit a model per fold on calibration records' covariate columns; predict every record of the fold."""
     from splitter.io.atomic import atomic_write
-    from splitter.io.records import plain_numbers
+    from splitter.io.records import covariate_numbers
 
     table = assignment.records.table
     cols = []
@@ -472,11 +472,7 @@ def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed
         if c not in table.columns:
             raise InputError(f"covariates={c!r}: no such column in the fold table; columns are: "
                              f"{', '.join(map(str, table.columns))}.")
-        vals = plain_numbers(table[c])
-        if vals is None:
-            vals = pd.to_numeric(table[c].astype(str).str.strip().str.replace(",", ".", regex=False),
-                                 errors="coerce").to_numpy(float)
-        cols.append(vals)
+        cols.append(covariate_numbers(table[c]))
     X = np.column_stack(cols)
     finite = np.isfinite(X).all(axis=1)
     kind = assignment.kind
