@@ -48,3 +48,20 @@ def test_empty_id_is_refused(tmp_path):
     p.write_text("record_id,lon,lat\n,10,45\nb,11,46\n", encoding="utf-8")
     with pytest.raises(InputError, match="row 2"):
         read_records(p)
+
+
+def test_covariate_numbers_match_pandas_parsing():
+    """Covariate columns read as text: the one-call cast of plain numbers and the forgiving
+    path (spaces, decimal commas, blanks) give what pandas.to_numeric gives on the cleaned text
+    (reference: pandas, after the clean-up written out here)."""
+    import pandas as pd
+
+    from splitter.io.records import covariate_numbers
+
+    rng = np.random.default_rng(2)
+    plain = pd.Series(np.char.mod("%.6g", rng.normal(0, 1e3, 5000)).astype(str)).astype("str")
+    expected = pd.to_numeric(plain).to_numpy(float)
+    np.testing.assert_array_equal(covariate_numbers(plain), expected)
+    messy = pd.Series([" 12,5", "3", "", "-1e2", "x", "7.25 "]).astype("str")
+    cleaned = messy.str.strip().str.replace(",", ".", regex=False)
+    np.testing.assert_array_equal(covariate_numbers(messy), pd.to_numeric(cleaned, errors="coerce").to_numpy(float))
