@@ -68,9 +68,10 @@ def test_scheduler_and_worker_as_separate_processes(tmp_path):
         assert [r["status"] for r in res.rows] == ["ok", "ok", "ok"]  # reference: the 3-row manifest above
         assert all((tmp_path / "out" / f"r{i}" / "folds.csv").is_file() for i in range(3))
     finally:
+        # The worker is stopped before the scheduler: a worker whose scheduler is already gone
+        # spends about 8 s retrying it before it exits.
         for p in reversed(procs):
             p.terminate()
-        for p in reversed(procs):
             try:
                 p.wait(timeout=20)
             except subprocess.TimeoutExpired:
