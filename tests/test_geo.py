@@ -89,3 +89,16 @@ def test_distance_km_refuses_bad_coordinates_in_one_sentence():
         'AXIS["y",north,LENGTHUNIT["metre",1]]]'))
     with pytest.raises(InputError, match="cannot be converted"):
         distance_km(ok, planar)  # no transformation exists from a local engineering CRS (pyproj raises ProjError)
+
+
+def test_geodesics_in_parts_over_threads_equal_one_pyproj_call():
+    from splitter.geo import _geodesic_km
+
+    rng = np.random.default_rng(8)
+    n = 45_001  # several parts of uneven length over two and three threads
+    lon1, lat1 = rng.uniform(-180, 180, n), rng.uniform(-89, 89, n)
+    lon2, lat2 = lon1 + rng.normal(0, 2, n), np.clip(lat1 + rng.normal(0, 2, n), -89.9, 89.9)
+    # reference: one pyproj.Geod.inv call over every pair
+    whole = np.asarray(GEOD.inv(lon1, lat1, lon2, lat2)[2]) / 1000.0
+    for workers in (1, 2, 3):
+        np.testing.assert_array_equal(_geodesic_km(lon1, lat1, lon2, lat2, workers), whole)

@@ -60,7 +60,8 @@ import numpy as np
 import pandas as pd
 
 from splitter.dependence.distance import DistanceDiagnostics, _float, _num, check_folds, distance_diagnostics
-from splitter.dependence.environment import CovariateRanges, covariate_ranges, mess, schoener_d_resplit
+from splitter.dependence.environment import (ComponentSpace, CovariateRanges, covariate_ranges, mess,
+                                             schoener_d_resplit)
 from splitter.dependence.resplit import (
     NULL_LEVEL,
     NULL_SPLITS,
@@ -390,6 +391,51 @@ def _null_outcome(rule: str, measure: str, comp: NullComparison) -> RuleOutcome:
     )
 
 
+def _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed):
+    """Per fold: Schoener's D and its re-splits, the share outside the envelope, covariate
+    ranges, and the shared survey-method share and its re-splits (NaN/None where not measured).
+
+    ``d_space`` is the fitted reference, None for each fold's pooled records, or False when
+    the reference cannot be standardised (D stays NaN).
+    """
+    k = len(cal)
+    d_stat = np.full(k, np.nan)
+    outside = np.full(k, np.nan)
+    shared = np.full(k, np.nan)
+    d_null: list = [None] * k
+    m_null: list = [None] * k
+    ranges = []
+    for i in range(k):  # loop over folds (a handful), records and re-splits are vectorised inside
+        n_ev, n_cal = ev[i].size, cal[i].size
+        enough = n_ev >= min_evaluation and n_cal > 0
+        pool = np.concatenate([cal[i], ev[i]])
+        is_ev = np.zeros(pool.size, dtype=bool)
+        is_ev[n_cal:] = True
+        if env_m is not None:
+            a, b = env_m[cal[i]], env_m[ev[i]]
+            ranges.append(covariate_ranges(a, b, env_names) if n_cal and n_ev else None)
+            if enough and d_space is not False:
+                try:
+                    d_null[i] = schoener_d_resplit(env_m[pool], is_ev, reference=d_space,
+                                                   null_splits=null_splits, seed=[seed, i, 0])
+                    d_stat[i] = d_null[i].statistic
+                except InputError:
+                    pass  # too few complete records or no variation: D stays NaN
+                a_ok = a[np.isfinite(a).all(axis=1)]
+                if a_ok.shape[0]:
+                    m = mess(a_ok, b)
+                    m = m[np.isfinite(m)]
+                    if m.size:
+                        outside[i] = float(np.mean(m < 0))
+        else:
+            ranges.append(None)
+        if codes is not None:
+            shared[i] = _shared_share(codes, cal[i], ev[i])
+            if enough and np.isfinite(shared[i]):
+                m_null[i] = shared_group_resplit(codes[pool], is_ev, null_splits=null_splits, seed=[seed, i, 1])
+    return d_stat, outside, shared, d_null, m_null, ranges
+
+
 def audit_split(
     points: Points,
     calibration,
@@ -484,47 +530,29 @@ def audit_split(
                 )
     codes = _group_codes(groups, n) if groups is not None else None
 
-    dist = distance_diagnostics(
-        points, cal, ev, range_km=range_km, prediction_points=prediction_points, fold_labels=fold_labels
-    )
+    # The distances (tree searches, geodesics) and the environmental measures (numpy on the
+    # covariates) share nothing: the distances run on a thread of their own meanwhile.
+    from concurrent.futures import ThreadPoolExecutor
 
-    d_stat = np.full(k, np.nan)
-    outside = np.full(k, np.nan)
-    shared = np.full(k, np.nan)
-    d_null: list = [None] * k
-    m_null: list = [None] * k
-    ranges = []
+    with ThreadPoolExecutor(1) as background:
+        distances = background.submit(distance_diagnostics, points, cal, ev, range_km=range_km,
+                                      prediction_points=prediction_points, fold_labels=fold_labels)
+        # Schoener's D standardises on the reference: fitted once for every fold that shares
+        # it, else (None) on each fold's own pooled records.
+        d_space = None
+        if env_m is not None and env_reference is not None:
+            try:
+                d_space = ComponentSpace.fit(env_reference)
+            except InputError:
+                d_space = False  # too few complete records or no variation: D stays NaN in every fold
+        measures = _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed)
+        dist = distances.result()
+    d_stat, outside, shared, d_null, m_null, ranges = measures
+
     verdicts, outcomes, notes = [], [], []
-    for i in range(k):  # loop over folds (a handful), records and re-splits are vectorised inside
+    for i in range(k):  # loop over folds (a handful)
         n_ev, n_cal = ev[i].size, cal[i].size
-        enough = n_ev >= min_evaluation and n_cal > 0
-        pool = np.concatenate([cal[i], ev[i]])
-        is_ev = np.zeros(pool.size, dtype=bool)
-        is_ev[n_cal:] = True
-        if env_m is not None:
-            a, b = env_m[cal[i]], env_m[ev[i]]
-            ranges.append(covariate_ranges(a, b, env_names) if n_cal and n_ev else None)
-            if enough:
-                try:
-                    d_null[i] = schoener_d_resplit(env_m[pool], is_ev, reference=env_reference,
-                                                   null_splits=null_splits, seed=[seed, i, 0])
-                    d_stat[i] = d_null[i].statistic
-                except InputError:
-                    pass  # too few complete records or no variation: D stays NaN
-                a_ok = a[np.isfinite(a).all(axis=1)]
-                if a_ok.shape[0]:
-                    m = mess(a_ok, b)
-                    m = m[np.isfinite(m)]
-                    if m.size:
-                        outside[i] = float(np.mean(m < 0))
-        else:
-            ranges.append(None)
-        if codes is not None:
-            shared[i] = _shared_share(codes, cal[i], ev[i])
-            if enough and np.isfinite(shared[i]):
-                m_null[i] = shared_group_resplit(codes[pool], is_ev, null_splits=null_splits, seed=[seed, i, 1])
-
-        if not enough:
+        if not (n_ev >= min_evaluation and n_cal > 0):
             verdicts.append("insufficient")
             outcomes.append(())
             notes.append(

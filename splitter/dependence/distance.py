@@ -32,6 +32,7 @@ from scipy.stats import wasserstein_distance
 
 from splitter.errors import InputError
 from splitter.geo import NeighbourIndex, Points
+from splitter.threads import threads
 
 
 
@@ -255,20 +256,46 @@ def distance_diagnostics(
     if range_km is not None and not (np.isfinite(range_km) and range_km > 0):
         raise InputError(f"range_km must be a positive number of kilometres, got {range_km!r}.")
 
-    kept = np.unique(np.concatenate(cal + ev)) if n else np.zeros(0, np.int64)
+    used = np.zeros(n, bool)
+    for rows in cal + ev:
+        used[rows] = True
+    kept = np.flatnonzero(used)
     _check_points(points, kept, "records used in the folds")
 
-    d_pred = None
+    query = None
     if prediction_points is not None:
         if not isinstance(prediction_points, Points):
             raise InputError("prediction_points must be a splitter.geo.Points object.")
         ok = np.isfinite(prediction_points.x) & np.isfinite(prediction_points.y)
         if not ok.any():
             raise InputError("No prediction location has usable coordinates.")
-        if kept.size:
-            d_pred, _ = NeighbourIndex(points.take(kept)).nearest(prediction_points.take(np.flatnonzero(ok)))
+        query = prediction_points.take(np.flatnonzero(ok))
 
-    d_rec = nearest_other_km(points.take(kept)) if kept.size else np.zeros(0)
+    # The record-to-record part and each fold are independent searches (tree building,
+    # queries and geodesics all release the GIL): they run side by side, one thread each.
+    outer = min(threads(), k + 1)
+    inner = 1 if outer > 1 else None
+
+    def records_part():
+        if not kept.size:
+            return None, np.zeros(0)
+        index = NeighbourIndex(points.take(kept), workers=inner)
+        return (None if query is None else index.nearest(query)[0]), index.nearest_other()[0]
+
+    def fold_part(i):
+        if ev[i].size == 0 or cal[i].size == 0:
+            return np.zeros(0)
+        return NeighbourIndex(points.take(cal[i]), workers=inner).nearest(points.take(ev[i]))[0]
+
+    if outer > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(outer) as pool:
+            records = pool.submit(records_part)  # the largest search first
+            raw = list(pool.map(fold_part, range(k)))
+            d_pred, d_rec = records.result()
+    else:
+        (d_pred, d_rec), raw = records_part(), [fold_part(i) for i in range(k)]
 
     n_ev = np.array([e.size for e in ev], dtype=np.int64)
     n_cal = np.array([c.size for c in cal], dtype=np.int64)
@@ -276,13 +303,9 @@ def distance_diagnostics(
     p10 = np.full(k, np.nan)
     share = np.full(k, np.nan)
     w1 = np.full(k, np.nan)
-    raw = []
-    for i in range(k):  # loop over folds (a handful), not over records
-        if ev[i].size == 0 or cal[i].size == 0:
-            raw.append(np.zeros(0))
+    for i, d in enumerate(raw):  # loop over folds (a handful), not over records
+        if not d.size:
             continue
-        d, _ = NeighbourIndex(points.take(cal[i])).nearest(points.take(ev[i]))
-        raw.append(d)
         med[i] = np.median(d)
         p10[i] = np.percentile(d, 10)
         if range_km is not None:

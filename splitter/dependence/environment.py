@@ -87,7 +87,8 @@ def _matrix(a, what: str) -> np.ndarray:
 
 
 def _complete_rows(a: np.ndarray) -> np.ndarray:
-    return a[np.isfinite(a).all(axis=1)]
+    ok = np.isfinite(a).all(axis=1)
+    return a if ok.all() else a[ok]
 
 
 def _density_on_grid(pc: np.ndarray, axes: list[np.ndarray], mesh: np.ndarray) -> np.ndarray:
@@ -201,6 +202,68 @@ def schoener_d(a, b, reference=None, grid: int = 100) -> OverlapResult:
     )
 
 
+@dataclass(frozen=True, eq=False)
+class ComponentSpace:
+    """Covariates standardised on a reference sample and rotated to its first principal components.
+
+    Fitted once per reference and reused for every fold that shares it (an audit's background
+    sample): the standardisation, the rotation and the reference's extent do not change.
+
+    Attributes
+    ----------
+    mean, scale : ndarray, shape (p,)
+        The reference's mean and standard deviation per covariate (1 where it is constant).
+    pca : sklearn.decomposition.PCA
+        Fitted on the standardised reference; 2 components (1 with one covariate).
+    lo, hi : ndarray, shape (n_components,)
+        The reference's extent on each component.
+
+    Examples
+    --------
+    >>> rng = np.random.default_rng(0)
+    >>> space = ComponentSpace.fit(rng.normal(size=(200, 3)))
+    >>> space.transform(np.zeros((1, 3))).shape
+    (1, 2)
+    """
+
+    mean: np.ndarray
+    scale: np.ndarray
+    pca: PCA
+    lo: np.ndarray
+    hi: np.ndarray
+
+    @property
+    def rotation(self) -> np.ndarray:
+        """Loadings, shape (p, n_components)."""
+        return self.pca.components_.T
+
+    @classmethod
+    def fit(cls, reference) -> "ComponentSpace":
+        """Fit on the complete rows of ``reference`` (records x covariates)."""
+        return cls._fit(reference)[0]
+
+    @classmethod
+    def _fit(cls, reference):
+        ref = _complete_rows(_matrix(reference, "reference"))
+        ncomp = 1 if ref.shape[1] == 1 else 2
+        if ref.shape[0] < ncomp + 1:
+            raise InputError("The reference sample has too few complete records to standardise on.")
+        mu, sd = ref.mean(axis=0), ref.std(axis=0)
+        if not (sd > 0).any():
+            raise InputError("The covariates do not vary over the reference records; D is undefined.")
+        sd = np.where(sd > 0, sd, 1.0)  # a constant covariate carries no information; avoid 0/0
+        z = (ref - mu) / sd
+        # The eigenvectors of the p x p covariance: the same axes as an SVD of the records,
+        # without decomposing an n x p matrix (scikit-learn's solver for n much larger than p).
+        pca = PCA(n_components=ncomp, svd_solver="covariance_eigh").fit(z)
+        pc_ref = pca.transform(z)
+        return cls(mu, sd, pca, pc_ref.min(axis=0), pc_ref.max(axis=0)), pc_ref
+
+    def transform(self, x) -> np.ndarray:
+        """Component scores of records ``x`` (records x covariates)."""
+        return self.pca.transform((np.asarray(x, dtype=float) - self.mean) / self.scale)
+
+
 def _kernel_matrix(axis: np.ndarray, bandwidth: float) -> np.ndarray:
     """Gaussian weights between the nodes of one grid axis (rows: where the density is read)."""
     u = (axis[:, None] - axis[None, :]) / bandwidth
@@ -243,7 +306,10 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
         Covariates at the fold's records (rows with a missing value are left out).
     evaluation : array_like of bool, shape (n,)
         True for evaluation records, False for calibration records.
-    reference : array_like, shape (m, p), optional
+    reference : array_like, shape (m, p), or ComponentSpace, optional
+        Sample that sets the standardisation and the principal axes (default:
+        the pooled records); a fitted :class:`ComponentSpace` when several
+        folds share one reference.
     null_splits : int, default 199
     seed : int or numpy.random.Generator
     grid : int, default 64
@@ -273,7 +339,8 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
     if not isinstance(grid, (int, np.integer)) or grid < 10:
         raise InputError(f"grid must be an integer of at least 10, got {grid!r}.")
     ok = np.isfinite(x).all(axis=1)
-    x, ev = x[ok], ev[ok]
+    if not ok.all():
+        x, ev = x[ok], ev[ok]
     p = x.shape[1]
     ncomp = 1 if p == 1 else 2
     n_e = int(ev.sum())
@@ -282,26 +349,24 @@ def schoener_d_resplit(env, evaluation, reference=None, null_splits: int = 199, 
         raise InputError(
             f"{n_c} calibration and {n_e} evaluation records with every covariate; a kernel density needs at least {ncomp + 2} in each."
         )
-    ref = x if reference is None else _complete_rows(_matrix(reference, "reference"))
-    if ref.shape[1] != p:
-        raise InputError(f"reference has {ref.shape[1]} covariates but the records have {p}.")
-    if ref.shape[0] < ncomp + 1:
-        raise InputError("The reference sample has too few complete records to standardise on.")
-    mu, sd = ref.mean(axis=0), ref.std(axis=0)
-    if not (sd > 0).any():
-        raise InputError("The covariates do not vary over the reference records; D is undefined.")
-    sd = np.where(sd > 0, sd, 1.0)
-    pca = PCA(n_components=ncomp, svd_solver="full").fit((ref - mu) / sd)
-    pc = pca.transform((x - mu) / sd)
-    pc_ref = pca.transform((ref - mu) / sd)
+    if isinstance(reference, ComponentSpace):
+        space = reference
+        if space.rotation.shape[0] != p:
+            raise InputError(f"reference has {space.rotation.shape[0]} covariates but the records have {p}.")
+        pc = space.transform(x)
+    else:
+        ref = x if reference is None else reference
+        space, pc_ref = ComponentSpace._fit(ref)
+        if space.rotation.shape[0] != p:
+            raise InputError(f"reference has {space.rotation.shape[0]} covariates but the records have {p}.")
+        pc = pc_ref if reference is None else space.transform(x)
     spread = pc.std(axis=0)
     if not (spread > 0).all():
         raise InputError("The covariates of the fold's records do not vary (all share one environment); D is undefined.")
     d = ncomp
     h_e = spread * n_e ** (-1.0 / (d + 4))
     h_c = spread * n_c ** (-1.0 / (d + 4))
-    both = np.vstack([pc, pc_ref])
-    lo, hi = both.min(axis=0), both.max(axis=0)
+    lo, hi = np.minimum(pc.min(axis=0), space.lo), np.maximum(pc.max(axis=0), space.hi)
     span = np.maximum(hi - lo, 1e-9)
     pad = np.maximum(_PAD_BANDWIDTHS * np.maximum(h_e, h_c), 0.05 * span)
     axes = [np.linspace(lo[j] - pad[j], hi[j] + pad[j], int(grid)) for j in range(d)]

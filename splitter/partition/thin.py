@@ -15,7 +15,7 @@ import numpy as np
 from scipy.spatial import cKDTree
 
 from splitter.errors import InputError
-from splitter.geo import GEOD, _SPHERE_SLACK, Points, _chord, _unit_factor_km, _unit_xyz
+from splitter.geo import _SPHERE_SLACK, Points, _chord, _geodesic_km, _unit_factor_km, _unit_xyz
 
 
 @dataclass(frozen=True)
@@ -89,7 +89,7 @@ def _close_pairs(points: Points, min_km: float) -> tuple[np.ndarray, np.ndarray]
         pairs = tree.query_pairs(float(_chord(min_km * _SPHERE_SLACK)), output_type="ndarray")
         ll = points.to_lonlat()
         i, j = pairs[:, 0], pairs[:, 1]
-        d = np.asarray(GEOD.inv(ll.x[i], ll.y[i], ll.x[j], ll.y[j])[2], float) / 1000.0
+        d = _geodesic_km(ll.x[i], ll.y[i], ll.x[j], ll.y[j])
     else:
         f = _unit_factor_km(points.crs)
         xy = np.column_stack([points.x * f, points.y * f])

@@ -154,3 +154,22 @@ def test_nearest_other_is_the_brute_force_geodesic_nearest():
     np.fill_diagonal(dist, np.inf)
     np.testing.assert_allclose(d, dist.min(axis=1), rtol=1e-12, atol=1e-9)
     np.testing.assert_array_equal(i, np.argmin(dist, axis=1))  # argmin: the first, smallest index
+
+
+def test_folds_searched_side_by_side_equal_one_thread(monkeypatch):
+    # consistency: the folds and the record-to-record search run on threads of their own
+    # (splitter.threads); with SPLITTER_THREADS=1 they run one after another in one thread.
+    # The outside check of the same numbers is test_geographic_nearest_distances_match_geod_brute_force.
+    lon, lat = _geographic_sample(seed=6, n=600)
+    pts = Points.lonlat(lon, lat)
+    cal, ev = _folds(600, 5, seed=7)
+    pred = Points.lonlat(np.linspace(-10, 30, 50), np.linspace(35, 62, 50))
+    monkeypatch.setenv("SPLITTER_THREADS", "3")
+    many = distance_diagnostics(pts, cal, ev, range_km=100.0, prediction_points=pred)
+    monkeypatch.setenv("SPLITTER_THREADS", "1")
+    one = distance_diagnostics(pts, cal, ev, range_km=100.0, prediction_points=pred)
+    assert json.dumps(many.to_dict()) == json.dumps(one.to_dict())
+    for a, b in zip(many.evaluation_to_calibration_km, one.evaluation_to_calibration_km):
+        np.testing.assert_array_equal(a, b)
+    np.testing.assert_array_equal(many.record_to_record_km, one.record_to_record_km)
+    np.testing.assert_array_equal(many.prediction_to_record_km, one.prediction_to_record_km)

@@ -150,3 +150,39 @@ def test_one_covariate_and_missing_values():
     # consistency: the same records without the rows that miss a covariate
     assert with_nan.statistic == complete.statistic
     np.testing.assert_array_equal(with_nan.null, complete.null)
+
+
+def test_a_reference_sample_sets_the_axes_once_for_every_fold():
+    from splitter.dependence.audit import audit_split
+    from splitter.dependence.environment import ComponentSpace
+    from splitter.geo import Points
+
+    rng = np.random.default_rng(11)
+    ref = rng.multivariate_normal([0, 0, 0], [[1, 0.6, 0.1], [0.6, 1, 0.2], [0.1, 0.2, 1]], 900)
+    space = ComponentSpace.fit(ref)
+    # reference: scikit-learn's PCA with the full SVD of the standardised reference sample;
+    # the same axes up to sign, and the same share of variance
+    z = (ref - ref.mean(0)) / ref.std(0)
+    full = PCA(2, svd_solver="full").fit(z)
+    np.testing.assert_allclose(np.abs(space.pca.components_), np.abs(full.components_), atol=1e-10)
+    assert space.pca.explained_variance_ratio_.sum() == pytest.approx(full.explained_variance_ratio_.sum(), rel=1e-12)
+    np.testing.assert_allclose(np.abs(space.transform(ref)), np.abs(full.transform(z)), atol=1e-9)
+    pc_full = full.transform(z)  # the reference's extent on each axis (its width is sign-free)
+    np.testing.assert_allclose(space.hi - space.lo, pc_full.max(0) - pc_full.min(0), rtol=1e-9)
+
+    # consistency: a fitted space and the raw reference give the same D and null, fold by fold,
+    # and audit_split (which fits the space once) gives each fold that D
+    n = 500
+    x = rng.multivariate_normal([0.3, 0, 0], [[1, 0.5, 0], [0.5, 1, 0.3], [0, 0.3, 1]], n)
+    lon, lat = rng.uniform(0, 4, n), rng.uniform(40, 43, n)
+    fold = np.minimum((lon // 1).astype(int), 3)
+    cal = [np.flatnonzero(fold != i) for i in range(4)]
+    ev = [np.flatnonzero(fold == i) for i in range(4)]
+    res = audit_split(Points.lonlat(lon, lat), cal, ev, env=x, env_reference=ref, null_splits=19, seed=5)
+    for i in range(4):
+        pool = np.concatenate([cal[i], ev[i]])
+        is_ev = np.r_[np.zeros(cal[i].size, bool), np.ones(ev[i].size, bool)]
+        raw = schoener_d_resplit(x[pool], is_ev, reference=ref, null_splits=19, seed=[5, i, 0])
+        fitted = schoener_d_resplit(x[pool], is_ev, reference=space, null_splits=19, seed=[5, i, 0])
+        assert raw.statistic == fitted.statistic and np.array_equal(raw.null, fitted.null)
+        assert res.schoener_d[i] == raw.statistic and np.array_equal(res.schoener_d_null[i].null, raw.null)
