@@ -72,6 +72,7 @@ from splitter.dependence.resplit import (
 )
 from splitter.errors import InputError
 from splitter.geo import Points
+from splitter.threads import threads
 
 #: Rule (i): share of evaluation records within the range above which a fold is dependent.
 DISTANCE_SHARE = 0.5
@@ -530,13 +531,11 @@ def audit_split(
                 )
     codes = _group_codes(groups, n) if groups is not None else None
 
-    # The distances (tree searches, geodesics) and the environmental measures (numpy on the
-    # covariates) share nothing: the distances run on a thread of their own meanwhile.
-    from concurrent.futures import ThreadPoolExecutor
+    def distances():
+        return distance_diagnostics(points, cal, ev, range_km=range_km, prediction_points=prediction_points,
+                                    fold_labels=fold_labels)
 
-    with ThreadPoolExecutor(1) as background:
-        distances = background.submit(distance_diagnostics, points, cal, ev, range_km=range_km,
-                                      prediction_points=prediction_points, fold_labels=fold_labels)
+    def environment():
         # Schoener's D standardises on the reference: fitted once for every fold that shares
         # it, else (None) on each fold's own pooled records.
         d_space = None
@@ -545,8 +544,19 @@ def audit_split(
                 d_space = ComponentSpace.fit(env_reference)
             except InputError:
                 d_space = False  # too few complete records or no variation: D stays NaN in every fold
-        measures = _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed)
-        dist = distances.result()
+        return _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed)
+
+    if threads() > 1:
+        # The distances (tree searches, geodesics) and the environmental measures (numpy on
+        # the covariates) share nothing: the distances run on a thread of their own meanwhile.
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(1) as background:
+            pending = background.submit(distances)
+            measures = environment()
+            dist = pending.result()
+    else:
+        dist, measures = distances(), environment()
     d_stat, outside, shared, d_null, m_null, ranges = measures
 
     verdicts, outcomes, notes = [], [], []
