@@ -407,7 +407,8 @@ class NeighbourIndex:
     def _refine(self, query, xyz, todo, best, idx, bound, k, exclude=None):
         """Check every candidate within ``bound`` (chord) for the rows in ``todo``.
 
-        ``exclude[row]`` names a reference index that row must not take (itself).
+        ``exclude[row]`` names a reference index that row must not take (itself). The row's
+        current ``idx`` is not measured again: its distance is ``best`` already.
         """
         nref = len(self.reference)
         while todo.size:
@@ -416,7 +417,9 @@ class NeighbourIndex:
             dd = dd.reshape(len(todo), kk)
             ii = ii.reshape(len(todo), kk)
             inside = dd <= bound[todo, None]
-            found = inside if exclude is None else inside & (ii != exclude[todo, None])
+            found = inside & (ii != idx[todo, None])
+            if exclude is not None:
+                found &= ii != exclude[todo, None]
             rows, cols = np.nonzero(found)
             if rows.size:
                 qsel = todo[rows]
@@ -468,8 +471,9 @@ class NeighbourIndex:
         unsure = cand[dist >= radius_km]
         if unsure.size:
             best = np.full(n, np.inf)
-            idx = np.zeros(n, np.int64)
+            idx = np.full(n, -1, np.int64)
             best[unsure] = dist[dist >= radius_km]
+            idx[unsure] = i[unsure]
             bounds = np.full(n, bound)
             best, _ = self._refine(query, xyz, unsure, best, idx, bounds, 8)
             hit[unsure[best[unsure] < radius_km]] = True
