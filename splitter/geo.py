@@ -360,15 +360,17 @@ class NeighbourIndex:
 
         xyz = _unit_xyz(query)
         nref = len(self.reference)
-        k = min(2, nref)
+        # Three candidates: most rows whose second is within the slack have no third there,
+        # so the second is measured from this query and only the rest search again.
+        k = min(3, nref)
         dd, ii = self._tree.query(xyz, k=k, workers=self.workers)
         dd, ii = dd.reshape(n, k), ii.reshape(n, k)
         idx = ii[:, 0].astype(np.int64)
         best = _distance_km(query, self.reference.take(idx), self.workers)
         # Any point nearer on the ellipsoid is within the slack on the sphere.
         bound = _chord(best * _SPHERE_SLACK) * 1.000001 + 1e-12
-        todo = np.flatnonzero(dd[:, -1] <= bound) if k > 1 else np.zeros(0, np.int64)
-        best, idx = self._refine(query, xyz, todo, best, idx, bound, 8)
+        todo = np.flatnonzero(dd[:, 1] <= bound) if k > 1 else np.zeros(0, np.int64)
+        best, idx = self._refine(query, xyz, todo, best, idx, bound, 8, first=(dd[todo], ii[todo]))
         return best, idx
 
     def nearest_other(self) -> tuple[np.ndarray, np.ndarray]:
@@ -389,7 +391,8 @@ class NeighbourIndex:
         self_idx = np.arange(n)
         coords = _unit_xyz(ref) if ref.geographic else np.column_stack([ref.x, ref.y])
         # Geographic: one candidate more than the point and its nearest, so that only the
-        # rows whose next candidate is still within the slack need the wider search.
+        # rows whose next candidate is still within the slack need the wider search (a
+        # fourth candidate, as in nearest(), measured slower here).
         k = 2 if not ref.geographic else min(3, n)
         dd, ii = self._tree.query(coords, k=k, workers=self.workers)
         # With duplicates the first neighbour may be another point at distance 0.
@@ -404,18 +407,26 @@ class NeighbourIndex:
         todo = np.flatnonzero(dd[:, -1] <= bound) if k > 2 else self_idx
         return self._refine(ref, coords, todo, best, idx, bound, 8, exclude=self_idx)
 
-    def _refine(self, query, xyz, todo, best, idx, bound, k, exclude=None):
+    def _refine(self, query, xyz, todo, best, idx, bound, k, exclude=None, first=None):
         """Check every candidate within ``bound`` (chord) for the rows in ``todo``.
 
         ``exclude[row]`` names a reference index that row must not take (itself). The row's
-        current ``idx`` is not measured again: its distance is ``best`` already.
+        current ``idx`` is not measured again: its distance is ``best`` already. ``first``,
+        the (distances, indices) of a query already made for the rows in ``todo``, is their
+        first round; later rounds ask the tree for ``k``, then 4k, ... candidates.
         """
         nref = len(self.reference)
+        pending = first
         while todo.size:
-            kk = min(k, nref)
-            dd, ii = self._tree.query(xyz[todo], k=kk, workers=self.workers)
-            dd = dd.reshape(len(todo), kk)
-            ii = ii.reshape(len(todo), kk)
+            if pending is not None:
+                (dd, ii), pending = pending, None
+                kk = dd.shape[1]
+            else:
+                kk = min(k, nref)
+                dd, ii = self._tree.query(xyz[todo], k=kk, workers=self.workers)
+                dd = dd.reshape(len(todo), kk)
+                ii = ii.reshape(len(todo), kk)
+                k *= 4
             inside = dd <= bound[todo, None]
             found = inside & (ii != idx[todo, None])
             if exclude is not None:
@@ -436,7 +447,6 @@ class NeighbourIndex:
             todo = todo[inside[:, -1]]
             if kk >= nref:
                 break
-            k *= 4
         return best, idx
 
     def within(self, query: Points, radius_km: float) -> np.ndarray:

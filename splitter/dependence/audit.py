@@ -514,7 +514,7 @@ def audit_split(
 
     env_m = None
     if env is not None:
-        env_m = np.asarray(env, dtype=float)
+        env_m = np.asfortranarray(env, dtype=float)  # column by column: see environment._matrix
         if env_m.ndim == 1:
             env_m = env_m[:, None]
         if env_m.ndim != 2 or env_m.shape[0] != n:
