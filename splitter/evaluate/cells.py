@@ -251,13 +251,15 @@ class _CellKeys:
             edge_bucket = _bucket(self.edges, low, scale, buckets)
             # Keys of cells in buckets without an edge: the number of edges in lower buckets.
             per_bucket = np.bincount(edge_bucket, minlength=buckets + 2)
-            below = np.cumsum(per_bucket) - per_bucket  # edges in lower buckets
+            below = np.cumsum(per_bucket)
+            below -= per_bucket  # edges in lower buckets
             # Packed with the bucket's edges, capped at 3 ("more than two"), in the low two
             # bits: one lookup per cell instead of two (the lookups are the cost: the table
             # does not fit in cache). A bucket with one or two edges places its cells by
             # comparing with them, only fuller ones search.
-            packed = (below << 2) | np.minimum(per_bucket, 3)
-            self.table = packed.astype(np.int32) if 4 * self.n_keys < 2**31 else packed
+            below <<= 2  # in place: the table has up to 2**24 buckets
+            below |= np.minimum(per_bucket, 3, out=per_bucket)
+            self.table = below.astype(np.int32) if 4 * self.n_keys < 2**31 else below
             self.padded = np.append(self.edges, np.inf)  # edges[t + 1] exists for the last edge too
 
     def __call__(self, vb: np.ndarray) -> np.ndarray:
