@@ -52,7 +52,7 @@ def output_lock(target, folder: bool) -> Iterator[Path]:
             except OSError as e:
                 raise InputError(f"{target}: cannot create the output folder ({e.strerror}); choose a writable --out.") from None
             created = True
-        lock_path, fd = target, _open(target, os.O_RDONLY)
+        lock_path = target
     else:
         parent = target.parent if str(target.parent) else Path(".")
         if parent.exists() and not parent.is_dir():
@@ -64,25 +64,49 @@ def output_lock(target, folder: bool) -> Iterator[Path]:
                 raise InputError(f"{parent}: cannot create the folder for --out ({e.strerror}); choose a writable --out.") from None
             created = True
         lock_path = parent / f".{target.name}.lock"
-        fd = _open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
+    fd = _take(target, lock_path, folder)
     try:
+        yield target
+    finally:
         try:
-            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
-        except BlockingIOError:
-            raise InputError(f"{target}: another splitter run is writing this output now; wait for it to finish "
-                             "or choose another --out.") from None
-        try:
-            yield target
-        finally:
             if not folder:
                 try:
-                    lock_path.unlink()
+                    lock_path.unlink()  # while still holding the lock
                 except FileNotFoundError:
                     pass
             made = target if folder else target.parent
             if created and made.is_dir() and not any(made.iterdir()):
                 made.rmdir()  # a folder this run made and left empty
-    finally:
+        finally:
+            os.close(fd)
+
+
+def _take(target: Path, lock_path: Path, folder: bool) -> int:
+    """Open ``lock_path`` and lock it; return the open descriptor, or raise InputError.
+
+    For a lock file, the lock is kept only when the open file is still the one at
+    ``lock_path``. A run that finishes removes its lock file; a second run that opened
+    the file just before that and locked it just after would hold a lock on a removed
+    file while a third run locks a new one, and both would write. So such a run opens
+    the new file and tries again.
+    """
+    while True:
+        fd = _open(lock_path, os.O_RDONLY) if folder else _open(lock_path, os.O_RDWR | os.O_CREAT, 0o644)
+        try:
+            fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        except BlockingIOError:
+            os.close(fd)
+            raise InputError(f"{target}: another splitter run is writing this output now; wait for it to finish "
+                             "or choose another --out.") from None
+        if folder:
+            return fd
+        held = os.fstat(fd)
+        try:
+            now = os.stat(lock_path)
+        except FileNotFoundError:
+            now = None
+        if now is not None and (now.st_dev, now.st_ino) == (held.st_dev, held.st_ino):
+            return fd
         os.close(fd)
 
 
