@@ -542,7 +542,9 @@ def _quiet_cluster(distributed, n_workers: int):
             # run on 2 workers): the statistical profiler samples every task's stack each 10 ms
             # (no one reads a batch's profile), and MALLOC_TRIM_THRESHOLD_=65536 hands freed
             # memory back to the system at once, so numpy's large temporaries are mapped afresh
-            # each time (None unsets it: the C library's own threshold).
+            # each time (None unsets it: the C library's own threshold; a process that has
+            # already started a Dask cluster carries Dask's value in its environment, and its
+            # workers inherit that).
             quiet = {"distributed.worker.profile.enabled": False,
                      "distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}
             with dask.config.set(quiet):

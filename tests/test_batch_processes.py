@@ -111,7 +111,7 @@ def _worker_settings():
             "trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "threads": os.environ.get("SPLITTER_THREADS")}
 
 
-def test_the_local_cluster_workers_run_single_threaded_without_the_profiler():
+def test_the_local_cluster_workers_run_single_threaded_without_the_profiler(monkeypatch):
     """What a batch's own cluster sets in its workers (splitter.batch._quiet_cluster): one
     thread in the kernels, Dask's statistical profiler off and the C library's own memory
     trimming (Dask's default MALLOC_TRIM_THRESHOLD_ unset). The parent's config is untouched."""
@@ -120,6 +120,10 @@ def test_the_local_cluster_workers_run_single_threaded_without_the_profiler():
 
     from splitter.batch import _quiet_cluster
 
+    # An earlier Dask cluster in this test process left Dask's value in its environment
+    # (distributed sets it in the parent before spawning workers, and children inherit it);
+    # `splitter batch` starts from a fresh process, as this test does without it.
+    monkeypatch.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)
     cluster = _quiet_cluster(distributed, 1)
     try:
         with distributed.Client(cluster, set_as_default=False) as c:
