@@ -106,9 +106,12 @@ def partial_folders(folder: Path) -> list:
 
 @pytest.fixture(scope="module")
 def cluster():
+    """A running cluster for --scheduler: the one run_batch would start itself (2 workers)."""
     import distributed
 
-    c = distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None)
+    from splitter.batch import _quiet_cluster
+
+    c = _quiet_cluster(distributed, 2)
     yield c.scheduler_address
     c.close()
 
