@@ -101,34 +101,3 @@ def test_a_run_whose_folder_is_withdrawn_stops_and_leaves_nothing(tmp_path):
     assert (box["row"]["status"], box["row"]["error"]) == ("failed", "interrupted")
     assert list(out.iterdir()) == []  # no run folder, no temporary folder
 
-
-def _worker_settings():
-    import os
-
-    import dask
-
-    return {"profile": dask.config.get("distributed.worker.profile.enabled"),
-            "trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "threads": os.environ.get("SPLITTER_THREADS")}
-
-
-def test_the_local_cluster_workers_run_single_threaded_without_the_profiler(monkeypatch):
-    """What a batch's own cluster sets in its workers (splitter.batch._quiet_cluster): one
-    thread in the kernels, Dask's statistical profiler off and the C library's own memory
-    trimming (Dask's default MALLOC_TRIM_THRESHOLD_ unset). The parent's config is untouched."""
-    import dask
-    import distributed
-
-    from splitter.batch import _quiet_cluster
-
-    # An earlier Dask cluster in this test process left Dask's value in its environment
-    # (distributed sets it in the parent before spawning workers, and children inherit it);
-    # `splitter batch` starts from a fresh process, as this test does without it.
-    monkeypatch.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)
-    cluster = _quiet_cluster(distributed, 1)
-    try:
-        with distributed.Client(cluster, set_as_default=False) as c:
-            settings = list(c.run(_worker_settings).values())
-    finally:
-        cluster.close()
-    assert settings == [{"profile": False, "trim": None, "threads": "1"}]
-    assert dask.config.get("distributed.worker.profile.enabled") is True  # reference: Dask's default
