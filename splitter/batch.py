@@ -538,8 +538,8 @@ def _quiet_cluster(distributed, n_workers: int):
             # its kernels too (nearest neighbours, GDAL decoding, numerical libraries).
             single = {name: "1" for name in ("SPLITTER_THREADS", "GDAL_NUM_THREADS", "OMP_NUM_THREADS",
                                              "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")}
-            # Two Dask defaults cost each run about a tenth of its time here (1.48 -> 1.33 s per
-            # run on 2 workers): the statistical profiler samples every task's stack each 10 ms
+            # Two Dask defaults cost each run about a seventh of its time here (1.48 -> 1.27 s
+            # per run on 2 workers, 30 runs): the statistical profiler samples every task's stack each 10 ms
             # (no one reads a batch's profile), and MALLOC_TRIM_THRESHOLD_=65536 hands freed
             # memory back to the system at once, so numpy's large temporaries are mapped afresh
             # each time (None unsets it: the C library's own threshold; a process that has

@@ -72,7 +72,7 @@ from splitter.dependence.resplit import (
 )
 from splitter.errors import InputError
 from splitter.geo import Points
-from splitter.threads import threads
+from splitter.threads import side_by_side
 
 #: Rule (i): share of evaluation records within the range above which a fold is dependent.
 DISTANCE_SHARE = 0.5
@@ -546,17 +546,9 @@ def audit_split(
                 d_space = False  # too few complete records or no variation: D stays NaN in every fold
         return _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed)
 
-    if threads() > 1:
-        # The distances (tree searches, geodesics) and the environmental measures (numpy on
-        # the covariates) share nothing: the distances run on a thread of their own meanwhile.
-        from concurrent.futures import ThreadPoolExecutor
-
-        with ThreadPoolExecutor(1) as background:
-            pending = background.submit(distances)
-            measures = environment()
-            dist = pending.result()
-    else:
-        dist, measures = distances(), environment()
+    # The distances (tree searches, geodesics) and the environmental measures (numpy on the
+    # covariates) share nothing: with more than one thread they run side by side.
+    dist, measures = side_by_side([distances, environment])
     d_stat, outside, shared, d_null, m_null, ranges = measures
 
     verdicts, outcomes, notes = [], [], []

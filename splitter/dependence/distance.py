@@ -32,7 +32,7 @@ from scipy.stats import wasserstein_distance
 
 from splitter.errors import InputError
 from splitter.geo import NeighbourIndex, Points
-from splitter.threads import threads
+from splitter.threads import side_by_side, threads
 
 
 
@@ -287,15 +287,8 @@ def distance_diagnostics(
             return np.zeros(0)
         return NeighbourIndex(points.take(cal[i]), workers=inner).nearest(points.take(ev[i]))[0]
 
-    if outer > 1:
-        from concurrent.futures import ThreadPoolExecutor
-
-        with ThreadPoolExecutor(outer) as pool:
-            records = pool.submit(records_part)  # the largest search first
-            raw = list(pool.map(fold_part, range(k)))
-            d_pred, d_rec = records.result()
-    else:
-        (d_pred, d_rec), raw = records_part(), [fold_part(i) for i in range(k)]
+    # The largest search first.
+    (d_pred, d_rec), *raw = side_by_side([records_part, *(lambda i=i: fold_part(i) for i in range(k))], outer)
 
     n_ev = np.array([e.size for e in ev], dtype=np.int64)
     n_cal = np.array([c.size for c in cal], dtype=np.int64)

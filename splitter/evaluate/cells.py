@@ -550,18 +550,12 @@ def summarise_surface(cells, query_values) -> SuitabilitySurface:
     if source.in_memory is not None:
         return _summarise_sorted(source, q)
     keys = _CellKeys(q)
-    from splitter.threads import threads
+    from splitter.threads import side_by_side, threads
 
+    # Cells kept in memory: each half is tallied on its own core (numpy releases the GIL
+    # in the lookup), then the halves are added in a fixed order.
     parts = source.parts(min(2, threads()))
-    if len(parts) == 1:
-        tallies = [_tally(parts[0], keys)]
-    else:
-        # Cells kept in memory: each half is tallied on its own core (numpy releases
-        # the GIL in the lookup), then the halves are added in a fixed order.
-        from concurrent.futures import ThreadPoolExecutor
-
-        with ThreadPoolExecutor(len(parts)) as pool:
-            tallies = list(pool.map(lambda part: _tally(part, keys), parts))
+    tallies = side_by_side([lambda part=part: _tally(part, keys) for part in parts], len(parts))
     slots = tallies[0][0]
     for t in tallies[1:]:
         slots = slots + t[0]
