@@ -166,20 +166,13 @@ def schoener_d(a, b, reference=None, grid: int = 100) -> OverlapResult:
             raise InputError(
                 f"Sample {name} has {s.shape[0]} complete records; a kernel density needs at least {ncomp + 2}."
             )
-    if ref.shape[0] < ncomp + 1:
-        raise InputError("The reference sample has too few complete records to standardise on.")
-
-    mu = ref.mean(axis=0)
-    sd = ref.std(axis=0)
-    sd = np.where(sd > 0, sd, 1.0)  # a constant covariate carries no information; avoid 0/0
-    z_ref, z_a, z_b = (ref - mu) / sd, (a - mu) / sd, (b - mu) / sd
-    pca = PCA(n_components=ncomp, svd_solver="full").fit(z_ref)
-    pc_ref, pc_a, pc_b = pca.transform(z_ref), pca.transform(z_a), pca.transform(z_b)
+    space = ComponentSpace.fit(ref)
+    pc_a, pc_b = space.transform(a), space.transform(b)
 
     # Grid over the reference's extent (extended to both samples), padded by three
     # kernel standard deviations so the tails fall on the grid.
-    both = np.vstack([pc_ref, pc_a, pc_b])
-    lo, hi = both.min(axis=0), both.max(axis=0)
+    lo = np.minimum(space.lo, np.minimum(pc_a.min(axis=0), pc_b.min(axis=0)))
+    hi = np.maximum(space.hi, np.maximum(pc_a.max(axis=0), pc_b.max(axis=0)))
     bw = np.zeros(ncomp)
     for s in (pc_a, pc_b):
         bw = np.maximum(bw, s.std(axis=0) * s.shape[0] ** (-1.0 / (ncomp + 4)))
@@ -202,7 +195,7 @@ def schoener_d(a, b, reference=None, grid: int = 100) -> OverlapResult:
     return OverlapResult(
         statistic=min(max(d, 0.0), 1.0),
         n_components=ncomp,
-        explained_variance=float(pca.explained_variance_ratio_.sum()),
+        explained_variance=float(space.pca.explained_variance_ratio_.sum()),
         n_a=int(a.shape[0]),
         n_b=int(b.shape[0]),
     )
