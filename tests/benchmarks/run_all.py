@@ -351,6 +351,7 @@ def _figure(rows, path: Path) -> None:
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    import matplotlib.ticker
 
     stages = [s for s in STAGES if any(r["stage"] == s for r in rows)]
     fig, axes = plt.subplots(1, len(stages), figsize=(3.2 * len(stages), 3.2), squeeze=False)
@@ -362,6 +363,9 @@ def _figure(rows, path: Path) -> None:
         ax.set_title(stage, fontsize=10)
         ax.set_xlabel(rs[0]["unit"], fontsize=9)
         ax.tick_params(labelsize=8)
+        # Only the decades are labelled: the labels of minor ticks overlap on a short span (batch).
+        ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
+        ax.yaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
         ax.legend(fontsize=8, frameon=False)
     axes[0][0].set_ylabel("seconds (median)", fontsize=9)
     fig.tight_layout()
