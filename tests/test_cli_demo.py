@@ -13,7 +13,7 @@ def test_demo_runs_end_to_end(demo_command):
     out = res.out
     for split in ("blocks", "random"):
         for f in ("folds.csv", "folds.design.json", "audit/audit.csv", "audit/audit.json", "audit/distance_ecdf.png",
-                  "evaluation/evaluation.csv", "evaluation/evaluation.json"):
+                  "evaluation/evaluation.csv", "evaluation/evaluation.json", "evaluation/roc_curves.png"):
             assert (out / split / f).exists(), f
     assert (out / "blocks" / "folds.gaps.csv").exists()
     assert (out / "range" / "range.json").exists() and (out / "range" / "variogram.png").exists()

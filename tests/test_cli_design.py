@@ -280,9 +280,33 @@ def test_block_size_auto_uses_the_estimated_range(tmp_path):
     assert side["parameters"]["block_size_rule"] == "auto"
     import splitter
 
-    # Consistency check: the command uses the same estimate as the Python API with the same seed.
+    from splitter.workflow import range_estimate
+
+    # Consistency check: the command uses the same estimate as the Python API with the same seed,
+    # worked out afresh (not the one the command left in the process's memo).
+    range_estimate._estimate_once.cache_clear()
     est = splitter.estimate_range(env, seed=2)
     assert side["block_size_km"] == est.suggested_block_km
+
+
+def test_a_repeated_range_estimate_is_reused_until_a_raster_changes(tmp_path):
+    import shutil
+
+    from splitter.workflow import range_estimate
+
+    raster = tmp_path / "canopy.tif"
+    shutil.copyfile(DEMO / "canopy.tif", raster)
+    first = range_estimate.estimate_range_from_rasters([raster], sample=500, seed=3)
+    assert range_estimate.estimate_range_from_rasters([str(raster)], sample=500, seed=3) is first
+    assert range_estimate.estimate_range_from_rasters([raster], sample=500, seed=4) is not first
+    # The file rewritten (its rows in reverse order: other cells, other values) is estimated again.
+    with rasterio.open(raster) as src:
+        profile, values = src.profile, src.read(1)
+    with rasterio.open(tmp_path / "other.tif", "w", **profile) as dst:
+        dst.write(values[::-1], 1)
+    shutil.copyfile(tmp_path / "other.tif", raster)
+    again = range_estimate.estimate_range_from_rasters([raster], sample=500, seed=3)
+    assert again is not first
 
 
 def test_an_unexpected_error_is_one_line_and_exit_3(tmp_path, monkeypatch):

@@ -64,10 +64,13 @@ def test_baseline_model_on_the_demo(demo_folds, tmp_path):
     assert ev.fold.astype(str).tolist() == ["1", "2", "3", "4", "all"]
     assert list(ev.columns).index("significant") < list(ev.columns).index("auc")  # significance first
     assert len(list((tmp_path / "ev" / "predictions").glob("fold_*.tif"))) == 4
-    rocs = [pixels(p) for p in sorted((tmp_path / "ev" / "figures").glob("roc_fold_*.png"))]
-    assert len(rocs) == 4 and all(drawn_share(img) > 0.02 for img in rocs)  # drawn, not blank
-    # four folds, four different curves: distinct inputs give distinct pixels
-    assert all(a.shape != b.shape or np.any(a != b) for i, a in enumerate(rocs) for b in rocs[i + 1:])
+    roc = pixels(tmp_path / "ev" / "roc_curves.png")
+    assert drawn_share(roc) > 0.02  # drawn, not blank
+    # one row of four panels: 9.0 x 3.15 in at 150 dpi (plot_roc_panels: 2.1 in per column + 0.6)
+    assert roc.shape[:2] == (472, 1350)
+    # four folds, four different curves: distinct inputs give distinct pixels (the panels' plot areas)
+    quarters = np.array_split(roc[:, :, :3], 4, axis=1)
+    assert all(np.any(a[:, : b.shape[1]] != b[:, : a.shape[1]]) for i, a in enumerate(quarters) for b in quarters[i + 1:])
     folds = ev[ev.fold != "all"]
     for r in folds.itertuples():
         # reference: scipy.stats.binomtest, one-tailed

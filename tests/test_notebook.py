@@ -4,15 +4,16 @@ import json
 import re
 from pathlib import Path
 
-import nbformat
 import pytest
-from nbclient import NotebookClient
 
 NB = Path(__file__).resolve().parent.parent / "notebooks" / "walkthrough.ipynb"
 
 
 @pytest.mark.slow
 def test_walkthrough_notebook_runs(demo_run):
+    import nbformat  # here, not at collection: only the worker that runs the notebook needs them
+    from nbclient import NotebookClient
+
     nb = nbformat.read(NB, as_version=4)
     client = NotebookClient(nb, timeout=600, kernel_name="python3", resources={"metadata": {"path": str(NB.parent)}})
     client.execute()

@@ -32,7 +32,7 @@ from splitter.report import paragraph as P
 from splitter.report.document import Bullets, Code, Document, Figure, Heading, Table, Text, to_markdown
 from splitter.report.html import to_html
 from splitter.report.maps import SPATIAL_METHODS, MapPlane, cell_grid, generalise_coordinates, map_extent, plot_fold_map
-from splitter.report.panels import plot_roc_panels
+from splitter.report.evaluation_figures import plot_roc_panels
 from splitter.report.rundir import Run, SplitRun, load_run, sha256_file
 from splitter.report.style import save
 
@@ -668,7 +668,9 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         for msg in ev.warnings:
             blocks.append(Text(f"Warning recorded by the evaluation: {msg}", "warning"))
         omission = ev.summary.omission
-        stem = w.figure(plot_roc_panels(ev.folds, omission, title=f"split {s.name}"), f"roc_{tag}")
+        # The evaluation step drew these curves from the same results: copied, not drawn again.
+        stem = (s.roc_figure and w.copy_figure(s.roc_figure, f"roc_{tag}")) or \
+            w.figure(plot_roc_panels(ev.folds, omission), f"roc_{tag}")
         blocks.append(Figure(stem, f"Split `{s.name}`: exact area-based ROC curve of each fold (every prediction "
                                    f"value is a threshold), with the null line (dashed) and the cut-off "
                                    f"1 - E = {1.0 - omission:g} (dotted); the shaded part above it is the partial area "

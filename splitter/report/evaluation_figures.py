@@ -1,34 +1,100 @@
-"""Figures of the per-fold evaluation: area-based ROC curves and AUC-ratio intervals."""
+"""Figures of the per-fold evaluation: area-based ROC curves and AUC-ratio intervals.
+
+The ROC curves are drawn from recorded results (the folds' exact curves as
+evaluation.json keeps them), not from the model, so the appendix can redraw them from the
+run folder alone.
+"""
 
 from __future__ import annotations
+
+import math
 
 import numpy as np
 
 from splitter.report.style import GREY, colour, new_figure
 
+#: Above this many folds the curves share one panel instead of one panel each.
+MAX_PANELS = 30
 
-def plot_roc(fold_eval, omission: float, title: str | None = None):
-    """The exact area-based ROC curve of one fold, with the null line and the E cut-off."""
-    fig = new_figure(4.0, 3.8)
-    ax = fig.add_subplot()
-    roc = fold_eval.partial_roc
-    ax.plot([0, 1], [0, 1], color=GREY, lw=1, ls="--", label="null (random)")
-    ax.plot(fold_eval.curve_x, fold_eval.curve_y, color=colour(0), lw=1.6, label=f"model (AUC {roc.auc:.3f})")
-    cut = 1.0 - omission
-    ax.axhline(cut, color=colour(5), lw=1, ls=":", label=f"1 - E = {cut:.2f}")
-    x, y = np.asarray(fold_eval.curve_x), np.asarray(fold_eval.curve_y)
-    keep = y >= cut
-    if keep.any():
-        ax.fill_between(x, np.where(keep, y, np.nan), np.where(keep, x, np.nan), color=colour(0), alpha=0.15, lw=0,
-                        label=f"partial area (ratio {roc.auc_ratio:.3f})")
-    ax.set_xlim(0, 1)
-    ax.set_ylim(0, 1.02)
-    ax.set_xlabel("share of testing area predicted present")
-    ax.set_ylabel("share of evaluation presences predicted present")
-    sig = "significant" if fold_eval.significant else "not significant: do not interpret"
-    ax.set_title(title or f"fold {fold_eval.fold}: {sig}")
-    ax.legend(loc="lower right", frameon=False)
+
+def plot_roc_panels(folds, omission: float, title: str = ""):
+    """Per-fold exact area-based ROC curves as small multiples.
+
+    Parameters
+    ----------
+    folds : sequence of FoldEvaluation
+        The evaluation's folds (curve, significance, AUC and AUC ratio of each),
+        as :meth:`~splitter.evaluate.results.EvaluationResult.from_dict` reads
+        them back from evaluation.json.
+    omission : float
+        The omission tolerance E; the cut-off line is drawn at 1 - E.
+    title : str
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    cut = 1.0 - float(omission)
+    k = len(folds)
+    if k > MAX_PANELS:
+        fig = new_figure(5.0, 4.4)
+        ax = fig.add_subplot()
+        ax.plot([0, 1], [0, 1], color=GREY, lw=1, ls="--", label="null (random)")
+        for f in folds:
+            ax.plot(f.curve_x, f.curve_y, color=colour(0) if f.significant else colour(5), lw=0.6, alpha=0.5)
+        ax.axhline(cut, color=colour(5), lw=1, ls=":", label=f"1 - E = {cut:.2f}")
+        ax.plot([], [], color=colour(0), label="significant fold")
+        ax.plot([], [], color=colour(5), label="not significant: do not interpret")
+        ax.set_xlim(0, 1)
+        ax.set_ylim(0, 1.02)
+        ax.set_xlabel("share of testing area predicted present")
+        ax.set_ylabel("share of evaluation presences predicted present")
+        ax.legend(loc="lower right", frameon=False)
+        ax.set_title(title or f"{k} folds")
+        return fig
+    ncol = min(k, 5)
+    nrow = math.ceil(k / ncol)
+    fig = new_figure(2.1 * ncol + 0.6, 2.25 * nrow + 0.9)
+    axes = np.atleast_2d(fig.subplots(nrow, ncol, sharex=True, sharey=True, squeeze=False))
+    for n, f in enumerate(folds):
+        ax = axes[n // ncol][n % ncol]
+        sig, lab, x, y = f.significant, f.fold, f.curve_x, f.curve_y
+        ax.plot([0, 1], [0, 1], color=GREY, lw=0.9, ls="--")
+        keep = y >= cut
+        if keep.any():
+            ax.fill_between(x, np.where(keep, y, np.nan), np.where(keep, x, np.nan),
+                            color=colour(0) if sig else GREY, alpha=0.18, lw=0)
+        ax.plot(x, y, color=colour(0) if sig else GREY, lw=1.4)
+        ax.axhline(cut, color=colour(5), lw=0.9, ls=":")
+        ax.set_xlim(0, 1)
+        ax.set_ylim(0, 1.02)
+        if sig:
+            ax.set_title(f"fold {lab}: significant", fontsize=8.5)
+            ax.text(0.97, 0.05, f"AUC {f.partial_roc.auc:.3f}\nAUC ratio (observed) {f.partial_roc.auc_ratio:.3f}",
+                    ha="right", va="bottom", fontsize=7, transform=ax.transAxes)
+        else:
+            ax.set_title(f"fold {lab}: not significant", fontsize=8.5, color=colour(5))
+            ax.text(0.97, 0.05, "do not interpret", ha="right", va="bottom", fontsize=7.5, color=colour(5),
+                    transform=ax.transAxes)
+        if n + ncol >= k:  # no panel below: this one carries the x axis
+            ax.set_xlabel("area predicted present", fontsize=8)
+            ax.tick_params(labelbottom=True)
+        if n % ncol == 0:
+            ax.set_ylabel("presences predicted present", fontsize=8)
+    for n in range(k, nrow * ncol):
+        axes[n // ncol][n % ncol].set_visible(False)
+    from matplotlib.lines import Line2D
+
+    handles = [Line2D([], [], color=colour(0), lw=1.4, label="model")]
+    if not all(f.significant for f in folds):
+        handles.append(Line2D([], [], color=GREY, lw=1.4, label="model, fold not significant"))
+    handles += [Line2D([], [], color=GREY, lw=0.9, ls="--", label="null (random)"),
+                Line2D([], [], color=colour(5), lw=0.9, ls=":", label=f"1 - E = {cut:.2f}")]
+    if title:
+        fig.suptitle(title, fontsize=9.5)
+    fig.legend(handles=handles, loc="outside lower center", ncol=4, frameon=False, fontsize=7.5)
     return fig
+
 
 
 def plot_ratio_intervals(results: dict, alpha: float = 0.05):

@@ -13,16 +13,14 @@ from splitter.io.results import write_audit_tables, write_evaluation_tables, wri
 
 
 def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
-    """evaluation.csv, scores.csv, evaluation.json and one ROC figure per fold (PNG + SVG)."""
-    from splitter.report.evaluation_figures import plot_roc
+    """evaluation.csv, scores.csv, evaluation.json and the folds' ROC curves in one figure
+    (``roc_curves``, PNG + SVG: one panel per fold, all curves in one panel above 30 folds)."""
+    from splitter.report.evaluation_figures import plot_roc_panels
     from splitter.report.style import save
 
     out_dir = Path(out_dir)
     paths = write_evaluation_tables(result, out_dir, extra=extra)
-    for f in result.folds:
-        fig = plot_roc(f, result.parameters["omission"])
-        save(fig, out_dir / "figures" / f"roc_fold_{f.fold}")
-    paths["figures"] = out_dir / "figures"
+    paths["figure"] = save(plot_roc_panels(result.folds, result.parameters["omission"]), out_dir / "roc_curves")[0]
     return paths
 
 

@@ -87,6 +87,7 @@ class SplitRun:
     audit_absences: AuditResult | None = field(default=None, repr=False)
     audit_context: dict = field(default_factory=dict, repr=False)
     distance_figure: Path | None = None
+    roc_figure: Path | None = None   # evaluation/roc_curves (PNG + SVG), when the evaluation drew it
     evaluation: EvaluationResult | None = field(default=None, repr=False)
     evaluation_context: dict = field(default_factory=dict, repr=False)
     range_summary: RangeEstimate | None = field(default=None, repr=False)
@@ -253,15 +254,19 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
         if stem.with_suffix(".png").exists():
             distance_figure = stem
 
-    evaluation = None
+    evaluation = roc_figure = None
     evaluation_context: dict = {}
     ev_json = folder / "evaluation" / "evaluation.json"
     if ev_json.exists():
         evaluation, evaluation_context = _result(ev_json, "evaluate", _read_evaluation, _load_json(ev_json))
         files += [p for p in (ev_json, folder / "evaluation" / "evaluation.csv") if p.exists()]
+        stem = folder / "evaluation" / "roc_curves"
+        if stem.with_suffix(".png").exists():
+            roc_figure = stem
     return SplitRun(
         name=name, folder=folder, table_path=table_path, design=design, records=records,
         audit=audit, audit_absences=audit_absences, audit_context=audit_context, distance_figure=distance_figure,
+        roc_figure=roc_figure,
         evaluation=evaluation, evaluation_context=evaluation_context, range_summary=range_summary,
         files=tuple(files),
     )

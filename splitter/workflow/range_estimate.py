@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import numpy as np
@@ -61,13 +62,36 @@ def estimate_range_from_rasters(paths, *, sample: int = 2000, seed: int = 0, reg
     >>> round(est.suggested_block_km)
     70
     """
-    from splitter.io.rasters import read_region, sample_cells
-
     paths = [str(p) for p in paths]
     if not paths:
         raise InputError("give at least one covariate raster (paths), or a records table with covariate columns.")
     if sample < 50:
         raise InputError(f"sample={sample}: a variogram needs at least 50 cells (2000 is a good default).")
+    if region is None:
+        # A job asked for the same estimate twice (the demo's range step, then its design's
+        # block_size="auto") gets the first one back: a pure function of the files' bytes, so
+        # the files are named by path, size and modification time.
+        files = tuple((p, *_identity(p)) for p in paths)
+        return _estimate_once(files, int(sample), seed, int(n_lags), max_lag_km)
+    return _estimate(paths, sample, seed, region, n_lags, max_lag_km)
+
+
+def _identity(path) -> tuple:
+    try:
+        st = Path(path).stat()
+    except OSError:  # not a file: the reader says what is wrong with it
+        return (None, -1, -1)
+    return (str(Path(path).resolve()), st.st_size, st.st_mtime_ns)
+
+
+@functools.lru_cache(maxsize=4)
+def _estimate_once(files, sample, seed, n_lags, max_lag_km) -> RangeEstimate:
+    return _estimate([f[0] for f in files], sample, seed, None, n_lags, max_lag_km)
+
+
+def _estimate(paths, sample, seed, region, n_lags, max_lag_km) -> RangeEstimate:
+    from splitter.io.rasters import read_region, sample_cells
+
     reg = read_region(region) if isinstance(region, (str, Path)) else region
     pts, values = sample_cells(paths, int(sample), seed, region=reg)
     if len(pts) < 50:

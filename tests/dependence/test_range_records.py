@@ -5,7 +5,6 @@ from dataclasses import replace
 import numpy as np
 import pandas as pd
 import pytest
-import skgstat
 
 from splitter.dependence.variogram import fit_variogram
 from splitter.errors import InputError
@@ -44,6 +43,7 @@ def _fit(est, covariate, model="exponential"):
 
 
 def test_covariate_column_range_matches_the_simulated_field(tmp_path):
+    import skgstat  # here, not at collection: it loads numba (0.5 s) on every worker
     # Five independent fields, 1500 sites each, ranges estimated from each table alone.
     ests, frames = [], []
     for seed in range(3, 8):

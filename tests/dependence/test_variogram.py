@@ -5,7 +5,6 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
-import skgstat
 from scipy.spatial.distance import cdist, pdist
 
 from splitter.dependence.variogram import (
@@ -50,6 +49,7 @@ def test_range_recovery_on_simulated_fields(model, eff_range):
 
 
 def test_semivariances_equal_scikit_gstat():
+    import skgstat  # here, not at collection: it loads numba (0.5 s) on every worker
     rng = np.random.default_rng(11)
     xy = rng.uniform(0.0, 80.0, (700, 2))
     z = np.sin(xy[:, 0] / 9.0) + 0.3 * rng.standard_normal(700)
@@ -92,6 +92,8 @@ def test_missing_values_are_left_out():
 
 @pytest.mark.parametrize("model", ["spherical", "exponential"])
 def test_fit_recovers_exact_model_and_matches_skgstat_curve(model):
+    import skgstat  # here, not at collection: it loads numba (0.5 s) on every worker
+
     edges = np.linspace(0, 100, 16)
     lags = 0.5 * (edges[1:] + edges[:-1])
     skg_model = getattr(skgstat.models, model)

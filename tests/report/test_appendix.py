@@ -73,6 +73,22 @@ def test_every_file_is_written(built):
         assert a.shape != b.shape or np.any(a != b), stem
 
 
+def test_roc_figures_are_the_evaluations_own_and_are_redrawn_when_missing(built, run_copy, tmp_path):
+    run, app, _ = built
+    figures = app.markdown.parent / "figures"
+    for split in SPLITS:  # copied from the evaluation step, byte for byte (hashlib.sha256 via _digests)
+        for ext in ("png", "svg"):
+            assert (figures / f"roc_{split}.{ext}").read_bytes() == \
+                (run / split / "evaluation" / f"roc_curves.{ext}").read_bytes()
+    # Without the evaluation's figure the appendix draws the same curves from evaluation.json.
+    for ext in ("png", "svg"):
+        (run_copy / "blocks" / "evaluation" / f"roc_curves.{ext}").unlink()
+    again = build_appendix(run_copy, tmp_path / "again")
+    redrawn = pixels(again.markdown.parent / "figures" / "roc_blocks.png")
+    original = pixels(figures / "roc_blocks.png")
+    assert redrawn.shape == original.shape and np.array_equal(redrawn, original)
+
+
 def test_run_folder_is_only_read(built):
     run, app, before = built
     assert _digests(run) == before  # reference: hashlib.sha256 of every run file, before and after
