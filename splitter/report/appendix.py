@@ -607,7 +607,12 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         from splitter.report.dependence_figures import plot_variogram
 
         block_km, block_split = _block_size_for_variogram(splits)
-        stem = w.figure(plot_variogram(range_est, chosen_block_km=block_km), "variogram")
+        # The range step drew this figure with the suggested block size marked: copied when
+        # that is the size marked here too.
+        drawn = run.range_path.with_name("variogram") if range_est is run.range else None
+        same = drawn is not None and block_km in (None, range_est.suggested_block_km)
+        stem = (same and w.copy_figure(drawn, "variogram")) or \
+            w.figure(plot_variogram(range_est, chosen_block_km=block_km), "variogram")
         blocks.append(_display_range(range_est, w.table(_fits_frame(range_est), "range_fits")))
         which = (f"the block size of split `{block_split}` ({P.fmt_km(block_km)})" if block_km is not None
                  else f"the suggested block size ({P.fmt_km(range_est.suggested_block_km)})")

@@ -1,8 +1,8 @@
 """Figures for the autocorrelation range and the distance diagnostics.
 
-Both functions return a ``matplotlib.figure.Figure`` drawn on the Agg canvas
-(no pyplot, so no global figure state and no display needed); the caller saves
-it with ``fig.savefig(path)``. Colours are the Okabe–Ito palette, which stays
+Both functions return a ``matplotlib.figure.Figure`` in the house style (no
+pyplot, so no global figure state and no display needed); the caller saves it
+with :func:`splitter.report.style.save`. Colours are the Okabe–Ito palette, which stays
 distinguishable for the common colour-vision deficiencies; folds beyond the
 palette's length also change line style.
 """
@@ -12,26 +12,21 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from splitter.dependence.distance import DistanceDiagnostics
 from splitter.dependence.variogram import RangeEstimate
 from splitter.errors import InputError
+from splitter.report.style import PALETTE, new_figure, styled
 
 #: Okabe–Ito colours (black first, then the seven hues).
-OKABE_ITO = ("#000000", "#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "#CC79A7")
-_HUES = ("#0072B2", "#E69F00", "#009E73", "#CC79A7", "#56B4E9", "#D55E00", "#F0E442")
+OKABE_ITO = ("#000000", *PALETTE[:7])
+_HUES = tuple(PALETTE[:7])
 _STYLES = ("-", "--", ":", "-.")
 _FONT = 9  # points; readable at a journal's column width
 
 
-def _figure(width: float, height: float) -> Figure:
-    fig = Figure(figsize=(width, height), dpi=150, layout="constrained")
-    FigureCanvasAgg(fig)
-    return fig
-
-
+@styled
 def plot_variogram(range_estimate: RangeEstimate, chosen_block_km: float | None = None) -> Figure:
     """Empirical semivariances and both fitted models, one panel per covariate.
 
@@ -62,7 +57,7 @@ def plot_variogram(range_estimate: RangeEstimate, chosen_block_km: float | None 
     names = range_estimate.covariates
     ncol = min(3, len(names))
     nrow = math.ceil(len(names) / ncol)
-    fig = _figure(3.3 * ncol, 3.4 * nrow)
+    fig = new_figure(3.3 * ncol, 3.4 * nrow)
     axes = fig.subplots(nrow, ncol, squeeze=False)
     fits = {(f.covariate, f.model): f for f in range_estimate.fits}
     for j, name in enumerate(names):
@@ -100,6 +95,7 @@ def _ecdf_line(ax, d: np.ndarray, **kw):
     return ax.step(d, y, where="post", **kw)[0]
 
 
+@styled
 def plot_distance_ecdf(diagnostics: DistanceDiagnostics, range_km: float | None = None) -> Figure:
     """Cumulative distributions of nearest-neighbour distances.
 
@@ -131,7 +127,7 @@ def plot_distance_ecdf(diagnostics: DistanceDiagnostics, range_km: float | None 
     if not isinstance(diagnostics, DistanceDiagnostics):
         raise InputError("plot_distance_ecdf needs DistanceDiagnostics (from distance_diagnostics).")
     rng = diagnostics.range_km if range_km is None else float(range_km)
-    fig = _figure(5.0, 3.4)
+    fig = new_figure(5.0, 3.4)
     ax = fig.subplots()
     everything = []
     for i, (label, d) in enumerate(zip(diagnostics.fold_labels, diagnostics.evaluation_to_calibration_km)):

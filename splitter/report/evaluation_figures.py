@@ -11,12 +11,13 @@ import math
 
 import numpy as np
 
-from splitter.report.style import GREY, colour, new_figure
+from splitter.report.style import GREY, colour, new_figure, styled
 
 #: Above this many folds the curves share one panel instead of one panel each.
 MAX_PANELS = 30
 
 
+@styled
 def plot_roc_panels(folds, omission: float, title: str = ""):
     """Per-fold exact area-based ROC curves as small multiples.
 
@@ -97,6 +98,7 @@ def plot_roc_panels(folds, omission: float, title: str = ""):
 
 
 
+@styled
 def plot_ratio_intervals(results: dict, alpha: float = 0.05):
     """Per-fold AUC-ratio 95 % intervals against the null of 1, one series per split.
 

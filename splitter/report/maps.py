@@ -26,7 +26,7 @@ from matplotlib.patches import Patch
 from splitter.errors import InputError
 from splitter.geo import Points, equal_area_crs, is_planar, planar_km
 from splitter.partition.grid import hexagon_cells, hexagon_corners, square_cell_corners, square_cells
-from splitter.report.style import GREY, colour, new_figure
+from splitter.report.style import GREY, colour, new_figure, styled
 
 SPATIAL_METHODS = ("blocks", "hexagons", "checkerboard")
 #: Beyond this many lattice cells over the map extent only occupied cells are outlined.
@@ -285,6 +285,7 @@ def map_extent(x, y) -> tuple[float, float, float, float]:
     return float(xmin - pad), float(xmax + pad), float(ymin - pad), float(ymax + pad)
 
 
+@styled
 def plot_fold_map(x_km, y_km, kind, fold, *, fold_names: dict, gap_rows=(), gap_folds=(),
                   buffer_km: float = 0.0, grid: CellGrid | None = None, title: str = "",
                   extent=None, focus_fold: int | None = None, generalised_km: float | None = None) -> FoldMap:

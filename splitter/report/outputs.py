@@ -24,15 +24,15 @@ def write_evaluation(result, out_dir, extra: dict | None = None) -> dict:
     return paths
 
 
-def write_range(estimate, out_dir, extra: dict | None = None, chosen_block_km=None) -> dict:
-    """range.csv, range.json (with suggested_block_km) and the variogram figure."""
+def write_range(estimate, out_dir, extra: dict | None = None) -> dict:
+    """range.csv, range.json (with suggested_block_km) and the variogram figure, the
+    suggested block size marked (the appendix reuses the figure when it marks the same)."""
     from splitter.report.dependence_figures import plot_variogram
     from splitter.report.style import save
 
     out_dir = Path(out_dir)
     paths = write_range_tables(estimate, out_dir, extra=extra)
-    fig = plot_variogram(estimate, chosen_block_km=chosen_block_km or estimate.suggested_block_km)
-    paths["figure"] = save(fig, out_dir / "variogram")[0]
+    paths["figure"] = save(plot_variogram(estimate), out_dir / "variogram")[0]
     return paths
 
 

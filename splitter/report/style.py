@@ -1,6 +1,14 @@
-"""One plain look for every figure: Okabe–Ito colours, print-size text."""
+"""One plain look for every figure: Okabe–Ito colours, print-size text.
+
+The look is applied around each drawing function (:func:`styled`) and each save
+(:func:`save`) with ``matplotlib.rc_context``, never by changing the caller's
+``matplotlib.rcParams``: a figure looks the same whatever was drawn before it in
+the process, and a notebook user's own plots keep their settings.
+"""
 
 from __future__ import annotations
+
+import functools
 
 from matplotlib.figure import Figure
 
@@ -15,17 +23,29 @@ def colour(i: int) -> str:
     return PALETTE[i % len(PALETTE)]
 
 
-def new_figure(width=5.0, height=3.6) -> Figure:
-    import matplotlib
+def styled(draw):
+    """Run a figure-drawing function inside the house style (text sizes are fixed when the
+    artists are made)."""
 
-    matplotlib.rcParams.update(RC)
-    fig = Figure(figsize=(width, height), dpi=150, layout="constrained")
-    return fig
+    @functools.wraps(draw)
+    def in_style(*args, **kwargs):
+        import matplotlib
+
+        with matplotlib.rc_context(RC):
+            return draw(*args, **kwargs)
+
+    return in_style
+
+
+def new_figure(width=5.0, height=3.6) -> Figure:
+    return Figure(figsize=(width, height), dpi=150, layout="constrained")
 
 
 def save(fig: Figure, path_stem, formats=("png", "svg")) -> list:
     """Save a figure atomically in each format; PNG/SVG metadata fixed for reproducibility."""
     from pathlib import Path
+
+    import matplotlib
 
     from splitter.io.atomic import atomic_path
 
@@ -34,11 +54,10 @@ def save(fig: Figure, path_stem, formats=("png", "svg")) -> list:
         path = Path(f"{path_stem}.{fmt}")
         path.parent.mkdir(parents=True, exist_ok=True)
         meta = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
-        # SVG element ids come from a hash salted with rcParams at save time: a fixed salt
-        # here makes every figure byte-identical run to run, however it was built.
-        import matplotlib
-
-        with atomic_path(path) as tmp, matplotlib.rc_context({"svg.hashsalt": RC["svg.hashsalt"]}):
+        # In the house style again: tick labels are made while drawing, and SVG text and
+        # element ids follow the settings at save time (a fixed hash salt makes every
+        # figure byte-identical run to run, however it was built).
+        with atomic_path(path) as tmp, matplotlib.rc_context(RC):
             fig.savefig(tmp, format=fmt, metadata=meta)
         out.append(path)
         # The layout is worked out by the first save; the other formats reuse it rather than

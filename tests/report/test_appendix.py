@@ -73,13 +73,15 @@ def test_every_file_is_written(built):
         assert a.shape != b.shape or np.any(a != b), stem
 
 
-def test_roc_figures_are_the_evaluations_own_and_are_redrawn_when_missing(built, run_copy, tmp_path):
+def test_figures_the_steps_drew_are_copied_and_redrawn_when_missing(built, run_copy, tmp_path):
     run, app, _ = built
     figures = app.markdown.parent / "figures"
-    for split in SPLITS:  # copied from the evaluation step, byte for byte (hashlib.sha256 via _digests)
-        for ext in ("png", "svg"):
+    for ext in ("png", "svg"):  # copied byte for byte from the steps that drew them
+        for split in SPLITS:
             assert (figures / f"roc_{split}.{ext}").read_bytes() == \
                 (run / split / "evaluation" / f"roc_curves.{ext}").read_bytes()
+        # the demo's blocks are sized 'auto', the suggested size the range figure marks
+        assert (figures / f"variogram.{ext}").read_bytes() == (run / "range" / f"variogram.{ext}").read_bytes()
     # Without the evaluation's figure the appendix draws the same curves from evaluation.json.
     for ext in ("png", "svg"):
         (run_copy / "blocks" / "evaluation" / f"roc_curves.{ext}").unlink()

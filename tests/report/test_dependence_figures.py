@@ -89,3 +89,24 @@ def test_wrong_object_raises():
         plot_variogram({"not": "an estimate"})
     with pytest.raises(InputError):
         plot_distance_ecdf(None)
+
+
+def test_a_figure_looks_the_same_whatever_was_drawn_before_and_leaves_the_callers_settings(range_estimate, tmp_path):
+    """The house style is applied around drawing and saving (splitter.report.style), so a
+    figure's bytes do not depend on the figures drawn before it in the process, and a user's
+    own matplotlib settings (a notebook's) are neither used nor changed."""
+    import matplotlib
+
+    from splitter.report.evaluation_figures import plot_ratio_intervals
+    from splitter.report.style import save
+
+    mine = {"svg.fonttype": "path", "font.size": 14.0}
+    with matplotlib.rc_context(mine):
+        first = save(plot_variogram(range_estimate), tmp_path / "first")
+        save(plot_ratio_intervals({}), tmp_path / "other")  # another of our figures in between
+        again = save(plot_variogram(range_estimate), tmp_path / "again")
+        assert {k: matplotlib.rcParams[k] for k in mine} == mine  # the caller's settings, untouched
+    for a, b in zip(first, again):
+        assert a.read_bytes() == b.read_bytes(), a.name
+    svg = first[1].read_text(encoding="utf-8")
+    assert "<text" in svg  # house style: SVG text stays text (svg.fonttype "none"), not the caller's paths
