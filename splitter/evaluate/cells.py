@@ -39,6 +39,9 @@ _CHUNK = 1 << 18
 # (summary, null draws, null summary) never read or decode the raster again.
 # Larger rasters are read afresh on every pass, as before.
 KEEP_BYTES = 640 << 20
+# Lookup-table buckets per cell key, and at most this many buckets (see _CellKeys).
+_BUCKETS_PER_KEY = 8
+_MAX_BUCKETS = 1 << 24
 
 
 # ----------------------------------------------------------------------------- source
@@ -242,24 +245,28 @@ class _CellKeys:
         span = float(self.edges[-1]) - low  # > 0: u_0+ > u_0
         # About 8 buckets per key, so that few cells share a bucket with a key even
         # when there are many keys (the partial ROC's null places ~B n values).
-        buckets = int(min(1 << 24, max(1 << 16, 8 * self.n_keys)))
+        buckets = int(min(_MAX_BUCKETS, max(1 << 16, _BUCKETS_PER_KEY * self.n_keys)))
         with np.errstate(over="ignore", divide="ignore"):
             scale = buckets / span
         self.use_table = bool(np.isfinite(span) and np.isfinite(scale) and scale > 0)
         self.low, self.scale, self.buckets = low, scale, buckets
         if self.use_table:
+            # The edges are ascending, so their buckets are too: the table is a step function
+            # of the bucket, written run by run (np.repeat) rather than counted per bucket and
+            # summed over all 2**24 of them. Key of a cell in a bucket without an edge: the
+            # number of edges in lower buckets, i.e. the index of the first edge at or above
+            # its bucket.
             edge_bucket = _bucket(self.edges, low, scale, buckets)
-            # Keys of cells in buckets without an edge: the number of edges in lower buckets.
-            per_bucket = np.bincount(edge_bucket, minlength=buckets + 2)
-            below = np.cumsum(per_bucket)
-            below -= per_bucket  # edges in lower buckets
+            first = np.flatnonzero(np.r_[True, edge_bucket[1:] != edge_bucket[:-1]])
+            occupied = edge_bucket[first]
+            per_bucket = np.diff(np.r_[first, edge_bucket.size])
             # Packed with the bucket's edges, capped at 3 ("more than two"), in the low two
             # bits: one lookup per cell instead of two (the lookups are the cost: the table
             # does not fit in cache). A bucket with one or two edges places its cells by
             # comparing with them, only fuller ones search.
-            below <<= 2  # in place: the table has up to 2**24 buckets
-            below |= np.minimum(per_bucket, 3, out=per_bucket)
-            self.table = below.astype(np.int32) if 4 * self.n_keys < 2**31 else below
+            packed = np.r_[first, edge_bucket.size].astype(np.int32 if 4 * self.n_keys < 2**31 else np.int64) << 2
+            self.table = np.repeat(packed, np.diff(np.r_[-1, occupied, buckets + 1]))
+            self.table[occupied] |= np.minimum(per_bucket, 3).astype(self.table.dtype)
             self.padded = np.append(self.edges, np.inf)  # edges[t + 1] exists for the last edge too
 
     def __call__(self, vb: np.ndarray) -> np.ndarray:
@@ -277,10 +284,23 @@ class _CellKeys:
                 v = vb[near].astype(np.float64)
                 t, c = key[near], count[near]
                 e = self.padded
-                key[near] = t + (v >= e[t]) + ((c >= 2) & (v >= e[t + 1]))
-                full = np.flatnonzero(c > 2)
+                k = t + (v >= e[t]) + ((c >= 2) & (v >= e[t + 1]))
+                # A fuller bucket: a cell at or above its first two edges walks on along the
+                # edges (edges of higher buckets are above it, so the walk stops in its own),
+                # a few steps at a time; the rare cell still walking after them is searched.
+                full = np.flatnonzero((c > 2) & (k == t + 2))
                 if full.size:
-                    key[near[full]] = np.searchsorted(self.edges, v[full], side="right")
+                    kf, vf = k[full], v[full]
+                    for _ in range(4):
+                        step = vf >= e[kf]
+                        if not step.any():
+                            break
+                        kf += step
+                    else:
+                        rest = vf >= e[kf]
+                        kf[rest] = np.searchsorted(self.edges, vf[rest], side="right")
+                    k[full] = kf
+                key[near] = k
             return key
         # Query values span less than ~1e-300, or more than the float range:
         # a plain binary search for every cell.

@@ -1,0 +1,51 @@
+"""The cell keys behind every streamed summary: one lookup per cell must place each cell
+exactly where a binary search would.
+
+Reference: ``numpy.searchsorted(edges, v, side="right")`` over the interleaved edges
+[u_0, next float after u_0, u_1, ...] (the definition of the key, splitter.evaluate.cells).
+Values are invented, seeded.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from splitter.evaluate.cells import _CellKeys
+
+
+def _reference(u: np.ndarray, v: np.ndarray) -> np.ndarray:
+    edges = np.column_stack([u, np.nextafter(u, np.inf)]).ravel()
+    return np.searchsorted(edges, v.astype(np.float64), side="right")
+
+
+def _cells_around(u: np.ndarray, rng, n: int) -> np.ndarray:
+    """Cells anywhere in and beyond the queries' range, plus cells equal to queries and
+    one float either side of them (the comparisons that decide a key)."""
+    lo, hi = float(u.min()), float(u.max())
+    span = max(hi - lo, 1e-300)
+    pick = rng.choice(u, n // 4)
+    return np.concatenate([rng.uniform(lo - 0.1 * span, hi + 0.1 * span, n // 4), pick,
+                           np.nextafter(pick, -np.inf), np.nextafter(pick, np.inf)])
+
+
+@pytest.mark.parametrize("case", ["continuous", "clustered", "few", "tiny-span", "float32"])
+def test_keys_equal_a_binary_search(case):
+    rng = np.random.default_rng(["continuous", "clustered", "few", "tiny-span", "float32"].index(case))
+    if case == "continuous":
+        u = np.unique(rng.beta(2, 3, 200_000))  # ~8 buckets per key, some shared
+    elif case == "clustered":
+        # 3000 queries inside one bucket's width, the rest spread: full buckets are searched
+        u = np.unique(np.r_[0.5 + rng.uniform(0, 1e-9, 3000), rng.uniform(0, 1, 20_000)])
+    elif case == "few":
+        u = np.array([0.25, 0.5, 0.75])
+    elif case == "tiny-span":
+        u = np.array([1e-310, 2e-310, 3e-310])  # the span's scale overflows: plain search path
+    else:
+        u = np.unique(rng.random(50_000).astype(np.float32).astype(np.float64))
+    cells = _cells_around(u, rng, 400_000)
+    if case == "float32":
+        cells = cells.astype(np.float32)
+    keys = _CellKeys(u)
+    assert case != "tiny-span" or not keys.use_table
+    np.testing.assert_array_equal(keys(cells), _reference(u, cells))
