@@ -411,7 +411,7 @@ def test_command_prints_a_summary_and_exits_1_when_a_run_failed(first, cluster, 
     assert res.exit_code == 2 and "unknown column 'colour'" in res.output
     import dask
 
-    with dask.config.set({"distributed.comm.timeouts.connect": "2s"}):  # nothing listens on loopback port 1
+    with dask.config.set({"distributed.comm.timeouts.connect": "0.5s"}):  # nothing listens on loopback port 1
         res = runner.invoke(app, ["batch", str(ins / "manifest.csv"), "--out", str(tmp_path / "new"),
                                   "--scheduler", "tcp://127.0.0.1:1"])
     assert res.exit_code == 2 and "cannot connect" in res.output, res.output
