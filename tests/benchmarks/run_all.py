@@ -305,7 +305,28 @@ def _machine() -> dict:
     mem_gb = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES") / 2**30
     return {"cores": os.cpu_count(), "memory_gb": round(mem_gb, 1), "python": platform.python_version(),
             "platform": platform.platform(), "load_average": os.getloadavg(), "versions": versions,
+            "fresh_memory_us_per_page": _fresh_memory_cost(),
             "date": time.strftime("%Y-%m-%d %H:%M UTC", time.gmtime())}
+
+
+# 256 MB touched page by page twice in a fresh process: the first touch of memory the process has
+# never held, then again after freeing it. On a virtual machine whose host takes freed memory
+# back, the first touch can cost a hundred times the second; a stage that needs hundreds of MB
+# of fresh memory (evaluate at 10^8 cells) pays it, its floor (a read into reused buffers) does not.
+_TOUCH = """
+import time, numpy as np
+out = []
+for _ in range(2):
+    t = time.perf_counter(); a = np.empty(256 << 20, np.uint8); a[::4096] = 1
+    out.append((time.perf_counter() - t) / 65536 * 1e6); del a
+print(*out)
+"""
+
+
+def _fresh_memory_cost() -> dict:
+    done = subprocess.run([sys.executable, "-c", _TOUCH], capture_output=True, text=True)
+    first, again = (float(v) for v in done.stdout.split())
+    return {"first_touch": round(first, 2), "touched_again": round(again, 2)}
 
 
 def _verdicts(rows) -> list:
@@ -426,8 +447,10 @@ def main(argv) -> int:
     if startup:
         print(startup_table)
     print(table)
+    touch = machine["fresh_memory_us_per_page"]
     print(f"machine: {machine['cores']} cores, {machine['memory_gb']} GB, Python {machine['python']}, "
-          f"load {machine['load_average'][0]:.2f}")
+          f"load {machine['load_average'][0]:.2f}, fresh memory {touch['first_touch']:.2f} us per 4 KB page "
+          f"({touch['touched_again']:.2f} when touched again)")
     if not args.no_docs:
         DOCS.mkdir(exist_ok=True)
         doc = {"machine": machine, "startup": startup, "rows": rows, "slopes": slopes, "slope_limit": SLOPE_LIMIT,
@@ -439,7 +462,9 @@ def main(argv) -> int:
             "# Performance beside its floor\n\n"
             f"Made by `python tests/benchmarks/run_all.py{' --quick' if args.quick else ''}` on {machine['date']}: "
             f"{machine['cores']} cores, {machine['memory_gb']} GB, Python {machine['python']}, load average "
-            f"{machine['load_average'][0]:.2f} at the end. Each row is the median of alternating runs of the work "
+            f"{machine['load_average'][0]:.2f} at the end; memory the process had never held cost "
+            f"{touch['first_touch']:.2f} us per 4 KB page on first touch, {touch['touched_again']:.2f} when "
+            "touched again (a stage that needs hundreds of MB of it pays the difference). Each row is the median of alternating runs of the work "
             "and its floor in one process; ratio = work / floor (batch: floor / work, the speed-up of 2 workers); "
             "status is judged at a stage's largest size; slope = fitted exponent of time against size "
             f"(flagged above {SLOPE_LIMIT}).\n\n"
