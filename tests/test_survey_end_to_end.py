@@ -41,9 +41,9 @@ def test_presence_absence_survey_on_a_local_grid(tmp_path):
     survey.to_csv(tmp_path / "survey.csv", index=False)
     run_dir = tmp_path / "run"
 
-    design = run("design", tmp_path / "survey.csv", "--x", "east_km", "--y", "north_km", "--crs", "planar:km",
-                 "--id-column", "site", "--kind-column", "found", "--zero-means", "absence", "--method", "blocks",
-                 "--folds", 4, "--block-size", 15, "--buffer", 5, "--seed", 3, "--out", run_dir / "folds.csv")
+    run("design", tmp_path / "survey.csv", "--x", "east_km", "--y", "north_km", "--crs", "planar:km",
+        "--id-column", "site", "--kind-column", "found", "--zero-means", "absence", "--method", "blocks",
+        "--folds", 4, "--block-size", 15, "--buffer", 5, "--seed", 3, "--out", run_dir / "folds.csv")
     folds = pd.read_csv(run_dir / "folds.csv", dtype=str, keep_default_na=False)
     assert len(folds) == n and (folds["site"] == survey["site"]).all()  # every row, in order
     assert set(folds["kind"]) == {"presence", "absence"}  # 0 read as absence, never as background

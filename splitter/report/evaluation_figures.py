@@ -103,7 +103,6 @@ def plot_roc_panels(folds, omission: float, title: str = ""):
     return fig
 
 
-
 @styled
 def plot_ratio_intervals(results: dict, alpha: float = 0.05):
     """Per-fold AUC-ratio 95 % intervals against the null of 1, one series per split.

@@ -330,7 +330,6 @@ def _fresh_memory_cost() -> dict:
 
 
 def _verdicts(rows) -> list:
-    out = []
     for r in rows:
         sizes, _, unit, target, mem, floor_words = STAGES[r["stage"]]
         largest = r["size"] == max(x["size"] for x in rows if x["stage"] == r["stage"])
