@@ -83,6 +83,7 @@ def test_page_has_no_external_reference(page):
     assert "<script" not in text and "@import" not in text and "<link" not in text
 
 
+@pytest.mark.slow  # starts Chromium twice; also orders this file among the first demo readers (tests/conftest.py)
 def test_page_renders_offline_in_chromium(browser, page, demo_run, tmp_path):
     seen = _probe(page, tmp_path)
     n_figures = len(list((demo_run / "appendix" / "figures").glob("*.png")))
