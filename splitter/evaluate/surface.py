@@ -21,7 +21,8 @@ or a raster read in windows) pass three times, in blocks (e.g. the row windows o
 1. the value range (where the Boyce windows lie) and the total area;
 2. the partial ROC null's cells, drawn by area (which needs only the total);
 3. one summary: each block is placed among the sorted *query values* (presence
-   values, thresholds, Boyce window edges and the null's drawn values) with one
+   values, thresholds, Boyce window edges and the null's drawn values that its
+   ratios read, each replicate's lowest; see :func:`~splitter.evaluate.partial_roc.null_sample`) with one
    lookup per cell; one weighted ``bincount`` per block adds the block's area to
    every "strictly between two query values" and "equal to a query value" slot.
 
@@ -64,7 +65,8 @@ from splitter.evaluate.cells import (
     surface_extent,
     surface_range,
 )
-from splitter.evaluate.partial_roc import PartialROCResult, _check_options, _sample_size, null_draws, tested
+from splitter.evaluate.partial_roc import (PartialROCResult, _check_options, _sample_size, null_draws, null_sample,
+                                           tested)
 
 __all__ = [
     "SuitabilitySurface",
@@ -240,9 +242,10 @@ def evaluate_surface(
     # so one summary answers for the presences, thresholds, Boyce edges and draws.
     picks, drawn = null_draws(source, pres.size, _sample_size(pres.size, sample_share), replicates,
                               total, seed)
-    queries = np.union1d(surface_queries(pres, thr, boyce_range, width_share, step_share), drawn)
+    null = null_sample(drawn, pres.size, omission)
+    queries = np.union1d(surface_queries(pres, thr, boyce_range, width_share, step_share), null.read_values)
     surface = summarise_surface(source, queries)
-    proc = tested(pres, surface, picks, drawn, surface, omission)
+    proc = tested(pres, surface, picks, null, surface, omission)
     shares = np.array([surface.area_share_at(t) for t in thr])
     boyce_result = (boyce_index(pres, width_share=width_share, step_share=step_share, value_range=boyce_range,
                                 surface=surface) if boyce else None)

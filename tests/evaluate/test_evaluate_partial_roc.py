@@ -76,6 +76,45 @@ def test_vectorised_bootstrap_equals_plain_reference(omission, weighted):
     assert r.auc_ratio == pytest.approx(observed[0], abs=1e-12)  # reference: plain polyline implementation
 
 
+@pytest.mark.parametrize("omission", [0.0, 0.05, 0.37, 1.0])
+@pytest.mark.parametrize("decimals", [6, 1])
+def test_null_ratios_equal_plain_reference_on_the_drawn_cells(omission, decimals):
+    # The null is summarised only at the values its ratios read (each replicate's lowest
+    # ~E n + 1): the ratios must still be those of the whole polyline of every drawn cell.
+    cells, weights, presences = _landscape(12, n_cells=1200, n_pres=17, decimals=decimals)
+    seed, replicates = 7, 40
+    r = partial_roc(cells, presences, weights, omission=omission, replicates=replicates, seed=seed)
+    rng = np.random.default_rng(seed)
+    rng.integers(0, presences.size, size=(replicates, 9))  # the bootstrap's draw comes first
+    # The documented null draw: uniform targets on [0, total area), each the cell whose
+    # cumulative area first exceeds it.
+    targets = rng.random(replicates * presences.size) * weights.sum()
+    drawn = cells[np.minimum(np.searchsorted(np.cumsum(weights), targets, side="right"), cells.size - 1)]
+    rows = np.arange(drawn.size).reshape(replicates, presences.size)
+    ref = partial_roc_reference(cells, drawn, rows, weights, omission=omission)
+    np.testing.assert_allclose(r.null_ratios, ref, rtol=0, atol=1e-12)  # reference: plain polyline implementation
+
+
+@pytest.mark.parametrize("omission", [0.0, 0.05, 0.2, 0.5, 1.0])
+@pytest.mark.parametrize("n", [1, 3, 20, 101])
+def test_null_reads_areas_only_where_it_says(omission, n):
+    # The values null_sample leaves out get NaN shares: a ratio that read one would be NaN.
+    from splitter.evaluate.cells import summarise_surface
+    from splitter.evaluate.partial_roc import _ratios, _table, null_sample
+
+    rng = np.random.default_rng(n)
+    cells = np.round(rng.random(3000), 2)
+    drawn = rng.choice(cells, size=50 * n)
+    null = null_sample(drawn, n, omission)
+    full = summarise_surface(cells, null.values)
+    everything = _ratios(null.keys, _table(full, null.values), omission)
+    only_read = _ratios(null.keys, _table(full, null.values, null.read), omission)
+    assert np.all(np.isfinite(only_read))
+    np.testing.assert_array_equal(only_read, everything)  # contract: same surface, same ratios
+    lowest = n - (0 if omission == 1.0 else int(np.ceil(round((1 - omission) * n, 9))) - 1)
+    assert null.read.sum() <= 50 * lowest  # analytic: at most the lowest (E n + 1) of each replicate
+
+
 def _float_traps(seed):
     # Invented values that are hard on the one-pass cell lookup: float32 cells, presences
     # equal to cells, presences one float64 step away from cells, clusters of presences
