@@ -107,12 +107,13 @@ class CellSource:
 
     def parts(self, count: int = 2) -> list:
         """The blocks as ``count`` consecutive parts when they are kept in memory (each an
-        iterable of ``(values, weights)``), else one part: the stream itself."""
+        iterable of ``(values, runs)`` as :meth:`run_blocks` gives them), else one part:
+        the stream itself."""
         kept = self._cache.get("kept")
         if kept is None or count < 2 or len(kept) < count:
-            return [self.blocks()]
+            return [self.run_blocks()]
         cut = np.linspace(0, len(kept), count + 1).astype(int)
-        return [self._replay(kept[a:b]) for a, b in zip(cut[:-1], cut[1:])]
+        return [kept[a:b] for a, b in zip(cut[:-1], cut[1:])]
 
     @staticmethod
     def _replay(kept):
@@ -165,6 +166,27 @@ def _expand(runs) -> np.ndarray | None:
     return None if runs is None else np.repeat(runs[0], runs[1])
 
 
+def _expand_chunks(runs, size: int, chunk: int):
+    """The weights of cells [0, chunk), [chunk, 2 chunk), ... of a block, one chunk at a time
+    (None each for equal weights): expanded where they are used, so that a block's weights
+    never stand in memory cell by cell (8 bytes a cell, written once and read once)."""
+    if runs is None:
+        for _ in range(0, size, chunk):
+            yield None
+        return
+    rv, rl = runs
+    ends = np.cumsum(rl)
+    for start in range(0, size, chunk):
+        stop = min(start + chunk, size)
+        a = int(np.searchsorted(ends, start, side="right"))  # the run holding cell `start`
+        b = int(np.searchsorted(ends, stop - 1, side="right"))  # ... and cell `stop - 1`
+        lengths = rl[a : b + 1].copy()
+        lengths[0] = min(int(ends[a]), stop) - start
+        if b > a:
+            lengths[-1] = stop - int(ends[b - 1])
+        yield np.repeat(rv[a : b + 1], lengths)
+
+
 def _runs(w: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Run-length code of a weight array: (value of each run, its length)."""
     if w.size == 0:
@@ -203,17 +225,32 @@ def as_cells(cells, weights=None) -> CellSource:
 # ----------------------------------------------------------------------------- lookup
 
 
-def _bucket(x: np.ndarray, low: float, scale: float, buckets: int) -> np.ndarray:
-    """Monotone bucket number in -1..buckets (shifted to 0..buckets+1) of float values.
+def _bucket(x: np.ndarray, low: float, scale: float, buckets: int, y=None, out=None) -> np.ndarray:
+    """Monotone bucket number in -1..buckets (shifted to 0..buckets+1) of float values,
+    computed in ``y`` (float64) and ``out`` (intp) when given.
 
     Every step (subtract, multiply, clip, floor) is monotone in floating point, so
     x1 <= x2 implies bucket(x1) <= bucket(x2); that is all the exactness needs.
     """
-    y = np.subtract(x, low, dtype=np.float64)
+    y = np.subtract(x, low, dtype=np.float64, out=y)
     y *= scale
     np.clip(y, -1.0, float(buckets), out=y)  # before the cast: huge values stay finite
     np.floor(y, out=y)
-    return y.astype(np.intp) + 1
+    out = np.empty(y.shape, np.intp) if out is None else out
+    np.copyto(out, y, casting="unsafe")
+    out += 1
+    return out
+
+
+class _Scratch:
+    """Work arrays of one chunk of cells, reused chunk after chunk by one thread: fresh
+    memory costs more than the lookup itself on some machines (its first touch)."""
+
+    def __init__(self, size: int, table_dtype):
+        self.y = np.empty(size)
+        self.b = np.empty(size, np.intp)
+        self.packed = np.empty(size, table_dtype)
+        self.count = np.empty(size, table_dtype)
 
 
 class _CellKeys:
@@ -233,8 +270,8 @@ class _CellKeys:
     a bucket with an edge (about d / buckets of them for continuous predictions)
     are binary-searched. Callers feed the cells in blocks that stay in cache.
 
-    Used by :func:`partial_roc` on cells in memory and by
-    :mod:`splitter.evaluate.surface` on cells streamed from a raster.
+    Used by :func:`summarise_surface` on streamed cells (cells held in memory are
+    sorted once instead), for the partial ROC and :mod:`splitter.evaluate.surface`.
     """
 
     def __init__(self, u: np.ndarray):
@@ -269,14 +306,21 @@ class _CellKeys:
             self.table[occupied] |= np.minimum(per_bucket, 3).astype(self.table.dtype)
             self.padded = np.append(self.edges, np.inf)  # edges[t + 1] exists for the last edge too
 
-    def __call__(self, vb: np.ndarray) -> np.ndarray:
-        """Key (0 .. n_keys - 1) of every value of the block ``vb``."""
+    def scratch(self, size: int = _CHUNK) -> _Scratch:
+        """Work arrays for :meth:`__call__` on blocks of up to ``size`` cells (one per thread)."""
+        return _Scratch(size, self.table.dtype if self.use_table else np.intp)
+
+    def __call__(self, vb: np.ndarray, scratch: _Scratch | None = None) -> np.ndarray:
+        """Key (0 .. n_keys - 1) of every value of the block ``vb``; written into ``scratch``
+        (then valid until its next use) when given."""
         if self.use_table:
+            work = scratch if scratch is not None and scratch.y.size >= vb.size else self.scratch(vb.size)
+            n = vb.size
             with np.errstate(over="ignore"):  # overflow to inf is clipped to the top bucket
-                b = _bucket(vb, self.low, self.scale, self.buckets)
-            packed = self.table[b]
-            key = packed >> 2
-            count = packed & 3
+                b = _bucket(vb, self.low, self.scale, self.buckets, work.y[:n], work.b[:n])
+            packed = np.take(self.table, b, out=work.packed[:n])
+            count = np.bitwise_and(packed, 3, out=work.count[:n])
+            key = np.right_shift(packed, 2, out=b)
             near = np.flatnonzero(count)
             if near.size:
                 # A cell sharing its bucket with edges e[t] (and e[t + 1]): its key is t
@@ -489,12 +533,13 @@ def surface_range(cells) -> tuple[float, float]:
 
 
 def _tally(blocks, keys: _CellKeys) -> tuple:
-    """Slot weights, counts and value extremes of some blocks (one part of a summary)."""
+    """Slot weights, counts and value extremes of some ``(values, runs)`` blocks (one part of a summary)."""
     slots = np.zeros(keys.n_keys)
+    scratch = keys.scratch()
     n_values = n_cells = 0
     lo = live_lo = np.inf
     hi = live_hi = -np.inf
-    for v, w in blocks:
+    for v, runs in blocks:
         if v.size == 0:
             continue
         # min and max propagate NaN and show infinities: two reductions, no mask over the block.
@@ -503,27 +548,24 @@ def _tally(blocks, keys: _CellKeys) -> tuple:
             raise InputError("Some cell values are missing or infinite; drop nodata cells first.")
         lo, hi = min(lo, bmin), max(hi, bmax)
         n_values += v.size
-        if w is None:
+        if runs is None:
             n_cells += v.size
             live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
         else:
-            wmin, wsum = float(w.min()), float(w.sum())
+            wmin, wsum = float(runs[0].min()), float(np.dot(runs[0], runs[1]))
             if not (np.isfinite(wsum) and wmin >= 0.0):
                 raise InputError("Cell weights must be finite and not negative.")
             if wmin > 0.0:
                 n_cells += v.size
                 live_lo, live_hi = min(live_lo, bmin), max(live_hi, bmax)
             else:
-                live = v[w > 0]
+                live = v[_expand(runs) > 0]
                 n_cells += live.size
                 if live.size:
                     live_lo, live_hi = min(live_lo, float(live.min())), max(live_hi, float(live.max()))
-        for start in range(0, v.size, _CHUNK):
-            key = keys(v[start : start + _CHUNK])
-            if w is None:
-                slots += np.bincount(key, minlength=keys.n_keys)
-            else:
-                slots += np.bincount(key, weights=w[start : start + _CHUNK], minlength=keys.n_keys)
+        for start, w in zip(range(0, v.size, _CHUNK), _expand_chunks(runs, v.size, _CHUNK)):
+            key = keys(v[start : start + _CHUNK], scratch)
+            slots += np.bincount(key, weights=w, minlength=keys.n_keys)
     return slots, n_values, n_cells, lo, hi, live_lo, live_hi
 
 

@@ -49,3 +49,20 @@ def test_keys_equal_a_binary_search(case):
     keys = _CellKeys(u)
     assert case != "tiny-span" or not keys.use_table
     np.testing.assert_array_equal(keys(cells), _reference(u, cells))
+
+
+@pytest.mark.parametrize("chunk", [1, 3, 7, 64, 1000])
+def test_weights_expanded_chunk_by_chunk_equal_the_whole_block(chunk):
+    # The summary expands a block's run-coded areas one chunk at a time; the pieces
+    # must be the block's weights, cell for cell (reference: numpy.repeat of the runs).
+    from splitter.evaluate.cells import _expand_chunks
+
+    rng = np.random.default_rng(chunk)
+    lengths = rng.integers(1, 9, 60)
+    lengths[::7] = 1  # runs of one cell next to chunk edges
+    runs = (rng.uniform(0.5, 2.0, lengths.size), lengths)
+    size = int(lengths.sum())
+    pieces = list(_expand_chunks(runs, size, chunk))
+    assert len(pieces) == -(-size // chunk)
+    np.testing.assert_array_equal(np.concatenate(pieces), np.repeat(*runs))
+    assert all(p is None for p in _expand_chunks(None, size, chunk))
