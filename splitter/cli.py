@@ -155,7 +155,9 @@ def guarded(fn):
         import signal
 
         from splitter.io.lock import output_lock
+        from splitter.memory import keep_freed_memory
 
+        keep_freed_memory()  # a fold's freed arrays serve the next fold (splitter.memory)
         # SIGTERM (e.g. a job scheduler stopping the run) cleans up like Ctrl-C:
         # the exception unwinds through every atomic writer, which removes its temp file.
         signal.signal(signal.SIGTERM, _interrupt)

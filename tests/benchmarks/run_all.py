@@ -8,8 +8,10 @@ Usage:
 
 Each (stage, size) runs in a fresh process that times the floor and the work
 alternately, ``--repeat`` times each after one untimed run of each (batch: of the
-floor only), so that machine load hits both alike; the table gives the medians, their ratio and the process's peak
-resident memory (os.wait4). A stage's slope is fitted to log(time) against log(size)
+floor only), so that machine load hits both alike. The process keeps the memory it
+frees, as a splitter command does (``splitter.memory``), for the floor as for the
+work. The table gives the medians, their ratio and the process's peak resident
+memory (os.wait4). A stage's slope is fitted to log(time) against log(size)
 over its sizes: about 1 for linear work, 1.1 for n log n; above 1.15 is flagged.
 
 Floors (the least the work can cost; each stated beside its row):
@@ -243,6 +245,9 @@ def _prepare(stage: str, n: int, tmp: Path):
 
 
 def _child(stage: str, n: int, repeat: int) -> None:
+    from splitter.memory import keep_freed_memory
+
+    keep_freed_memory()  # as every splitter command does; the floor runs in the same process
     tmp = Path(tempfile.mkdtemp(prefix=f"bench-{stage}-"))
     try:
         work, floor, extra = _prepare(stage, n, tmp)
