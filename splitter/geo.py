@@ -336,11 +336,13 @@ class NeighbourIndex:
         self.workers = threads() if workers is None else int(workers)
         # Midpoint splits (balanced_tree=False) build in two thirds of the time of median
         # splits (which scipy's cKDTree documents as more compact, slower to build); on
-        # clustered records the queries measured as fast.
+        # clustered records the queries measured as fast. Leaves of 32 points instead of 16:
+        # the 3-nearest queries measured 6-13 % faster (2e5 records, tests/benchmarks).
+        # Neither changes an answer: ties are settled by index, not by the tree's layout.
         if reference.geographic:
-            self._tree = cKDTree(_unit_xyz(reference), balanced_tree=False)
+            self._tree = cKDTree(_unit_xyz(reference), leafsize=32, balanced_tree=False)
         else:
-            self._tree = cKDTree(np.column_stack([reference.x, reference.y]), balanced_tree=False)
+            self._tree = cKDTree(np.column_stack([reference.x, reference.y]), leafsize=32, balanced_tree=False)
             self._factor = _unit_factor_km(reference.crs)
 
     def nearest(self, query: Points) -> tuple[np.ndarray, np.ndarray]:

@@ -59,7 +59,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from splitter.dependence.distance import DistanceDiagnostics, _float, _num, check_folds, distance_diagnostics
+from splitter.dependence.distance import DistanceDiagnostics, _float, _num, check_folds, distance_searches
 from splitter.dependence.environment import (ComponentSpace, CovariateRanges, covariate_ranges, mess,
                                              schoener_d_resplit)
 from splitter.dependence.resplit import (
@@ -72,7 +72,7 @@ from splitter.dependence.resplit import (
 )
 from splitter.errors import InputError
 from splitter.geo import Points
-from splitter.threads import side_by_side
+from splitter.threads import side_by_side, threads
 
 #: Rule (i): share of evaluation records within the range above which a fold is dependent.
 DISTANCE_SHARE = 0.5
@@ -397,16 +397,15 @@ def _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, nu
     ranges, and the shared survey-method share and its re-splits (NaN/None where not measured).
 
     ``d_space`` is the fitted reference, None for each fold's pooled records, or False when
-    the reference cannot be standardised (D stays NaN).
+    the reference cannot be standardised (D stays NaN). Returns ``(tasks, collect)``: one
+    callable per fold (numpy releases the GIL; each fold's re-splits have their own seed)
+    and a function that turns their results, in order, into the per-fold columns.
     """
     k = len(cal)
-    d_stat = np.full(k, np.nan)
-    outside = np.full(k, np.nan)
-    shared = np.full(k, np.nan)
-    d_null: list = [None] * k
-    m_null: list = [None] * k
-    ranges = []
-    for i in range(k):  # loop over folds (a handful), records and re-splits are vectorised inside
+
+    def one_fold(i):
+        d_stat = outside = shared = np.nan
+        d_null = m_null = ranges = None
         n_ev, n_cal = ev[i].size, cal[i].size
         enough = n_ev >= min_evaluation and n_cal > 0
         pool = np.concatenate([cal[i], ev[i]])
@@ -414,12 +413,12 @@ def _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, nu
         is_ev[n_cal:] = True
         if env_m is not None:
             a, b = env_m[cal[i]], env_m[ev[i]]
-            ranges.append(covariate_ranges(a, b, env_names) if n_cal and n_ev else None)
+            ranges = covariate_ranges(a, b, env_names) if n_cal and n_ev else None
             if enough and d_space is not False:
                 try:
-                    d_null[i] = schoener_d_resplit(env_m[pool], is_ev, reference=d_space,
-                                                   null_splits=null_splits, seed=[seed, i, 0])
-                    d_stat[i] = d_null[i].statistic
+                    d_null = schoener_d_resplit(env_m[pool], is_ev, reference=d_space,
+                                                null_splits=null_splits, seed=[seed, i, 0])
+                    d_stat = d_null.statistic
                 except InputError:
                     pass  # too few complete records or no variation: D stays NaN
                 a_ok = a[np.isfinite(a).all(axis=1)]
@@ -427,14 +426,19 @@ def _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, nu
                     m = mess(a_ok, b)
                     m = m[np.isfinite(m)]
                     if m.size:
-                        outside[i] = float(np.mean(m < 0))
-        else:
-            ranges.append(None)
+                        outside = float(np.mean(m < 0))
         if codes is not None:
-            shared[i] = _shared_share(codes, cal[i], ev[i])
-            if enough and np.isfinite(shared[i]):
-                m_null[i] = shared_group_resplit(codes[pool], is_ev, null_splits=null_splits, seed=[seed, i, 1])
-    return d_stat, outside, shared, d_null, m_null, ranges
+            shared = _shared_share(codes, cal[i], ev[i])
+            if enough and np.isfinite(shared):
+                m_null = shared_group_resplit(codes[pool], is_ev, null_splits=null_splits, seed=[seed, i, 1])
+        return d_stat, outside, shared, d_null, m_null, ranges
+
+    def collect(per_fold):
+        d_stat, outside, shared, d_null, m_null, ranges = (list(c) for c in zip(*per_fold)) if k else ([],) * 6
+        return (np.array(d_stat, dtype=float), np.array(outside, dtype=float), np.array(shared, dtype=float),
+                d_null, m_null, ranges)
+
+    return [lambda i=i: one_fold(i) for i in range(k)], collect
 
 
 def audit_split(
@@ -531,24 +535,23 @@ def audit_split(
                 )
     codes = _group_codes(groups, n) if groups is not None else None
 
-    def distances():
-        return distance_diagnostics(points, cal, ev, range_km=range_km, prediction_points=prediction_points,
-                                    fold_labels=fold_labels)
-
-    def environment():
-        # Schoener's D standardises on the reference: fitted once for every fold that shares
-        # it, else (None) on each fold's own pooled records.
-        d_space = None
-        if env_m is not None and env_reference is not None:
-            try:
-                d_space = ComponentSpace.fit(env_reference)
-            except InputError:
-                d_space = False  # too few complete records or no variation: D stays NaN in every fold
-        return _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed)
-
-    # The distances (tree searches, geodesics) and the environmental measures (numpy on the
-    # covariates) share nothing: with more than one thread they run side by side.
-    dist, measures = side_by_side([distances, environment])
+    # Schoener's D standardises on the reference: fitted once for every fold that shares
+    # it, else (None) on each fold's own pooled records.
+    d_space = None
+    if env_m is not None and env_reference is not None:
+        try:
+            d_space = ComponentSpace.fit(env_reference)
+        except InputError:
+            d_space = False  # too few complete records or no variation: D stays NaN in every fold
+    searches, assemble = distance_searches(points, cal, ev, range_km=range_km, prediction_points=prediction_points,
+                                           fold_labels=fold_labels)
+    measures, collect = _fold_measures(cal, ev, env_m, env_names, d_space, codes, min_evaluation, null_splits, seed)
+    # The distance searches (trees, geodesics) and each fold's environmental measures (numpy
+    # on the covariates) share nothing: one pool of one thread per core takes them, largest
+    # first, each search on one thread (three threads on two cores cost a fifth more CPU).
+    one = 1 if threads() > 1 else None
+    done = side_by_side([*(lambda f=f: f(one) for f in searches), *measures])
+    dist, measures = assemble(done[: len(searches)]), collect(done[len(searches):])
     d_stat, outside, shared, d_null, m_null, ranges = measures
 
     verdicts, outcomes, notes = [], [], []

@@ -244,6 +244,21 @@ def distance_diagnostics(
     >>> float(dd.share_within_range[0])
     0.0
     """
+    searches, assemble = distance_searches(points, calibration, evaluation, range_km, prediction_points, fold_labels)
+    outer = min(threads(), len(searches))
+    return assemble(side_by_side([lambda f=f: f(1 if outer > 1 else None) for f in searches], outer))
+
+
+def distance_searches(points: Points, calibration, evaluation, range_km: float | None = None,
+                      prediction_points: Points | None = None, fold_labels=None):
+    """The independent searches behind :func:`distance_diagnostics`, for a caller that runs
+    them beside other work on the same threads.
+
+    Returns ``(searches, assemble)``: callables taking the threads each may use (None =
+    all), the largest first (the record-to-record part, then one per fold; tree building,
+    queries and geodesics all release the GIL), and a function that turns their results,
+    in that order, into the :class:`DistanceDiagnostics`. Inputs are checked here.
+    """
     if not isinstance(points, Points):
         raise InputError("points must be a splitter.geo.Points object.")
     n = len(points)
@@ -271,25 +286,23 @@ def distance_diagnostics(
             raise InputError("No prediction location has usable coordinates.")
         query = prediction_points.take(np.flatnonzero(ok))
 
-    # The record-to-record part and each fold are independent searches (tree building,
-    # queries and geodesics all release the GIL): they run side by side, one thread each.
-    outer = min(threads(), k + 1)
-    inner = 1 if outer > 1 else None
-
-    def records_part():
+    def records_part(workers):
         if not kept.size:
             return None, np.zeros(0)
-        index = NeighbourIndex(points.take(kept), workers=inner)
+        index = NeighbourIndex(points.take(kept), workers=workers)
         return (None if query is None else index.nearest(query)[0]), index.nearest_other()[0]
 
-    def fold_part(i):
+    def fold_part(i, workers):
         if ev[i].size == 0 or cal[i].size == 0:
             return np.zeros(0)
-        return NeighbourIndex(points.take(cal[i]), workers=inner).nearest(points.take(ev[i]))[0]
+        return NeighbourIndex(points.take(cal[i]), workers=workers).nearest(points.take(ev[i]))[0]
 
-    # The largest search first.
-    (d_pred, d_rec), *raw = side_by_side([records_part, *(lambda i=i: fold_part(i) for i in range(k))], outer)
+    searches = [records_part, *(lambda workers, i=i: fold_part(i, workers) for i in range(k))]
+    return searches, lambda results: _assembled(results, cal, ev, k, fold_labels, range_km)
 
+
+def _assembled(results, cal, ev, k, fold_labels, range_km) -> DistanceDiagnostics:
+    (d_pred, d_rec), *raw = results
     n_ev = np.array([e.size for e in ev], dtype=np.int64)
     n_cal = np.array([c.size for c in cal], dtype=np.int64)
     med = np.full(k, np.nan)
