@@ -542,11 +542,12 @@ def _quiet_cluster(distributed, n_workers: int):
             # per run on 2 workers, 30 runs): the statistical profiler samples every task's stack each 10 ms
             # (no one reads a batch's profile), and MALLOC_TRIM_THRESHOLD_=65536 hands freed
             # memory back to the system at once, so numpy's large temporaries are mapped afresh
-            # each time (None unsets it: the C library's own threshold; a process that has
-            # already started a Dask cluster carries Dask's value in its environment, and its
-            # workers inherit that).
+            # each time. The workers keep what they free instead, as a splitter command does
+            # (splitter.memory; set before they start, when the C library reads it).
+            from splitter.memory import ENVIRON
+
             quiet = {"distributed.worker.profile.enabled": False,
-                     "distributed.nanny.pre-spawn-environ.MALLOC_TRIM_THRESHOLD_": None}
+                     **{f"distributed.nanny.pre-spawn-environ.{k}": v for k, v in ENVIRON.items()}}
             with dask.config.set(quiet):
                 return distributed.LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True,
                                                 dashboard_address=None, silence_logs=logging.CRITICAL,

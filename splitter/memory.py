@@ -28,6 +28,10 @@ _HEAP_BLOCK_LIMIT = 32 << 20
 # top of the heap before any is returned).
 _NEVER_TRIM = 2**31 - 1
 
+#: The same settings for a process about to start, as environment variables: glibc reads
+#: them when the process starts (``splitter batch`` gives them to its local workers).
+ENVIRON = {"MALLOC_MMAP_THRESHOLD_": str(_HEAP_BLOCK_LIMIT), "MALLOC_TRIM_THRESHOLD_": str(_NEVER_TRIM)}
+
 
 def keep_freed_memory() -> bool:
     """Ask the C allocator to keep freed memory for reuse; whether it agreed.

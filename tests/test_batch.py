@@ -111,12 +111,7 @@ def cluster():
 
     from splitter.batch import _quiet_cluster
 
-    with pytest.MonkeyPatch.context() as mp:
-        # An earlier Dask cluster in this test process may have left Dask's value in its
-        # environment (distributed sets it in the parent before spawning workers, and children
-        # inherit it); `splitter batch` starts from a fresh process, as this cluster does without it.
-        mp.delenv("MALLOC_TRIM_THRESHOLD_", raising=False)
-        c = _quiet_cluster(distributed, 2)
+    c = _quiet_cluster(distributed, 2)
     yield c.scheduler_address
     c.close()
 
@@ -125,19 +120,24 @@ def _worker_settings():
     import dask
 
     return {"profile": dask.config.get("distributed.worker.profile.enabled"),
-            "trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "threads": os.environ.get("SPLITTER_THREADS")}
+            "trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "mmap": os.environ.get("MALLOC_MMAP_THRESHOLD_"),
+            "threads": os.environ.get("SPLITTER_THREADS")}
 
 
 def test_the_local_cluster_workers_run_single_threaded_without_the_profiler(cluster):
     """What a batch's own cluster sets in its workers (splitter.batch._quiet_cluster): one
-    thread in the kernels, Dask's statistical profiler off and the C library's own memory
-    trimming (Dask's default MALLOC_TRIM_THRESHOLD_ unset). The parent's config is untouched."""
+    thread in the kernels, Dask's statistical profiler off and freed memory kept for the next
+    run, as a splitter command keeps it (splitter.memory; Dask's default trims at 64 KB).
+    The parent's config is untouched."""
     import dask
     import distributed
 
+    from splitter.memory import ENVIRON
+
     with distributed.Client(cluster, set_as_default=False) as c:
         settings = list(c.run(_worker_settings).values())
-    assert settings == [{"profile": False, "trim": None, "threads": "1"}] * 2
+    keep = {"trim": ENVIRON["MALLOC_TRIM_THRESHOLD_"], "mmap": ENVIRON["MALLOC_MMAP_THRESHOLD_"]}
+    assert settings == [{"profile": False, **keep, "threads": "1"}] * 2
     assert dask.config.get("distributed.worker.profile.enabled") is True  # reference: Dask's default
 
 

@@ -472,8 +472,10 @@ def main(argv) -> int:
             f"{machine['cores']} cores, {machine['memory_gb']} GB, Python {machine['python']}, load average "
             f"{machine['load_average'][0]:.2f} at the end; memory the process had never held cost "
             f"{touch['first_touch']:.2f} us per 4 KB page on first touch, {touch['touched_again']:.2f} when "
-            "touched again (a stage that needs hundreds of MB of it pays the difference). Each row is the median of alternating runs of the work "
-            "and its floor in one process; ratio = work / floor (batch: floor / work, the speed-up of 2 workers); "
+            "touched again. Each row is the median of alternating runs of the work and its floor in one process, "
+            "after one untimed run of each; the process keeps the memory it frees, as splitter commands do "
+            "(`splitter.memory`), so neither side pays that first touch again. Ratio = work / floor (batch: "
+            "floor / work, the speed-up of 2 workers); "
             "status is judged at a stage's largest size; slope = fitted exponent of time against size "
             f"(flagged above {SLOPE_LIMIT}).\n\n"
             + (f"Start-up (7 alternating runs each):\n\n{startup_table}\n\n" if startup else "")

@@ -66,3 +66,15 @@ def test_weights_expanded_chunk_by_chunk_equal_the_whole_block(chunk):
     assert len(pieces) == -(-size // chunk)
     np.testing.assert_array_equal(np.concatenate(pieces), np.repeat(*runs))
     assert all(p is None for p in _expand_chunks(None, size, chunk))
+
+
+def test_keys_in_reused_work_arrays_equal_a_binary_search():
+    # The summary keeps one set of work arrays per thread and reuses it block after block;
+    # a shorter block must not see a longer one's leftovers, a longer one gets its own arrays.
+    rng = np.random.default_rng(9)
+    u = np.unique(rng.random(5000))
+    keys = _CellKeys(u)
+    scratch = keys.scratch(1000)
+    for size in (1000, 7, 1000, 2500, 3):
+        cells = _cells_around(u, rng, size * 4)[:size]
+        np.testing.assert_array_equal(keys(cells, scratch).copy(), _reference(u, cells))
