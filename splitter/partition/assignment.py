@@ -118,13 +118,15 @@ class FoldAssignment:
         table = source.reset_index(drop=True).copy()
         if "geometry" in table.columns:
             table = table.drop(columns="geometry")
+        # Compared and assigned as Series (both indexed 0..n-1): string columns stay in pandas'
+        # own string storage instead of a round trip through a million Python objects each.
         for c in added.columns:
             if c in table.columns:
-                same = table[c].astype(str).str.strip().to_numpy() == added[c].astype(str).replace("<NA>", "").to_numpy()
+                same = table[c].astype(str).str.strip() == added[c].astype(str).replace("<NA>", "")
                 if not same.all():
                     # An input column that clashes with ours is kept under another name.
                     table = table.rename(columns={c: f"{c}_input"})
-            table[c] = added[c].to_numpy() if c != "fold" else added[c]
+            table[c] = added[c]
         return table
 
     def to_geodataframe(self):
