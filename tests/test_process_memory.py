@@ -7,6 +7,7 @@ kept them. Linux with glibc only (the only place the setting applies).
 
 from __future__ import annotations
 
+import os
 import subprocess
 import sys
 
@@ -30,7 +31,11 @@ print(applied, (resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before) / p
 
 
 def _fresh_share(mode: str) -> tuple[str, float]:
-    out = subprocess.run([sys.executable, "-c", _SCRIPT, mode], capture_output=True, text=True, check=True)
+    # Without the allocator's environment settings: a Dask cluster started earlier in this
+    # test process sets them here for its workers (splitter.memory.ENVIRON), and a child
+    # would inherit them.
+    env = {k: v for k, v in os.environ.items() if not k.startswith("MALLOC_")}
+    out = subprocess.run([sys.executable, "-c", _SCRIPT, mode], capture_output=True, text=True, check=True, env=env)
     applied, share = out.stdout.split()
     return applied, float(share)
 
