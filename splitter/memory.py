@@ -5,7 +5,7 @@ fold's distances), freeing them in between. By default glibc's allocator hands l
 freed blocks straight back to the operating system, so the next fold asks for them
 again and touches every page afresh. On an ordinary machine that first touch costs
 about a tenth of a microsecond per 4 KB page; on virtual machines whose host takes
-freed memory back it has been measured at 11-19 us per page (the machine line of
+freed memory back it has been measured at 11-21 us per page (the machine line of
 ``docs/performance.md``), more than the work done on the page. So the command line
 asks the allocator to keep what it freed (up to 32 MB per block in the process's own
 heap, which is never trimmed): the process then stays at its high-water mark until it

@@ -250,15 +250,12 @@ class _ValueTable:
 def _table(surface: SuitabilitySurface, values: np.ndarray, read: np.ndarray | None = None) -> _ValueTable:
     """Shares for ascending distinct ``values``; those where ``read`` is True (all when None)
     must be among the surface's query values."""
+    read = np.ones(values.size, dtype=bool) if read is None else read
+    pos = surface._positions(values[read], "presence score")
     total = surface.total_weight
-    below_all = np.cumsum(surface.slot_weights)[0:-1:2]
-    if read is None:
-        pos = surface._positions(values, "presence score")
-        below, tied = below_all[pos] / total, surface.slot_weights[1::2][pos] / total
-    else:
-        pos = surface._positions(values[read], "presence score")
-        below, tied = np.full(values.size, np.nan), np.full(values.size, np.nan)
-        below[read], tied[read] = below_all[pos] / total, surface.slot_weights[1::2][pos] / total
+    below, tied = np.full(values.size, np.nan), np.full(values.size, np.nan)
+    below[read] = np.cumsum(surface.slot_weights)[0:-1:2][pos] / total
+    tied[read] = surface.slot_weights[1::2][pos] / total
     return _ValueTable(values=values, below=below, tied=tied, positive=values >= surface.live_min)
 
 
