@@ -119,16 +119,20 @@ def cluster():
 def _worker_settings():
     import dask
 
+    from splitter.batch import _RARE_CHECKS
+
     return {"profile": dask.config.get("distributed.worker.profile.enabled"),
+            "checks": {k: dask.config.get(k) for k in _RARE_CHECKS},
             "trim": os.environ.get("MALLOC_TRIM_THRESHOLD_"), "mmap": os.environ.get("MALLOC_MMAP_THRESHOLD_"),
             "threads": os.environ.get("SPLITTER_THREADS")}
 
 
 def test_the_local_cluster_workers_run_single_threaded_without_the_profiler(cluster):
     """What a batch's own cluster sets in its workers (splitter.batch._quiet_cluster): one
-    thread in the kernels, Dask's statistical profiler off and freed memory kept for the next
-    run, as a splitter command keeps it (splitter.memory; Dask's default trims at 64 KB).
-    The parent's config is untouched."""
+    thread in the kernels, Dask's statistical profiler off, its housekeeping checks once a
+    second or less (20 ms and 100 ms by default) and freed memory kept for the next run, as
+    a splitter command keeps it (splitter.memory; Dask's default trims at 64 KB). The
+    parent's config is untouched."""
     import dask
     import distributed
 
@@ -137,8 +141,13 @@ def test_the_local_cluster_workers_run_single_threaded_without_the_profiler(clus
     with distributed.Client(cluster, set_as_default=False) as c:
         settings = list(c.run(_worker_settings).values())
     keep = {"trim": ENVIRON["MALLOC_TRIM_THRESHOLD_"], "mmap": ENVIRON["MALLOC_MMAP_THRESHOLD_"]}
-    assert settings == [{"profile": False, **keep, "threads": "1"}] * 2
-    assert dask.config.get("distributed.worker.profile.enabled") is True  # reference: Dask's default
+    checks = {"distributed.admin.tick.interval": "1s", "distributed.worker.memory.monitor-interval": "1s",
+              "distributed.admin.system-monitor.interval": "5s", "distributed.deploy.cluster-repr-interval": "10s"}
+    assert settings == [{"profile": False, "checks": checks, **keep, "threads": "1"}] * 2
+    # reference: Dask's defaults (distributed.yaml), left as they were in this process
+    assert dask.config.get("distributed.worker.profile.enabled") is True
+    assert dask.config.get("distributed.admin.tick.interval") == "20ms"
+    assert dask.config.get("distributed.worker.memory.monitor-interval") == "100ms"
 
 
 @pytest.fixture(scope="module")
