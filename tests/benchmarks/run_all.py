@@ -1,7 +1,7 @@
 """Every stage beside its floor, measured in the same run: one table, JSON and a figure.
 
 Usage:
-    python tests/benchmarks/run_all.py            # all stages, full sizes (about 15 min, 2 cores)
+    python tests/benchmarks/run_all.py            # all stages, full sizes (about 21 min, 2 cores)
     python tests/benchmarks/run_all.py --quick    # smaller sizes, for a check (about 2 min)
     python tests/benchmarks/run_all.py design partial_roc --repeat 5   # only these; the other
                                        # rows of docs/performance.json are kept from the last run
@@ -477,7 +477,8 @@ def main(argv) -> int:
             f"{machine['load_average'][0]:.2f} at the end; memory the process had never held cost "
             f"{touch['first_touch']:.2f} us per 4 KB page on first touch, {touch['touched_again']:.2f} when "
             "touched again. Each row is the median of alternating runs of the work and its floor in one process, "
-            "after one untimed run of each; the process keeps the memory it frees, as splitter commands do "
+            "after one untimed run of each (batch: of the floor's first 20 runs only, as every batch starts its own "
+            "cluster; 200 runs: two pairs); the process keeps the memory it frees, as splitter commands do "
             "(`splitter.memory`), so neither side pays that first touch again. Ratio = work / floor (batch: "
             "floor / work, the speed-up of 2 workers); "
             "status is judged at a stage's largest size; slope = fitted exponent of time against size "
