@@ -7,11 +7,11 @@ Usage:
                                        # rows of docs/performance.json are kept from the last run
 
 Each (stage, size) runs in a fresh process that times the floor and the work
-alternately, ``--repeat`` times each (batch of 200 runs: twice) after one untimed run of
-each (batch: of the floor's first 20 runs only; every batch starts its own cluster, so
-there is nothing of the work's to warm), so that machine load hits both alike. The process keeps the memory it
-frees, as a splitter command does (``splitter.memory``), for the floor as for the
-work. The table gives the medians, their ratio and the process's peak resident
+alternately, ``--repeat`` times each (batch of 200 runs: twice) after one untimed run
+of each (batch: of the floor's first 20 runs only; every batch starts its own cluster,
+so there is nothing of the work's to warm), so that machine load hits both alike. The
+process keeps the memory it frees, as a splitter command does (``splitter.memory``),
+for the floor as for the work. The table gives the medians, their ratio and the process's peak resident
 memory (os.wait4). A stage's slope is fitted to log(time) against log(size)
 over its sizes: about 1 for linear work, 1.1 for n log n; above 1.15 is flagged.
 
