@@ -328,7 +328,8 @@ def _steps(spec: RunSpec, work: Path, final: Path, check) -> tuple:
 
     job = run_job(spec.records, spec.options, work, final_dir=final, check=check)
     a = job.assignment
-    summary = {"method": a.method, "folds": int(a.n_folds),
+    # The method asked for: the fold table read back for the audit only knows it was given one.
+    summary = {"method": spec.options.method, "folds": int(a.n_folds),
                "n_presence": int(np.sum((a.fold >= 0) & (a.kind == "presence"))),
                "audit_verdict": job.audit.verdict if job.audit is not None else None,
                "folds_significant": None, "folds_evaluated": None}

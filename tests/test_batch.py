@@ -184,6 +184,9 @@ def test_every_run_done_and_the_broken_one_reported(first):
         assert (d / "folds.gaps.csv").is_file() == bool(spec.get("buffer"))
         row = table[table.run == run].iloc[0]
         folds = pd.read_csv(d / "folds.csv", dtype=str, keep_default_na=False)
+        # consistency: the method batch.csv names is the one the manifest asked for and the run's
+        # design sidecar records (the fold table read back for the audit names none of its own)
+        assert row.method == spec["method"] == json.loads((d / "folds.design.json").read_text())["method"]
         # consistency: batch.csv against the run's own fold table (DESIGN §3.2: kept rows have a fold)
         assert int(row.n_presence) == int(((folds.fold != "") & (folds.kind == "presence")).sum())
         src = pd.read_csv(first["base"] / "inputs" / spec["records"], dtype=str)
