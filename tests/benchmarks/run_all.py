@@ -435,7 +435,7 @@ def main(argv) -> int:
     for stage in wanted:
         sizes = STAGES[stage][1] if args.quick else STAGES[stage][0]
         for n in sizes:
-            # 200 runs take minutes each way; two pairs, as one pair's ratio moved by 0.1 between runs.
+            # 200 runs take minutes each way; two pairs, as one pair's ratio moved by up to 0.2 between runs.
             repeat = min(2, args.repeat) if stage == "batch" and n > 20 else args.repeat
             print(f"{stage} at {n:,} ...", flush=True)
             rows.append(_measure(stage, n, repeat))
