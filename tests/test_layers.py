@@ -182,3 +182,14 @@ def test_lazy_names_are_the_real_objects():
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
                          cwd=PACKAGE.parent)
     assert out.stdout.strip() == "True True True True []", out.stdout + out.stderr
+
+
+def test_a_blocks_design_loads_no_scikit_learn():
+    """Only environmental clusters need scikit-learn (k-means); importing it costs a
+    design about 0.6 s, so the partition package and a blocks design leave it unloaded."""
+    code = ("import sys; from splitter.workflow.design import design; "
+            "a = design('demo_data/records_with_background.csv', method='blocks', block_size=150, folds=4, seed=1); "
+            "print(a.n_folds, 'sklearn' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                         cwd=PACKAGE.parent)
+    assert out.stdout.strip() == "4 False", out.stdout + out.stderr

@@ -6,7 +6,6 @@
 from __future__ import annotations
 
 import numpy as np
-from sklearn.cluster import KMeans
 
 from splitter.errors import InputError
 from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count
@@ -32,6 +31,8 @@ def cluster_folds(env: np.ndarray, is_presence: np.ndarray, k: int, seed: int = 
     z = (env - mu) / sd
     if pres.sum() < k:
         raise InputError(f"folds={k}: only {int(pres.sum())} presences with covariate values; use fewer folds.")
+    from sklearn.cluster import KMeans  # here: scikit-learn takes about 0.5 s to import, and only this method needs it
+
     km = KMeans(n_clusters=k, n_init=10, random_state=seed).fit(z[pres])
     label = km.predict(z)
     counts = np.bincount(label[pres], minlength=k)
