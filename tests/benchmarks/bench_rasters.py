@@ -38,7 +38,7 @@ def main(rows=2500, cols=4000):
         arr = rng.random((rows, cols), dtype=np.float32)
         arr[rng.random((rows, cols)) < 0.1] = np.nan
         transform = Affine(40 / cols, 0, 0.0, 0, -25 / rows, 55.0)
-        timed(f"write_geotiff {rows}x{cols}", lambda: write_geotiff(path, arr, transform, "EPSG:4326"))
+        timed(f"write_geotiff {rows}x{cols}", lambda a=arr: write_geotiff(path, a, transform, "EPSG:4326"))
         del arr
         print(f"file size {path.stat().st_size / 1e6:.0f} MB")
         base = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024

@@ -133,11 +133,12 @@ def _raster(path: Path, cells: int, seed: int = 0) -> tuple[np.ndarray, np.ndarr
 
 def _prepare(stage: str, n: int, tmp: Path):
     """Inputs and the (work, floor) pair of callables for one size; nothing here is timed."""
+    from scipy.spatial import cKDTree
+
+    from splitter.workflow.job import JobOptions, design_step
+
     if stage == "design":
         import pandas as pd
-        from scipy.spatial import cKDTree
-
-        from splitter.workflow.job import JobOptions, design_step
 
         src = _records_csv(tmp / "records.csv", n)
         options = JobOptions(method="blocks", folds=5, block_size="50", buffer=10.0, seed=1)
@@ -153,10 +154,8 @@ def _prepare(stage: str, n: int, tmp: Path):
 
         return work, floor, {}
     if stage == "audit":
-        from scipy.spatial import cKDTree
-
         from splitter.workflow.audit import audit
-        from splitter.workflow.job import JobOptions, design_step, read_step
+        from splitter.workflow.job import read_step
 
         src = _records_csv(tmp / "records.csv", n)
         options = JobOptions(method="blocks", folds=5, block_size="50", seed=1)

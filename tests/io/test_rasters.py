@@ -339,7 +339,7 @@ def test_no_valid_cells_is_input_error(geo):
 
 
 def test_sample_cells_values_and_centres(geo, laea):
-    (gpath, garr), (ppath, _) = geo, laea
+    (gpath, _), (ppath, _) = geo, laea
     pts, values = sample_cells([gpath, ppath], 300, seed=2)
     assert values.shape == (300, 2) and np.isfinite(values).all()
     # centres of distinct cells of the first raster
