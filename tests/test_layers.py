@@ -156,11 +156,16 @@ def test_only_the_figure_modules_draw():
             assert name.startswith("splitter.report."), f"{name} imports {drawn}"
 
 
+def _python(code: str) -> subprocess.CompletedProcess:
+    """``code`` in a fresh interpreter (what a first import loads), from the project root."""
+    return subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
+                          cwd=PACKAGE.parent)
+
+
 def test_import_splitter_loads_no_heavy_library():
     code = ("import splitter, sys; "
             "print([m for m in ('matplotlib','dask','typer','rich','geopandas','rasterio') if m in sys.modules])")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                         cwd=PACKAGE.parent)
+    out = _python(code)
     assert out.stdout.strip() == "[]", out.stdout + out.stderr
 
 
@@ -168,8 +173,7 @@ def test_the_cli_module_loads_only_typer():
     code = ("import splitter.cli, sys; "
             "print([m for m in ('matplotlib','dask','distributed','rich','pandas','numpy','geopandas',"
             "'rasterio','pyproj','scipy','sklearn','click') if m in sys.modules])")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                         cwd=PACKAGE.parent)
+    out = _python(code)
     assert out.stdout.strip() == "[]", out.stdout + out.stderr
 
 
@@ -179,8 +183,7 @@ def test_lazy_names_are_the_real_objects():
             "from splitter.workflow.audit import audit; "
             "print(splitter.evaluate is evaluate, splitter.design is design, splitter.audit is audit, "
             "callable(b.binomial_test), sorted(set(splitter.__all__) - set(dir(splitter))))")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                         cwd=PACKAGE.parent)
+    out = _python(code)
     assert out.stdout.strip() == "True True True True []", out.stdout + out.stderr
 
 
@@ -190,6 +193,5 @@ def test_a_blocks_design_loads_no_scikit_learn():
     code = ("import sys; from splitter.workflow.design import design; "
             "a = design('demo_data/records_with_background.csv', method='blocks', block_size=150, folds=4, seed=1); "
             "print(a.n_folds, 'sklearn' in sys.modules)")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                         cwd=PACKAGE.parent)
+    out = _python(code)
     assert out.stdout.strip() == "4 False", out.stdout + out.stderr
