@@ -8,6 +8,7 @@ processes on loopback are tested once each. Records are invented here, seeded.
 from __future__ import annotations
 
 import hashlib
+import io
 import json
 import os
 import shutil
@@ -427,3 +428,35 @@ def test_command_prints_a_summary_and_exits_1_when_a_run_failed(first, cluster, 
         res = runner.invoke(app, ["batch", str(ins / "manifest.csv"), "--out", str(tmp_path / "new"),
                                   "--scheduler", "tcp://127.0.0.1:1"])
     assert res.exit_code == 2 and "cannot connect" in res.output, res.output
+
+
+def _row(run, status, method="blocks", audit="independent", significant=(3, 5), seconds=1.25):
+    row = {k: None for k in BATCH_COLUMNS}
+    row.update(run=run, status=status, method=method, folds=5, n_presence=150, audit_verdict=audit,
+               folds_significant=significant[0], folds_evaluated=significant[1], seconds=seconds)
+    return row
+
+
+def _printed(rows, width=80) -> list:
+    from rich.console import Console
+
+    from splitter.batch import BatchResult
+    from splitter.cli import batch_table
+
+    console = Console(width=width, record=True, file=io.StringIO())
+    console.print(batch_table(BatchResult(Path("out"), Path("out/batch.csv"), tuple(rows))))
+    return console.export_text().splitlines()
+
+
+def test_the_terminal_table_fits_80_columns_uncut():
+    """Runs named up to 10 characters: every column whole in an 80-column terminal (the
+    smallest common one). Longer names squeeze the other columns, never the run's name
+    or its status."""
+    lines = _printed([_row("species_00", "ok"), _row("species_01", "skipped", method="leave-one-out"),
+                      _row("species_02", "failed", audit="independent", significant=(10, 12), seconds=13.41)])
+    assert max(len(line.rstrip()) for line in lines) <= 80
+    assert not any("…" in line for line in lines), "\n".join(lines)
+    assert "significant" in lines[1] and "leave-one-out" in "\n".join(lines) and "10/12" in "\n".join(lines)
+    long = _printed([_row("a_rather_long_run_name_2024", "skipped"), _row("b", "ok")])
+    assert max(len(line.rstrip()) for line in long) <= 80
+    assert any(line.startswith("a_rather_long_run_name_2024  skipped") for line in long), "\n".join(long)
