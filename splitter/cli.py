@@ -427,7 +427,8 @@ def _fmt_p(p) -> str:
 def evaluation_table(result, title: str):
     from rich import box
 
-    t = _table(title, box=box.SIMPLE_HEAD, padding=(0, 1), pad_edge=False)
+    # Columns two apart, no outer edge: nine columns with "do not interpret" fit 80 characters.
+    t = _table(title, box=box.SIMPLE_HEAD, padding=(0, 1), pad_edge=False, collapse_padding=True, show_edge=False)
     for c in ("fold", "verdict", "p adj.", "binom p", "pROC p", "ratio", "null", "AUC", "TSS"):
         t.add_column(c, justify="left" if c in ("fold", "verdict") else "right", no_wrap=True)
     rows = [f.row for f in result.folds] + [result.summary.to_row()]

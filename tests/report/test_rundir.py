@@ -274,6 +274,26 @@ def test_terminal_and_appendix_show_the_same_p_values(run, tmp_path):
     assert len(shown) == len(run.evaluation.folds) + 1
 
 
+
+def test_the_terminal_evaluation_table_fits_80_columns_uncut(run):
+    """The per-fold table in an 80-column terminal (the smallest common one): every value
+    whole, the longest verdict ("do not interpret") included."""
+    import io
+
+    from rich.console import Console
+
+    from splitter.cli import evaluation_table
+
+    console = Console(width=80, record=True, file=io.StringIO())
+    for result in (run.evaluation, run.loo):
+        console.print(evaluation_table(result, "per-fold evaluation"))
+    lines = console.export_text().splitlines()
+    verdicts = {r[1] for result in (run.evaluation, run.loo) for r in _cells(evaluation_table(result, "t"))}
+    assert "do not interpret" in verdicts, verdicts  # the widest value is among them
+    assert max(len(line.rstrip()) for line in lines) <= 80
+    assert not any("…" in line for line in lines), "\n".join(lines)
+
+
 # --- bad result files ------------------------------------------------------------------------------
 
 def _truncate(path: Path):
