@@ -28,8 +28,6 @@ import argparse
 import hashlib
 import io
 import json
-import os
-import secrets
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -37,6 +35,7 @@ import numpy as np
 import pandas as pd
 
 from splitter.errors import InputError
+from splitter.io.atomic import atomic_write
 from splitter.synthetic import gaussian_field
 
 __all__ = [
@@ -490,21 +489,6 @@ measures the difference with one gradient-boosting model fitted under both split
 spatial signal was added to produce the effect: it comes from the survey footprints above.
 """
 
-def _atomic_write(path: Path, data: bytes) -> None:
-    """Write bytes to a temporary file beside ``path`` and rename it into place."""
-    tmp = path.parent / f".{path.name}.{os.getpid()}.{secrets.token_hex(4)}.tmp"
-    # os.open with mode 0o666 lets the umask decide the permissions, as for any new file.
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-
-
 def _geotiff_bytes(values: np.ndarray, transform: tuple, name: str, units: str) -> bytes:
     """Encode one band as a GeoTIFF in memory with a fixed profile (no timestamps)."""
     import rasterio
@@ -581,7 +565,8 @@ def make_demo_data(out_dir, seed: int = DEFAULT_SEED) -> DemoFiles:
     files, digests = {}, {}
     for name in sorted(blobs):
         path = out / name
-        _atomic_write(path, blobs[name])
+        with atomic_write(path, "wb") as f:
+            f.write(blobs[name])
         files[name] = path
         digests[name] = hashlib.sha256(blobs[name]).hexdigest()
     return DemoFiles(out_dir=out, files=files, sha256=digests)

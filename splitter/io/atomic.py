@@ -121,26 +121,23 @@ def atomic_write(path, mode: str = "w", encoding: str = "utf-8", newline: str | 
         raise ValueError(f"atomic_write mode must be 'w' or 'wb', not {mode!r}.")
     path = Path(path)
     temp = _temp_name(path)
-    # O_EXCL: never reuse someone else's file; 0o666 lets the umask set permissions
-    # as an ordinary open() would.
-    fd = os.open(temp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    handle = None
     try:
+        # Mode "x" (O_EXCL) never reuses someone else's file. The file is created inside
+        # this try: a stop (Ctrl-C, SIGTERM) can land the instant open() returns, before
+        # the file object is even named here, and must still remove it.
         if mode in _BINARY_MODES:
-            handle = os.fdopen(fd, "wb")
+            handle = open(temp, "xb")
         else:
-            handle = os.fdopen(fd, "w", encoding=encoding, newline=newline)
-    except BaseException:
-        os.close(fd)
-        _remove([temp])
-        raise
-    try:
+            handle = open(temp, "x", encoding=encoding, newline=newline)
         with handle:
             yield handle
             handle.flush()
             os.fsync(handle.fileno())
         os.replace(temp, path)
-    except BaseException:
-        _remove([temp])
+    except BaseException as e:
+        if not (handle is None and isinstance(e, FileExistsError)):  # not ours to remove
+            _remove([temp])
         raise
     _fsync_dir(path.parent)
 
