@@ -172,6 +172,9 @@ def guarded(fn):
         except FileNotFoundError as e:
             _fail(f"{e.filename}: no such file; check the path.")
         except KeyboardInterrupt:
+            from splitter.io.atomic import remove_unfinished
+
+            remove_unfinished()  # a stop can land where no writer's cleanup covers it yet
             _err().print("splitter: interrupted; no partial output was left behind.")
             raise typer.Exit(130)
         except (typer.Exit, typer.Abort):

@@ -24,10 +24,28 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import IO, Iterator
 
-__all__ = ["atomic_write", "atomic_path"]
+__all__ = ["atomic_write", "atomic_path", "remove_unfinished"]
 
 _TEXT_MODES = {"w", "wt"}
 _BINARY_MODES = {"wb"}
+
+
+# Temporary files of the writes now in progress. A stop (Ctrl-C, SIGTERM) is handled at
+# whatever bytecode runs next, which may lie where no cleanup block covers it yet (inside
+# a context manager's __enter__, after the file was created): the command line's stop
+# handler calls remove_unfinished() for whatever is still listed.
+_UNFINISHED: dict[Path, bool] = {}  # temporary file -> whether side files share its stem
+
+
+def remove_unfinished() -> None:
+    """Delete the temporary files of every write in progress (the stop handler's call)."""
+    for temp, with_side_files in list(_UNFINISHED.items()):
+        _discard(temp, with_side_files)
+
+
+def _discard(temp: Path, with_side_files: bool) -> None:
+    _remove(_companions(temp) if with_side_files else [temp])
+    _UNFINISHED.pop(temp, None)
 
 
 def _temp_name(path: Path) -> Path:
@@ -122,6 +140,7 @@ def atomic_write(path, mode: str = "w", encoding: str = "utf-8", newline: str | 
     path = Path(path)
     temp = _temp_name(path)
     handle = None
+    _UNFINISHED[temp] = False
     try:
         # Mode "x" (O_EXCL) never reuses someone else's file. The file is created inside
         # this try: a stop (Ctrl-C, SIGTERM) can land the instant open() returns, before
@@ -136,9 +155,12 @@ def atomic_write(path, mode: str = "w", encoding: str = "utf-8", newline: str | 
             os.fsync(handle.fileno())
         os.replace(temp, path)
     except BaseException as e:
-        if not (handle is None and isinstance(e, FileExistsError)):  # not ours to remove
-            _remove([temp])
+        if handle is None and isinstance(e, FileExistsError):  # not ours to remove
+            _UNFINISHED.pop(temp, None)
+        else:
+            _discard(temp, False)
         raise
+    _UNFINISHED.pop(temp, None)
     _fsync_dir(path.parent)
 
 
@@ -165,6 +187,8 @@ def atomic_path(path) -> Iterator[Path]:
     path = Path(path)
     temp = _temp_name(path)
     temp_stem, final_stem = _stem(temp), _stem(path)
+    # Without an extension there is no stem to share, so only the file itself.
+    _UNFINISHED[temp] = bool(path.suffix)
     try:
         yield temp
         if not temp.exists():
@@ -178,7 +202,7 @@ def atomic_path(path) -> Iterator[Path]:
                 os.replace(p, path.with_name(final_stem + p.name[len(temp_stem):]))
         os.replace(temp, path)
     except BaseException:
-        # Without an extension there is no stem to share, so only the file itself.
-        _remove(_companions(temp) if path.suffix else [temp])
+        _discard(temp, bool(path.suffix))
         raise
+    _UNFINISHED.pop(temp, None)
     _fsync_dir(path.parent)

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from contextlib import ExitStack
 from pathlib import Path
 
 import numpy as np
@@ -52,12 +53,17 @@ def to_json(obj, root=None) -> str:
     return json.dumps(portable(clean(obj), root), indent=2, sort_keys=True, allow_nan=False) + "\n"
 
 
-def write_table(frame: pd.DataFrame, path, points=None) -> Path:
-    """Write a table by extension (.csv, .gpkg, .parquet), atomically."""
-    path = Path(path)
+def _table_suffix(path: Path) -> str:
     suffix = path.suffix.lower()
     if suffix not in TABLE_SUFFIXES:
         raise InputError(f"--out {path}: use a .csv, .gpkg or .parquet file name.")
+    return suffix
+
+
+def write_table(frame: pd.DataFrame, path, points=None) -> Path:
+    """Write a table by extension (.csv, .gpkg, .parquet), atomically."""
+    path = Path(path)
+    suffix = _table_suffix(path)
     path.parent.mkdir(parents=True, exist_ok=True)
     if suffix == ".csv":
         with atomic_write(path, "w") as f:
@@ -165,12 +171,9 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
                 frame.insert(pos + off, name, [f"{v:.10g}" if np.isfinite(v) else "" for v in vals])
         # Read back from these columns (the sidecar's read_back says so).
         summary_xy = names
-    paths = {"folds": write_table(frame, out, pts)}
     gaps_path = companion(out, ".gaps.csv")
-    if (assignment.parameters.get("buffer_km", 0) or 0) > 0 or assignment.gap_rows.size:  # buffer or space-and-time gaps
-        with atomic_write(gaps_path, "w") as f:
-            assignment.gaps_frame().to_csv(f, index=False, lineterminator="\n")
-        paths["gaps"] = gaps_path
+    with_gaps = (assignment.parameters.get("buffer_km", 0) or 0) > 0 or assignment.gap_rows.size  # buffer or space-and-time gaps
+    paths = {"folds": out, **({"gaps": gaps_path} if with_gaps else {})}
     side = companion(out, ".design.json")
     summary = design_summary(assignment)
     if out.suffix.lower() == ".csv" and assignment.records is not None and assignment.records.x_column is None and pts is not None:
@@ -185,8 +188,18 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     summary["outputs"] = {k: Path(v).name for k, v in paths.items()}
     if command:
         summary["command"] = command
-    with atomic_write(side, "w") as f:
+    _table_suffix(out)
+    out.parent.mkdir(parents=True, exist_ok=True)
+    # All files are written before any takes its name (the stack renames the gaps file and
+    # the sidecar after the table): a stop mid-write leaves the whole set or none of it,
+    # never a new table beside an old sidecar.
+    with ExitStack() as stack:
+        if with_gaps:
+            f = stack.enter_context(atomic_write(gaps_path, "w"))
+            assignment.gaps_frame().to_csv(f, index=False, lineterminator="\n")
+        f = stack.enter_context(atomic_write(side, "w"))
         f.write(to_json(summary, root=out.parent))
+        write_table(frame, out, pts)
     paths["design"] = side
     return paths
 

@@ -152,3 +152,19 @@ def test_a_taken_temporary_name_is_never_removed(tmp_path, monkeypatch):
         with atomic_write(tmp_path / "folds.csv"):
             pass
     assert theirs.read_text() == "not ours"
+
+
+def test_the_stop_handler_removes_writes_left_open(tmp_path):
+    # A stop handled inside a context manager's __enter__, after the temporary file exists,
+    # leaves the writer suspended outside any cleanup block: remove_unfinished() (called by
+    # the command line's stop handler) deletes what is listed, and only that.
+    from splitter.io.atomic import remove_unfinished
+
+    (tmp_path / "keep.csv").write_text("x")
+    writer, named = atomic_write(tmp_path / "folds.csv"), atomic_path(tmp_path / "grid.shp")
+    writer.__enter__().write("half")
+    (named.__enter__().with_suffix(".dbf")).write_text("side file")
+    assert len(_listing(tmp_path)) == 3
+    remove_unfinished()
+    assert _listing(tmp_path) == ["keep.csv"]
+    remove_unfinished()  # nothing left to do, no error

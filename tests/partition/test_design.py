@@ -152,3 +152,35 @@ def test_refusals_are_input_errors():
         splitter.design(recs, method="random", folds=1)
     with pytest.raises(InputError, match="no calibration presences"):
         splitter.design(recs, method="blocks", folds=2, block_size=100, buffer=3000)
+
+
+@pytest.mark.parametrize("suffix", [".csv", ".gpkg"])
+@pytest.mark.parametrize("stop_in", ["write_table", "to_json"])
+def test_a_stop_while_writing_keeps_the_previous_set_whole(tmp_path, monkeypatch, suffix, stop_in):
+    # A design writes three files (table, gaps, sidecar). Stopped while the table or the
+    # sidecar is being written, the previous run's three files stay byte for byte, and no
+    # new one appears beside an old one (a new table beside an old sidecar misdescribes it).
+    from splitter.io import foldtable
+
+    path = write_records_csv(tmp_path / "r.csv")
+    out = tmp_path / "run" / f"folds{suffix}"
+    before = write_design(splitter.design(path, method="blocks", folds=5, block_size=40, buffer=10, seed=7), out)
+    assert set(before) == {"folds", "gaps", "design"}
+    kept = {k: p.read_bytes() for k, p in before.items()}
+    real = getattr(foldtable, stop_in)
+
+    def work_then_stop(*args, **kwargs):
+        if stop_in == "write_table":  # the real work, beside the output, then the stop
+            frame, path, *rest = args
+            real(frame, path.with_name("scratch" + path.suffix), *rest, **kwargs)
+        else:
+            real(*args, **kwargs)
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(foldtable, stop_in, work_then_stop)
+    again = splitter.design(path, method="blocks", folds=5, block_size=40, buffer=10, seed=8)
+    with pytest.raises(KeyboardInterrupt):
+        write_design(again, out)
+    assert {k: p.read_bytes() for k, p in before.items()} == kept
+    assert sorted(p.name for p in out.parent.iterdir() if not p.name.startswith("scratch")) == sorted(
+        p.name for p in before.values())
