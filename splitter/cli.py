@@ -154,6 +154,7 @@ def guarded(fn):
     def wrapper(*args, **kwargs):
         import signal
 
+        from splitter.io.journal import all_or_nothing
         from splitter.io.lock import output_lock
         from splitter.memory import keep_freed_memory
 
@@ -165,7 +166,10 @@ def guarded(fn):
             target = kwargs.get("out_dir") or kwargs.get("out_path")
             if target is None:
                 return fn(*args, **kwargs)
-            with output_lock(target, folder="out_dir" in kwargs):
+            # A run that stops (bad input found late, Ctrl-C, a bug) leaves its output as it
+            # was. A command's own typer.Exit is exit 1 of --fail-on: a verdict on complete
+            # outputs, kept.
+            with output_lock(target, folder="out_dir" in kwargs), all_or_nothing(keep_on=(typer.Exit,)):
                 return fn(*args, **kwargs)
         except InputError as e:
             _fail(as_flags(str(e)))  # library errors name parameters; here, options
@@ -175,7 +179,7 @@ def guarded(fn):
             from splitter.io.atomic import remove_unfinished
 
             remove_unfinished()  # a stop can land where no writer's cleanup covers it yet
-            _err().print("splitter: interrupted; no partial output was left behind.")
+            _err().print("splitter: interrupted; the output is as it was before this run.")
             raise typer.Exit(130)
         except (typer.Exit, typer.Abort):
             raise

@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from splitter.errors import InputError
+from splitter.io.journal import make_folder
 
 COVARIATES = ("temperature.tif", "moisture.tif", "canopy.tif")
 RECORDS = "records_with_background.csv"
@@ -81,7 +82,7 @@ def run_demo(out_dir="splitter-demo", *, seed: int = 1, replicates: int = 1000, 
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise InputError(f"{out}: exists and is not a folder; give another OUT_DIR.")
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
 
     def cmd(*parts):
         return _cmd(*parts, root=out)

@@ -36,6 +36,7 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_write
+from splitter.io.journal import make_folder
 from splitter.synthetic import gaussian_field
 
 __all__ = [
@@ -550,7 +551,7 @@ def make_demo_data(out_dir, seed: int = DEFAULT_SEED) -> DemoFiles:
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise InputError(f"{out} exists and is not a directory; give a directory for the demo data.")
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
 
     blobs = {}
     for name, values in land.rasters.items():

@@ -86,6 +86,7 @@ def test_random_split_is_dependent_and_blocks_beyond_the_range_are_not(tmp_path,
     assert doc["null_splits"] == 199
     assert [o["rule"] for o in doc["folds"][0]["outcomes"]] == ["distance", "collection method"]
     assert run("audit", tmp_path / "r.csv", "--range-from", demo_range, "--fail-on", "dependent", "--out", tmp_path / "ar2").exit_code == 1
+    assert (tmp_path / "ar2" / "audit.json").is_file()  # exit 1 is a verdict on a finished run: kept
     assert drawn_share(pixels(tmp_path / "ab" / "distance_ecdf.png")) > 0.02  # drawn, not blank
 
 

@@ -152,6 +152,9 @@ def test_evaluate_bad_and_awkward_input(demo_folds, tmp_path):
     noise = _niche_rasters(tmp_path / "noise", [1, 2, 3, 4], noise=5.0)
     res = run("evaluate", demo_folds, "--predictions", noise, "--replicates", 100, "--fail-on", "not-significant", "--out", tmp_path / "e5")
     assert res.exit_code == 1 and "do not interpret" in res.output
+    # exit 1 is a verdict on a finished run: its outputs are kept (a stopped run's are not)
+    assert {"evaluation.csv", "evaluation.json"} <= {p.name for p in (tmp_path / "e5").iterdir()}
+    assert not any((tmp_path / e).exists() for e in ("e1", "e2", "e4"))  # refused runs leave nothing
 
 
 def test_few_presences_and_nodata_records(tmp_path):

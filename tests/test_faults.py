@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import hashlib
 import os
+import shutil
 import signal
 import stat
 import subprocess
@@ -155,3 +156,40 @@ def test_nothing_is_written_outside_out_from_a_read_only_working_folder(tmp_path
     assert all(n.startswith("results/") for n in new), new  # only inside the output's folder
     assert {n: after[n] for n in before} == before  # nothing that existed was changed
     assert list(work.iterdir()) == []
+
+
+def _tree(folder: Path) -> dict:
+    # Every file and folder, hidden ones included, with its bytes (None for a folder).
+    return {p.relative_to(folder).as_posix(): (p.read_bytes() if p.is_file() else None)
+            for p in sorted(folder.rglob("*"))}
+
+
+@pytest.mark.slow
+def test_a_rerun_stopped_half_way_leaves_the_last_run_whole(demo_run, tmp_path):
+    # A demo folder is rerun with another seed and stopped once the rerun has put a
+    # finished file in place. Without splitter.io.journal the folder would then mix the
+    # new range with the old folds, evaluation and appendix.
+    out = tmp_path / "run"
+    shutil.copytree(demo_run, out)  # copies keep their old times
+    before, start = _tree(out), time.time_ns()
+
+    def replaced():
+        return any(p.stat().st_mtime_ns >= start for p in out.rglob("*")
+                   if p.is_file() and not p.name.startswith("."))
+
+    proc = subprocess.Popen([*SPLITTER, "demo", str(out), "--replicates", "100", "--seed", "2"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    deadline = time.monotonic() + 120
+    while time.monotonic() < deadline and proc.poll() is None:
+        if replaced():
+            break
+        time.sleep(0.005)
+    else:
+        pytest.fail(f"the rerun never replaced a file (exit {proc.returncode}): {proc.stderr.read()}")
+    proc.send_signal(signal.SIGTERM)
+    _, stderr = proc.communicate(timeout=120)
+    assert proc.returncode == 130, stderr
+    assert "interrupted" in stderr and "Traceback" not in stderr
+    after = _tree(out)
+    assert sorted(after) == sorted(before)  # no file added, none lost, no hidden copy left
+    assert [k for k in before if after[k] != before[k]] == []  # every byte as before

@@ -4,7 +4,8 @@ Every output of ``splitter`` goes through one of these two context managers, so 
 interrupted run (an error, Ctrl-C) never leaves a half-written file and never damages
 a file that was already there: the data go to a hidden temporary file in the same
 directory (same file system, so the final ``os.replace`` is atomic) and only a
-complete, fsync'ed file takes the target's name.
+complete, fsync'ed file takes the target's name. That a run's many files take effect
+together is :mod:`splitter.io.journal`'s part.
 
 Examples
 --------
@@ -23,6 +24,8 @@ import secrets
 from contextlib import contextmanager
 from pathlib import Path
 from typing import IO, Iterator
+
+from splitter.io.journal import before_put
 
 __all__ = ["atomic_write", "atomic_path", "remove_unfinished"]
 
@@ -74,6 +77,12 @@ def _companions(temp: Path) -> list[Path]:
 def _stem(path: Path) -> str:
     """File name without its last extension (``Path.stem``, spelled out for clarity)."""
     return path.name[: len(path.name) - len(path.suffix)]
+
+
+def _put(temp: Path, path: Path) -> None:
+    """The finished file takes its name (noted first when the run's outputs go together)."""
+    before_put(path)
+    os.replace(temp, path)
 
 
 def _fsync_file(path: Path) -> None:
@@ -153,7 +162,7 @@ def atomic_write(path, mode: str = "w", encoding: str = "utf-8", newline: str | 
             yield handle
             handle.flush()
             os.fsync(handle.fileno())
-        os.replace(temp, path)
+        _put(temp, path)
     except BaseException as e:
         if handle is None and isinstance(e, FileExistsError):  # not ours to remove
             _UNFINISHED.pop(temp, None)
@@ -199,8 +208,8 @@ def atomic_path(path) -> Iterator[Path]:
         # The main file is renamed last, so a reader never sees it without its side files.
         for p in written:
             if p != temp:
-                os.replace(p, path.with_name(final_stem + p.name[len(temp_stem):]))
-        os.replace(temp, path)
+                _put(p, path.with_name(final_stem + p.name[len(temp_stem):]))
+        _put(temp, path)
     except BaseException:
         _discard(temp, bool(path.suffix))
         raise

@@ -11,6 +11,7 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
+from splitter.io.journal import make_folder
 from splitter.io.paths import portable
 from splitter.io.records import Records, read_records
 from splitter.partition.assignment import FoldAssignment
@@ -64,7 +65,7 @@ def write_table(frame: pd.DataFrame, path, points=None) -> Path:
     """Write a table by extension (.csv, .gpkg, .parquet), atomically."""
     path = Path(path)
     suffix = _table_suffix(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    make_folder(path.parent)
     if suffix == ".csv":
         with atomic_write(path, "w") as f:
             frame.to_csv(f, index=False, lineterminator="\n")
@@ -189,7 +190,7 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
     if command:
         summary["command"] = command
     _table_suffix(out)
-    out.parent.mkdir(parents=True, exist_ok=True)
+    make_folder(out.parent)
     # All files are written before any takes its name (the stack renames the gaps file and
     # the sidecar after the table): a stop mid-write leaves the whole set or none of it,
     # never a new table beside an old sidecar.

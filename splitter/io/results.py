@@ -13,11 +13,12 @@ import pandas as pd
 
 from splitter.io.atomic import atomic_write
 from splitter.io.foldtable import to_json
+from splitter.io.journal import make_folder
 
 
 def write_csv(frame: pd.DataFrame, path) -> Path:
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    make_folder(path.parent)
     with atomic_write(path, "w") as f:
         frame.to_csv(f, index=False, lineterminator="\n")
     return path
@@ -25,7 +26,7 @@ def write_csv(frame: pd.DataFrame, path) -> Path:
 
 def write_json(obj, path) -> Path:
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
+    make_folder(path.parent)
     with atomic_write(path, "w") as f:
         f.write(to_json(obj))
     return path

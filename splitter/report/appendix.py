@@ -26,6 +26,7 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
+from splitter.io.journal import make_folder, remove
 from splitter.io.paths import portable_text
 from splitter.io.results import audit_frame, write_csv
 from splitter.report import paragraph as P
@@ -148,7 +149,7 @@ class _Writer:
             return None
         for s in (".png", ".svg"):
             dst = self.out / "figures" / f"{name}{s}"
-            dst.parent.mkdir(parents=True, exist_ok=True)
+            make_folder(dst.parent)
             with atomic_path(dst) as tmp:
                 shutil.copyfile(stem.with_suffix(s), tmp)
             self.figures.append(dst)
@@ -792,8 +793,8 @@ def _clean_stale(out: Path, keep: set) -> None:
     for sub, patterns in (("tables", ("*.csv",)), ("figures", ("*.png", "*.svg"))):
         for pat in patterns:
             for p in (out / sub).glob(pat):
-                if p.resolve() not in keep:
-                    p.unlink()
+                if p.resolve() not in keep and not p.name.startswith("."):  # hidden: a write in progress
+                    remove(p)
 
 
 def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> Appendix:
@@ -850,7 +851,7 @@ def build_appendix(run_dir, out_dir, *, generalise_km: float | None = None) -> A
     out = Path(out_dir)
     run = load_run(run_dir)
     _check_out_dir(run, out)
-    out.mkdir(parents=True, exist_ok=True)
+    make_folder(out)
     doc, w = _build(run, out, generalise_km)
     md = out / "appendix.md"
     html_path = out / "appendix.html"

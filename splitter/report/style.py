@@ -48,11 +48,12 @@ def save(fig: Figure, path_stem, formats=("png", "svg")) -> list:
     import matplotlib
 
     from splitter.io.atomic import atomic_path
+    from splitter.io.journal import make_folder
 
     out = []
     for fmt in formats:
         path = Path(f"{path_stem}.{fmt}")
-        path.parent.mkdir(parents=True, exist_ok=True)
+        make_folder(path.parent)
         meta = {"Software": None} if fmt == "png" else {"Date": None, "Creator": None}
         # In the house style again: tick labels are made while drawing, and SVG text and
         # element ids follow the settings at save time (a fixed hash salt makes every

@@ -15,6 +15,7 @@ import numpy as np
 import pandas as pd
 
 from splitter.errors import InputError
+from splitter.io.journal import make_folder
 from splitter.evaluate import (
     ThresholdRule,
     binomial_test,
@@ -497,7 +498,7 @@ def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed
     preds = pd.concat(parts, ignore_index=True)
     if prediction_dir is not None:
         out = Path(prediction_dir)
-        out.mkdir(parents=True, exist_ok=True)
+        make_folder(out)
         with atomic_write(out / "predictions.csv", "w") as f:
             preds.to_csv(f, index=False, lineterminator="\n", float_format="%.10g")
         notes.append(f"model fitted per fold on the covariate columns {', '.join(covariates)}; "
@@ -527,7 +528,7 @@ def _fit_and_predict(assignment, model, env, prediction_dir, seed, names, notes,
         bg_extra, _ = sample_rasters(env, pts)
         notes.append("no background or absences in the fold table: 10,000 background points were sampled over the rasters for the model")
     out_dir = Path(prediction_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
+    make_folder(out_dir)
     used = set()
     for i in assignment.folds:
         cal = assignment.calibration(i)
