@@ -216,6 +216,18 @@ def _zero_one(d):
     _csv(d / "records.csv", [(*r[:3], "1" if r[3] == "presence" else "0", *r[4:]) for r in _rows()])
 
 
+def _survey_status(d, name):
+    # A survey's table as exported elsewhere: the kind in a column of present/absent words
+    # under another name (Darwin Core's occurrenceStatus, or a plain "Status").
+    rows = [(*r[:3], "PRESENT" if r[3] == "presence" else "ABSENT", *r[4:]) for r in _rows()]
+    _csv(d / "records.csv", rows, header=[name if h == "kind" else h for h in HEADER])
+
+
+def _ok_absences_read(d):
+    out = _read_out(d)
+    assert out["kind"].value_counts().to_dict() == {"presence": 120, "absence": 80}  # as written in the input
+
+
 def _good(d):
     _csv(d / "records.csv")
 
@@ -378,6 +390,13 @@ CASES = [
     records_case("unknown-kind-column", _good, ["--kind-column"], "--kind-column", "status"),
     records_case("no-presences", _no_presence, ["presence"]),
     records_case("unknown-kind-values", _unknown_kind, ["maybe"]),
+    # present/absent under another name would otherwise be read as 200 presences
+    records_case("kind-words-in-another-column", lambda d: _survey_status(d, "Status"),
+                 ["records.csv", "'Status'", "--kind-column Status"]),
+    records_case("darwin-core-occurrence-status", lambda d: _survey_status(d, "occurrenceStatus"), [],
+                 ok=_ok_absences_read),
+    records_case("kind-column-given-for-kind-words", lambda d: _survey_status(d, "Status"), [],
+                 "--kind-column", "Status", ok=_ok_absences_read),
     records_case("zero-one-without-zero-means", _zero_one, ["--zero-means"]),
     records_case("zero-means-wrong-value", _zero_one, ["--zero-means"], "--zero-means", "nothing"),
     # --- design options

@@ -22,6 +22,8 @@ from splitter.geo import WGS84, Points, is_planar, parse_crs
 
 X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x")
 Y_NAMES = ("latitude", "lat", "decimallatitude", "y")
+# Our own column, then Darwin Core's term (present / absent), as in GBIF downloads.
+KIND_NAMES = ("kind", "occurrencestatus")
 VECTOR_SUFFIXES = {".gpkg", ".parquet", ".geoparquet", ".shp", ".geojson", ".json", ".fgb"}
 KIND_VALUES = {
     "presence": "presence", "present": "presence",
@@ -223,8 +225,10 @@ def read_records(
         Column holding record ids (default: ``record_id`` if present, else row number).
     kind_column : str, optional
         Column saying presence / absence / background, or 1 / 0 (TRUE / FALSE,
-        yes / no) with ``zero_means``. Default: ``kind`` if present, else every
-        row is ``default_kind``.
+        yes / no) with ``zero_means``. Default: a column named ``kind`` or
+        ``occurrenceStatus`` (Darwin Core; any case), else every row is
+        ``default_kind``; a column of kind words under another name must then
+        be named here (an error says so).
     zero_means : {"absence", "background"}, optional
         What 0 (FALSE, no) means in a 0/1 kind column: a survey's absence
         (surveyed, not found) or background. Required when such values occur;
@@ -298,6 +302,7 @@ def read_records(
         _check_planar(pts, finite, path, x_col, notes)
 
     record_id = _record_ids(table, path, id_column)
+    kind_column = _kind_column(table, path, kind_column, default_kind, (x_col, y_col, id_column))
     kind = _kinds(table, path, kind_column, default_kind, dropped, zero_means)
     return Records(
         table=table, points=pts, record_id=record_id, kind=kind, dropped=dropped,
@@ -475,10 +480,35 @@ def _record_ids(table, path, id_column) -> np.ndarray:
     return ids
 
 
+def _kind_column(table, path, given, default_kind, taken) -> str | None:
+    """The column saying what each record is: the one given, else one of KIND_NAMES
+    (any case). Without one every row is ``default_kind``, so a column of kind words
+    under another name (``status``: present / absent) is never passed over in silence:
+    reading absences as presences would corrupt every test that follows."""
+    if given is not None:
+        return given
+    lower = {str(c).strip().lower(): c for c in table.columns}
+    for name in KIND_NAMES:
+        if name in lower:
+            return lower[name]
+    for c in table.columns:
+        if c in taken or not (table[c].dtype == object or pd.api.types.is_string_dtype(table[c])):
+            continue
+        head = set(table[c].head(1000).astype(str).str.strip().str.lower()) - {""}
+        if not head or not head <= KIND_VALUES.keys():  # cheap look first: most columns fail here
+            continue
+        words = set(table[c].astype(str).str.strip().str.lower()) - {""}
+        other = sorted(w for w in words if w in KIND_VALUES and KIND_VALUES[w] != default_kind)
+        if words <= KIND_VALUES.keys() and other:
+            raise InputError(
+                f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' to read them as "
+                f"kinds (without a kind column every row is a {default_kind}).")
+    return None
+
+
 def _zero_one(table, kind_column) -> bool:
-    col = kind_column if kind_column is not None else ("kind" if "kind" in table.columns else None)
-    return col is not None and col in table.columns and \
-        table[col].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True).isin(ZERO_VALUES).any()
+    return kind_column is not None and kind_column in table.columns and \
+        table[kind_column].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True).isin(ZERO_VALUES).any()
 
 
 def check_zero_means(zero_means) -> str | None:
@@ -491,8 +521,6 @@ def check_zero_means(zero_means) -> str | None:
 def _kinds(table, path, kind_column, default_kind, dropped, zero_means=None) -> np.ndarray:
     zero_means = check_zero_means(zero_means)
     col = kind_column
-    if col is None and "kind" in table.columns:
-        col = "kind"
     n = len(table)
     if col is None:
         return np.full(n, default_kind, dtype=object)

@@ -65,3 +65,31 @@ def test_covariate_numbers_match_pandas_parsing():
     messy = pd.Series([" 12,5", "3", "", "-1e2", "x", "7.25 "]).astype("str")
     cleaned = messy.str.strip().str.replace(",", ".", regex=False)
     np.testing.assert_array_equal(covariate_numbers(messy), pd.to_numeric(cleaned, errors="coerce").to_numpy(float))
+
+
+@pytest.mark.parametrize("name", ["kind", "Kind", "occurrenceStatus", "OCCURRENCESTATUS"])
+def test_the_kind_column_is_found_by_its_usual_names(tmp_path, name):
+    # occurrenceStatus is Darwin Core's term, its values present / absent (Darwin Core: An
+    # Evolving Community-Developed Biodiversity Data Standard, PLoS ONE, 2012; recalled from memory)
+    p = tmp_path / "r.tsv"
+    p.write_text(f"decimalLongitude\tdecimalLatitude\t{name}\n10\t45\tPRESENT\n11\t46\tABSENT\n", encoding="utf-8")
+    assert read_records(p).kind.tolist() == ["presence", "absence"]  # analytic: as written
+
+
+def test_kind_words_under_another_name_are_never_passed_over(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("x,y,status\n10,45,present\n11,46,absent\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"r.csv: column 'status' holds absent, present; give kind_column='status'"):
+        read_records(p)
+    assert read_records(p, kind_column="status").kind.tolist() == ["presence", "absence"]
+
+
+def test_a_column_that_only_repeats_the_default_kind_is_no_kind_column(tmp_path):
+    # A presence-only table with a "present" note, a background file labelled "background":
+    # every row is what it would be anyway, so no column need be named.
+    p = tmp_path / "r.csv"
+    p.write_text("x,y,note\n10,45,present\n11,46,present\n", encoding="utf-8")
+    assert read_records(p).kind.tolist() == ["presence", "presence"]
+    b = tmp_path / "b.csv"
+    b.write_text("x,y,source\n10,45,background\n11,46,\n", encoding="utf-8")
+    assert read_records(b, default_kind="background").kind.tolist() == ["background", "background"]
