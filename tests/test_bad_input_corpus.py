@@ -312,16 +312,28 @@ def eval_case(id, prepare, words, *extra):
     return Case(id, build, tuple(words))
 
 
-def _pred_table(d, ids=None, cols=("record_id", "fold", "prediction")):
+def _pred_table(d, ids=None, cols=("record_id", "fold", "prediction"), alter=None):
     folds = pd.read_csv(d / "folds.csv", dtype=str, keep_default_na=False)
     rng = np.random.default_rng(2)
     rows = []
     for f in ("1", "2", "3"):
         rows.append(pd.DataFrame({"record_id": folds.record_id if ids is None else ids(folds), "fold": f,
                                   "prediction": rng.random(len(folds))}))
-    table = pd.concat(rows)[list(cols)]
+    table = pd.concat(rows, ignore_index=True)[list(cols)]
+    if alter is not None:
+        table = alter(table)
     table.to_csv(d / "preds.csv", index=False)
     return ["--prediction-table", str(d / "preds.csv")]
+
+
+def _text_score(t):
+    t = t.astype({"prediction": object})
+    t.loc[4, "prediction"] = "high"  # file row 6
+    return t
+
+
+def _twice(t):
+    return pd.concat([t, t.iloc[[7]].assign(prediction=0.01)], ignore_index=True)  # file rows 9 and the last
 
 
 def _nodata_rasters(d):
@@ -435,6 +447,11 @@ CASES = [
               ["--prediction-table", "matched 0"]),
     eval_case("prediction-table-missing-column", lambda d: _pred_table(d, cols=("record_id", "fold")), ["prediction"]),
     eval_case("prediction-table-missing-file", lambda d: ["--prediction-table", str(d / "none.csv")], ["none.csv"]),
+    # a score that is not a number, or two for one record and fold, was read as missing / the first one
+    eval_case("prediction-table-text-score", lambda d: _pred_table(d, alter=_text_score),
+              ["preds.csv", "row 6", "'high'", "not a number"]),
+    eval_case("prediction-table-two-scores", lambda d: _pred_table(d, alter=_twice),
+              ["preds.csv", "fold '1'", "rows 9, ", "one per record and fold"]),
     eval_case("all-nodata-prediction-raster", _nodata_rasters, ["pred_1.tif"]),
     eval_case("pattern-without-fold", lambda d: (_rasters(d), ["--predictions", str(d / "pred_1.tif")])[1],
               ["--predictions", "{fold}"]),

@@ -175,7 +175,9 @@ def _find_column(columns, wanted, names, option, path) -> str:
     return None
 
 
-def _read_csv_table(path: Path) -> pd.DataFrame:
+def read_csv_table(path: Path) -> pd.DataFrame:
+    """A delimited text table as strings: comma, semicolon or tab (from the header), a
+    byte-order mark and non-UTF-8 text handled, repeated column names refused."""
     text = _decode_csv(path)
     header = text.split("\n", 1)[0]
     # Comma unless the header plainly uses another delimiter (semicolon CSVs from
@@ -265,7 +267,7 @@ def read_records(
         if path.suffix.lower() in VECTOR_SUFFIXES:
             table, pts, x_col, y_col = _read_vector(path, crs, notes)
         else:
-            table = _read_csv_table(path)
+            table = read_csv_table(path)
             pts, x_col, y_col = _csv_points(table, path, x, y, crs, notes)
 
     n = len(table)

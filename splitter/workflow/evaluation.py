@@ -16,6 +16,7 @@ import pandas as pd
 
 from splitter.errors import InputError
 from splitter.io.journal import make_folder
+from splitter.io.prediction_table import read_prediction_table
 from splitter.evaluate import (
     ThresholdRule,
     binomial_test,
@@ -143,7 +144,7 @@ def evaluate(
     if predictions is not None and "{fold}" not in str(predictions):
         raise InputError(f"predictions={str(predictions)!r}: give a pattern with {{fold}} in it (e.g. "
                          "'preds/fold_{fold}.tif'), so that each fold is tested on its own model's predictions.")
-    table = _read_prediction_table(prediction_table, assignment) if prediction_table is not None else None
+    table = read_prediction_table(prediction_table) if prediction_table is not None else None
     if table is not None:
         known = set(assignment.record_id.astype(str))
         ids = set(table["record_id"])
@@ -190,31 +191,13 @@ def evaluate(
     return EvaluationResult(tuple(folds_out), summary, params, tuple(warnings))
 
 
-def _read_prediction_table(table, assignment) -> pd.DataFrame:
-    if isinstance(table, (str, Path)):
-        path = Path(table)
-        if not path.exists():
-            raise InputError(f"{path}: no such prediction table; check the path.")
-        df = pd.read_csv(path, dtype={"record_id": str, "fold": str})
-        src = str(path)
-    else:
-        df = pd.DataFrame(table).copy()
-        src = "prediction table"
-    missing = {"record_id", "fold", "prediction"} - set(df.columns)
-    if missing:
-        raise InputError(f"{src}: missing column(s) {', '.join(sorted(missing))}; it needs record_id, fold, prediction.")
-    df["record_id"] = df["record_id"].astype(str).str.strip()
-    df["fold"] = df["fold"].astype(str).str.strip()
-    df["prediction"] = pd.to_numeric(df["prediction"], errors="coerce")
-    return df
-
-
 def _scores_from_table(table, label, rows, assignment) -> np.ndarray:
     sub = table[table["fold"] == str(label)]
     if sub.empty:
-        raise InputError(f"the prediction table has no rows for fold {label}; add record_id,fold,prediction rows for it.")
-    s = pd.Series(sub["prediction"].to_numpy(float), index=sub["record_id"].to_numpy(str))
-    s = s[~s.index.duplicated(keep="first")]
+        held = ", ".join(sorted(set(table["fold"]))[:6])
+        raise InputError(f"the prediction table has no rows for fold {label} (its folds: {held}); add "
+                         "record_id,fold,prediction rows for it, the fold named as in the fold table.")
+    s = pd.Series(sub["prediction"].to_numpy(float), index=sub["record_id"].to_numpy(str))  # one per record (read_prediction_table)
     return s.reindex(assignment.record_id[rows].astype(str)).to_numpy(float)
 
 
