@@ -10,6 +10,7 @@ from __future__ import annotations
 import csv as _csv
 import hashlib
 import io as _io
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -20,10 +21,13 @@ import pyproj
 from splitter.errors import InputError
 from splitter.geo import WGS84, Points, is_planar, parse_crs
 
-X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x")
-Y_NAMES = ("latitude", "lat", "decimallatitude", "y")
+X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x", "easting")
+Y_NAMES = ("latitude", "lat", "decimallatitude", "y", "northing")
 # Our own column, then Darwin Core's term (present / absent), as in GBIF downloads.
 KIND_NAMES = ("kind", "occurrencestatus")
+# Names a survey's 0/1 presence column goes by (letters and digits only, lower case).
+PRESENCE_LIKE = frozenset({"present", "presence", "pres", "pa", "presenceabsence", "presabs", "occurrence", "occ",
+                           "status", "detected", "detection", "observed", "found", "response"})
 VECTOR_SUFFIXES = {".gpkg", ".parquet", ".geoparquet", ".shp", ".geojson", ".json", ".fgb"}
 KIND_VALUES = {
     "presence": "presence", "present": "presence",
@@ -319,7 +323,7 @@ def _csv_points(table, path, x, y, crs, notes):
     y_col = _find_column(cols, y, Y_NAMES, "--y", path)
     if x_col is None or y_col is None:
         raise InputError(
-            f"{path}: no coordinate columns found (looked for longitude/lon/x and latitude/lat/y); "
+            f"{path}: no coordinate columns found (looked for longitude/lon/x/easting and latitude/lat/y/northing); "
             f"columns are: {', '.join(cols)}; name them with --x COLUMN --y COLUMN."
         )
     xs = _numbers(table[x_col])
@@ -494,17 +498,22 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
         if name in lower:
             return lower[name]
     for c in table.columns:
-        if c in taken or not (table[c].dtype == object or pd.api.types.is_string_dtype(table[c])):
+        if c in taken:
             continue
-        head = set(table[c].head(1000).astype(str).str.strip().str.lower()) - {""}
-        if not head or not head <= KIND_VALUES.keys():  # cheap look first: most columns fail here
-            continue
-        words = set(table[c].astype(str).str.strip().str.lower()) - {""}
-        other = sorted(w for w in words if w in KIND_VALUES and KIND_VALUES[w] != default_kind)
-        if words <= KIND_VALUES.keys() and other:
+        head = set(table[c].head(1000).astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True)) - {""}
+        zero_one = re.sub(r"[^0-9a-z]", "", str(c).lower()) in PRESENCE_LIKE
+        if not head or not (head <= KIND_VALUES.keys() or zero_one and head <= set(ONE_VALUES + ZERO_VALUES)):
+            continue  # the cheap look first: most columns fail here
+        words = set(table[c].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True)) - {""}
+        if words <= KIND_VALUES.keys() and any(KIND_VALUES[w] != default_kind for w in words):
             raise InputError(
                 f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' to read them as "
                 f"kinds (without a kind column every row is a {default_kind}).")
+        if zero_one and words <= set(ONE_VALUES + ZERO_VALUES) and words & set(ZERO_VALUES):
+            raise InputError(
+                f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' and say what 0 means "
+                f"with zero_means: 'absence' (surveyed, not found) or 'background' (without a kind column every row "
+                f"is a {default_kind}).")
     return None
 
 

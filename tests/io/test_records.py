@@ -1,5 +1,7 @@
 """Reading records: delimiters, decimal commas, kinds, ids."""
 
+import re
+
 import numpy as np
 import pytest
 
@@ -93,3 +95,30 @@ def test_a_column_that_only_repeats_the_default_kind_is_no_kind_column(tmp_path)
     b = tmp_path / "b.csv"
     b.write_text("x,y,source\n10,45,background\n11,46,\n", encoding="utf-8")
     assert read_records(b, default_kind="background").kind.tolist() == ["background", "background"]
+
+
+@pytest.mark.parametrize("name", ["present", "PA", "presence_absence", "Occurrence", "p/a"])
+def test_a_survey_zero_one_column_is_never_passed_over(tmp_path, name):
+    # 0/1 under a presence-like name: without a kind column its zeros would be read as presences
+    p = tmp_path / "r.csv"
+    p.write_text(f'x,y,"{name}"\n10,45,1\n11,46,0\n12,46,1.0\n', encoding="utf-8")
+    with pytest.raises(InputError, match=rf"column '{re.escape(name)}' holds 0, 1; give kind_column='{re.escape(name)}' "
+                                         r"and say what 0 means with zero_means"):
+        read_records(p)
+    assert read_records(p, kind_column=name, zero_means="absence").kind.tolist() == ["presence", "absence", "presence"]
+
+
+def test_zero_one_columns_of_other_names_or_all_ones_are_left_alone(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("x,y,visited,pa\n10,45,1,1\n11,46,0,1\n", encoding="utf-8")
+    assert read_records(p).kind.tolist() == ["presence", "presence"]  # visited: not a kind; pa: presences only
+
+
+def test_easting_and_northing_are_found_and_need_their_crs(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("site,Easting,Northing\na,412000.5,5001000.0\nb,430000.0,5020000.0\n", encoding="utf-8")
+    with pytest.raises(InputError, match="latitudes outside -90..90.*--crs|crs"):
+        read_records(p)  # EPSG:4326 by default: these are not degrees
+    r = read_records(p, crs="EPSG:32632")
+    assert (r.x_column, r.y_column) == ("Easting", "Northing")
+    np.testing.assert_array_equal(r.points.x, [412000.5, 430000.0])  # analytic: the values as written
