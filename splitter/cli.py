@@ -138,7 +138,7 @@ X_OPTION = typer.Option(None, "--x", metavar="COLUMN", help="Longitude / easting
 Y_OPTION = typer.Option(None, "--y", metavar="COLUMN", help="Latitude / northing column.")
 CRS_OPTION = typer.Option(None, "--crs", metavar="CRS", help="CRS of the coordinates (default EPSG:4326 for CSV); planar:km or planar:m for a local grid with no known projection.")
 ID_OPTION = typer.Option(None, "--id-column", metavar="COLUMN", help="Record id column (default: record_id, else row number).")
-KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0 with --zero-means) column (default: kind).")
+KIND_OPTION = typer.Option(None, "--kind-column", metavar="COLUMN", help="presence/absence/background (or 1/0 with --zero-means) column (default: kind or occurrenceStatus; 'none': every row a presence).")
 ZERO_OPTION = typer.Option(None, "--zero-means", metavar="KIND", help="What 0 (FALSE, no) means in a 0/1 kind column: 'absence' (a survey: surveyed, not found) or 'background'.")
 
 

@@ -27,7 +27,7 @@ Y_NAMES = ("latitude", "lat", "decimallatitude", "y", "northing")
 KIND_NAMES = ("kind", "occurrencestatus")
 # Names a survey's 0/1 presence column goes by (letters and digits only, lower case).
 PRESENCE_LIKE = frozenset({"present", "presence", "pres", "pa", "presenceabsence", "presabs", "occurrence", "occ",
-                           "status", "detected", "detection", "observed", "found", "response"})
+                           "detected", "detection", "observed", "found", "response"})
 VECTOR_SUFFIXES = {".gpkg", ".parquet", ".geoparquet", ".shp", ".geojson", ".json", ".fgb"}
 KIND_VALUES = {
     "presence": "presence", "present": "presence",
@@ -234,7 +234,8 @@ def read_records(
         yes / no) with ``zero_means``. Default: a column named ``kind`` or
         ``occurrenceStatus`` (Darwin Core; any case), else every row is
         ``default_kind``; a column of kind words under another name must then
-        be named here (an error says so).
+        be named here (an error says so), or ``"none"`` given to take every row
+        as ``default_kind``.
     zero_means : {"absence", "background"}, optional
         What 0 (FALSE, no) means in a 0/1 kind column: a survey's absence
         (surveyed, not found) or background. Required when such values occur;
@@ -492,7 +493,8 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
     under another name (``status``: present / absent) is never passed over in silence:
     reading absences as presences would corrupt every test that follows."""
     if given is not None:
-        return given
+        # "none" (when no column has that name): no kind column, every row is default_kind
+        return None if given.lower() == "none" and given not in table.columns else given
     lower = {str(c).strip().lower(): c for c in table.columns}
     for name in KIND_NAMES:
         if name in lower:
@@ -508,12 +510,12 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
         if words <= KIND_VALUES.keys() and any(KIND_VALUES[w] != default_kind for w in words):
             raise InputError(
                 f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' to read them as "
-                f"kinds (without a kind column every row is a {default_kind}).")
+                f"kinds, or kind_column='none' to take every row as a {default_kind}.")
         if zero_one and words <= set(ONE_VALUES + ZERO_VALUES) and words & set(ZERO_VALUES):
             raise InputError(
                 f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' and say what 0 means "
-                f"with zero_means: 'absence' (surveyed, not found) or 'background' (without a kind column every row "
-                f"is a {default_kind}).")
+                f"with zero_means: 'absence' (surveyed, not found) or 'background'; or kind_column='none' to take "
+                f"every row as a {default_kind}.")
     return None
 
 

@@ -84,6 +84,7 @@ def test_kind_words_under_another_name_are_never_passed_over(tmp_path):
     with pytest.raises(InputError, match=r"r.csv: column 'status' holds absent, present; give kind_column='status'"):
         read_records(p)
     assert read_records(p, kind_column="status").kind.tolist() == ["presence", "absence"]
+    assert read_records(p, kind_column="none").kind.tolist() == ["presence", "presence"]  # said outright
 
 
 def test_a_column_that_only_repeats_the_default_kind_is_no_kind_column(tmp_path):
@@ -106,12 +107,15 @@ def test_a_survey_zero_one_column_is_never_passed_over(tmp_path, name):
                                          r"and say what 0 means with zero_means"):
         read_records(p)
     assert read_records(p, kind_column=name, zero_means="absence").kind.tolist() == ["presence", "absence", "presence"]
+    with pytest.raises(InputError, match="or kind_column='none' to take every row as a presence"):
+        read_records(p)
+    assert read_records(p, kind_column="none").kind.tolist() == ["presence"] * 3
 
 
 def test_zero_one_columns_of_other_names_or_all_ones_are_left_alone(tmp_path):
     p = tmp_path / "r.csv"
-    p.write_text("x,y,visited,pa\n10,45,1,1\n11,46,0,1\n", encoding="utf-8")
-    assert read_records(p).kind.tolist() == ["presence", "presence"]  # visited: not a kind; pa: presences only
+    p.write_text("x,y,visited,pa,status\n10,45,1,1,1\n11,46,0,1,0\n", encoding="utf-8")
+    assert read_records(p).kind.tolist() == ["presence", "presence"]  # visited, status: not kinds by name; pa: presences only
 
 
 def test_easting_and_northing_are_found_and_need_their_crs(tmp_path):
