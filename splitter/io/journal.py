@@ -112,7 +112,7 @@ def before_put(path: Path) -> None:
         return
     old = journal.replaced[path] = _hidden(path)
     try:
-        os.link(path, old)
+        os.link(path, old, follow_symlinks=False)  # a symlink is kept as itself
     except OSError:  # a file system without hard links
         shutil.copy2(path, old)
 

@@ -96,3 +96,18 @@ def test_without_a_block_writes_and_removals_are_immediate(out):
     remove(out / "stale.csv")
     remove(out / "never-there.csv")
     assert sorted(os.listdir(out)) == ["figures", "grid.shp", "table.csv"]
+
+
+def test_a_replaced_symlink_comes_back_as_a_symlink(tmp_path):
+    target = tmp_path / "elsewhere.csv"
+    target.write_text("theirs")
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "table.csv").symlink_to(target)
+    with pytest.raises(KeyboardInterrupt):
+        with all_or_nothing():
+            with atomic_write(out / "table.csv") as f:
+                f.write("new")
+            raise KeyboardInterrupt
+    assert (out / "table.csv").is_symlink() and os.readlink(out / "table.csv") == str(target)
+    assert target.read_text() == "theirs" and sorted(os.listdir(out)) == ["table.csv"]
