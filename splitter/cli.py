@@ -304,8 +304,7 @@ def design(
         bar.add_task(f"reading records and making {method} folds", total=None)
         assignment, checks, paths = design_step(records, options, out_path,
                                                 command=options.command(DESIGN, records, out_path))
-    _print_warnings(assignment.records)
-    _print_design(assignment, paths, checks)
+    _print_design(assignment, paths, checks)  # the reader's warnings are among the design's notes
     if generalise is not None:
         _out().print(f"coordinates written generalised to {generalise:g} km cells (folds made from the exact ones)")
 

@@ -106,3 +106,18 @@ def test_an_option_given_still_wins_over_the_sidecar(tmp_path):
     # With --x temp (values near 10 m), every record sits on one north-south line: distances shrink.
     b = pd.read_csv(tmp_path / "b" / "audit.csv")
     assert b.nn_median_km[0] < 0.5 * a.nn_median_km[0]
+
+
+def test_a_reader_warning_is_printed_once_and_kept_in_the_sidecar(tmp_path):
+    src = tmp_path / "two.csv"
+    rows = ["record_id,longitude,latitude,kind,species"]
+    rng = np.random.default_rng(4)
+    for i in range(120):
+        rows.append(f"{i + 1},{10 + 3 * rng.random():.4f},{45 + 2 * rng.random():.4f},"
+                    f"{'presence' if i < 60 else 'background'},{'A a' if i % 2 else 'B b'}")
+    src.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    res = CliRunner().invoke(app, ["design", str(src), "--method", "random", "--folds", "3", "--out", str(tmp_path / "f.csv")])
+    assert res.exit_code == 0, res.output
+    assert res.output.count("names 2 species among the presences") == 1
+    notes = json.loads((tmp_path / "f.design.json").read_text())["notes"]
+    assert any("names 2 species" in n for n in notes)

@@ -25,6 +25,8 @@ X_NAMES = ("longitude", "lon", "long", "lng", "decimallongitude", "x", "easting"
 Y_NAMES = ("latitude", "lat", "decimallatitude", "y", "northing")
 # Our own column, then Darwin Core's term (present / absent), as in GBIF downloads.
 KIND_NAMES = ("kind", "occurrencestatus")
+# Columns naming the species (ours, then Darwin Core's terms).
+SPECIES_NAMES = ("species", "scientificname", "taxon", "species_name")
 # Names a survey's 0/1 presence column goes by (letters and digits only, lower case).
 PRESENCE_LIKE = frozenset({"present", "presence", "pres", "pa", "presenceabsence", "presabs", "occurrence", "occ",
                            "detected", "detection", "observed", "found", "response"})
@@ -311,6 +313,7 @@ def read_records(
     record_id = _record_ids(table, path, id_column)
     kind_column = _kind_column(table, path, kind_column, default_kind, (x_col, y_col, id_column))
     kind = _kinds(table, path, kind_column, default_kind, dropped, zero_means)
+    _warn_several_species(table, kind, path, notes)
     return Records(
         table=table, points=pts, record_id=record_id, kind=kind, dropped=dropped,
         x_column=x_col, y_column=y_col, sources=sources, notes=tuple(notes),
@@ -517,6 +520,22 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
                 f"with zero_means: 'absence' (surveyed, not found) or 'background'; or kind_column='none' to take "
                 f"every row as a {default_kind}.")
     return None
+
+
+def _warn_several_species(table, kind, path, notes) -> None:
+    """A table of several species' presences (a GBIF download of a genus, say) is designed and
+    tested as one species; that may be meant, so it is said, not refused."""
+    lower = {str(c).strip().lower(): c for c in table.columns}
+    col = next((lower[n] for n in SPECIES_NAMES if n in lower), None)
+    if col is None:
+        return
+    names = pd.unique(table.loc[kind == "presence", col].astype(str).str.strip())
+    names = sorted(n for n in names if n)
+    if len(names) > 1:
+        shown = ", ".join(names[:3]) + (", ..." if len(names) > 3 else "")
+        notes.append(f"warning: {path}: column '{col}' names {len(names)} species among the presences ({shown}); "
+                     "they are designed and tested as one; give one species' records per run (splitter batch "
+                     "runs many).")
 
 
 def _zero_one(table, kind_column) -> bool:

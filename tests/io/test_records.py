@@ -126,3 +126,14 @@ def test_easting_and_northing_are_found_and_need_their_crs(tmp_path):
     r = read_records(p, crs="EPSG:32632")
     assert (r.x_column, r.y_column) == ("Easting", "Northing")
     np.testing.assert_array_equal(r.points.x, [412000.5, 430000.0])  # analytic: the values as written
+
+
+def test_several_species_among_the_presences_are_said(tmp_path):
+    p = tmp_path / "r.csv"
+    p.write_text("x,y,kind,scientificName\n10,45,presence,A a\n11,46,presence,B b\n12,46,background,C c\n"
+                 "13,46,presence,A a\n", encoding="utf-8")
+    (note,) = [n for n in read_records(p).notes if "species" in n]
+    assert "column 'scientificName' names 2 species among the presences (A a, B b)" in note  # background not counted
+    q = tmp_path / "q.csv"
+    q.write_text("x,y,species\n10,45,A a\n11,46,A a\n", encoding="utf-8")
+    assert not [n for n in read_records(q).notes if "species" in n]
