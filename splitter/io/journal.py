@@ -140,7 +140,7 @@ def remove(path) -> None:
         _unlink(path)
     elif path in journal.replaced:
         _unlink(path)  # its previous content is already kept
-    else:
+    elif os.path.lexists(path):
         old = journal.replaced[path] = _hidden(path)
         os.replace(path, old)
 

@@ -3,6 +3,7 @@
 import os
 
 import pytest
+from hypothesis import HealthCheck, given, settings, strategies as st
 
 from splitter.io.atomic import atomic_path, atomic_write
 from splitter.io.journal import all_or_nothing, make_folder, remove
@@ -111,3 +112,47 @@ def test_a_replaced_symlink_comes_back_as_a_symlink(tmp_path):
             raise KeyboardInterrupt
     assert (out / "table.csv").is_symlink() and os.readlink(out / "table.csv") == str(target)
     assert target.read_text() == "theirs" and sorted(os.listdir(out)) == ["table.csv"]
+
+
+NAMES = ("a.csv", "b.png", "sub/c.csv", "sub/deep/d.csv", "other/e.csv")
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(before=st.sets(st.sampled_from(NAMES)),
+       steps=st.lists(st.tuples(st.sampled_from(["write", "remove"]), st.sampled_from(NAMES), st.integers(0, 3)),
+                      max_size=12),
+       ending=st.sampled_from([None, KeyboardInterrupt, ValueError]))
+def test_any_run_is_undone_whole_or_kept_whole(tmp_path_factory, before, steps, ending):
+    # Any sequence of writes (atomic_write, atomic_path), removals and new folders, over files
+    # that did or did not exist: a failed run leaves the tree exactly as it was; a finished
+    # one leaves what a plain model of the steps says (a dict of name -> bytes), nothing hidden.
+    out = tmp_path_factory.mktemp("run")
+    for name in before:
+        make_folder((out / name).parent)
+        (out / name).write_bytes(f"old {name}".encode())
+    start = _state(out)
+    model = {n: f"old {n}".encode() for n in before}
+    try:
+        with all_or_nothing(keep_on=()):
+            for i, (op, name, how) in enumerate(steps):
+                path = out / name
+                if op == "remove":
+                    remove(path)
+                    model.pop(name, None)
+                    continue
+                make_folder(path.parent)
+                data = f"new {name} {i}".encode()
+                if how % 2:
+                    with atomic_path(path) as tmp:
+                        tmp.write_bytes(data)
+                else:
+                    with atomic_write(path, "wb") as f:
+                        f.write(data)
+                model[name] = data
+            if ending is not None:
+                raise ending()
+    except (KeyboardInterrupt, ValueError):
+        assert _state(out) == start
+        return
+    files = {k: v for k, v in _state(out).items() if v is not None}
+    assert files == model
