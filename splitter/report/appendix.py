@@ -593,6 +593,9 @@ def _build(run: Run, out: Path, generalise_km: float | None) -> tuple[Document, 
         counts = _fold_counts_frame(s)
         src = w.table(counts, f"{tag}_fold_counts")
         blocks.append(Heading(2, f"Split `{s.name}`", f"folds-{tag}"))
+        said = [n[len("warning:"):].strip() for n in s.design.get("notes") or [] if str(n).startswith("warning:")]
+        if said:  # what the reader warned of when the records were read (several species, a suspect grid)
+            blocks.append(Bullets(tuple(f"Warning when the records were read: {n}" for n in said)))
         blocks.append(_display_fold_counts(s, counts, src))
         checks = s.design.get("checks")
         if checks:

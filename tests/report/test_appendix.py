@@ -384,3 +384,22 @@ def test_without_optimism_file_the_section_says_so(run_copy, tmp_path):
     section = md.split("\n## The same model under both splits\n", 1)[1].split("\n## ", 1)[0]
     assert "No `optimism.csv` in the run folder" in section
     assert "tables/optimism.csv" not in {p.relative_to(app.markdown.parent).as_posix() for p in app.tables}
+
+
+def test_what_the_reader_warned_of_is_in_the_appendix(tmp_path):
+    # A table naming two species among its presences: the design's warning reaches the
+    # appendix beside that split's folds (not only the terminal and the sidecar).
+    import splitter
+    from splitter.io.foldtable import write_design
+
+    rng = np.random.default_rng(5)
+    n = 240
+    pd.DataFrame({"record_id": np.arange(1, n + 1), "longitude": (10 + 3 * rng.random(n)).round(4),
+                  "latitude": (45 + 2 * rng.random(n)).round(4),
+                  "kind": np.where(np.arange(n) < 100, "presence", "background"),
+                  "species": np.where(np.arange(n) % 2, "Alpha one", "Alpha two")}).to_csv(tmp_path / "two.csv", index=False)
+    write_design(splitter.design(tmp_path / "two.csv", method="random", folds=3, seed=1), tmp_path / "run" / "folds.csv")
+    build_appendix(tmp_path / "run", tmp_path / "app")
+    md = (tmp_path / "app" / "appendix.md").read_text(encoding="utf-8")
+    assert "Warning when the records were read: two.csv: column 'species' names 2 species among the presences" in md
+    assert md.index("Warning when the records were read") > md.index("## Split `run`")
