@@ -200,3 +200,17 @@ def test_a_figure_saved_first_in_a_process_is_byte_identical(tmp_path):
             save(plot_variogram(est), tmp_path / name)
         outs.append((tmp_path / f"{name}.svg").read_bytes())
     assert outs[0] == outs[1]
+
+
+def test_a_column_named_in_another_case_is_the_same_column(tmp_path):
+    # --group-column METHOD for a 'method' column: found as the design finds it, and the
+    # audit is the one the exact name gives (reference: the run with the exact name).
+    recs = DEMO / "records_with_background.csv"
+    assert run("design", recs, "--method", "groups", "--group-column", "METHOD", "--folds", 2, "--seed", 1,
+               "--out", tmp_path / "f.csv").exit_code == 0
+    for name, out in (("method", "exact"), ("Method", "other")):
+        res = run("audit", tmp_path / "f.csv", "--group-column", name, "--null-splits", 19, "--out", tmp_path / out)
+        assert res.exit_code == 0, res.output
+    exact, other = (pd.read_csv(tmp_path / o / "audit.csv") for o in ("exact", "other"))
+    pd.testing.assert_frame_equal(exact, other)
+    assert json.loads((tmp_path / "other" / "audit.json").read_text())["context"]["group_column"] == "method"

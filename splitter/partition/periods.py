@@ -12,7 +12,23 @@ from __future__ import annotations
 import numpy as np
 
 from splitter.errors import InputError
-from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count, find_column
+
+YEAR = "year"  # the time column when none is named
+# When no "year" column is there: Darwin Core's term for the date, then a plain "date".
+DATE_NAMES = ("eventDate", "date")
+
+
+def time_column_of(table, time_column: str) -> str:
+    """The column holding the times: ``time_column`` in any case; for the default
+    ``year``, else an ``eventDate`` or ``date`` column."""
+    return find_column(table, time_column, "time_column", DATE_NAMES if time_column == YEAR else ())
+
+
+def _times(data: RuleInput, time_column: str) -> tuple[np.ndarray, str]:
+    """Decimal years of the usable rows, and the column they came from."""
+    col = time_column_of(data.table, time_column)
+    return decimal_years(data.table[col].to_numpy(object)[data.rows], f"time_column={col!r}"), col
 
 
 def decimal_years(values, parameter: str = "time_column") -> np.ndarray:
@@ -147,7 +163,7 @@ class Periods(FoldRule):
         return self.periods
 
     def _folds(self, data: RuleInput) -> RuleFolds:
-        t = decimal_years(data.column(self.time_column, "time_column"), f"time_column={self.time_column!r}")
+        t, col = _times(data, self.time_column)
         window, edges = time_windows(t, data.is_presence, self.periods)
         blank = np.flatnonzero(~np.isfinite(t))
         window[blank] = _deal(blank.size, self.periods, self.seed)
@@ -155,7 +171,7 @@ class Periods(FoldRule):
         for q in range(1, self.periods + 1):
             tq = t[(window == q) & np.isfinite(t)]
             spans[str(q)] = [float(tq.min()), float(tq.max())] if tq.size else []
-        return RuleFolds(window, self.periods, measured={"time_column": self.time_column, "fold_periods": spans})
+        return RuleFolds(window, self.periods, measured={"time_column": col, "fold_periods": spans})
 
 
 def _cut(value) -> float:
@@ -195,7 +211,7 @@ class HoldoutPeriod(FoldRule):
         self._common(buffer, seed, env, covariates)
 
     def _folds(self, data: RuleInput) -> RuleFolds:
-        t = decimal_years(data.column(self.time_column, "time_column"), f"time_column={self.time_column!r}")
+        t, col = _times(data, self.time_column)
         fold = np.where(t < self._cut, 0, 1).astype(np.int64)
         blank = np.flatnonzero(~np.isfinite(t))
         fold[blank] = _deal(blank.size, 2, self.seed) - 1
@@ -204,7 +220,7 @@ class HoldoutPeriod(FoldRule):
             if not np.any(pres & (fold == side) & np.isfinite(t)):
                 raise InputError(f"calibrate_before={self.calibrate_before!r}: no presence record dates {name} it; "
                                  "choose a year inside the records' time span.")
-        return RuleFolds(fold, 1, measured={"time_column": self.time_column, "calibrate_before": self._cut})
+        return RuleFolds(fold, 1, measured={"time_column": col, "calibrate_before": self._cut})
 
 
 class LaterPeriod(FoldRule):
@@ -252,7 +268,7 @@ class LaterPeriod(FoldRule):
 
     def _folds(self, data: RuleInput) -> RuleFolds:
         inner = self.rule._folds(data)
-        t = decimal_years(data.column(self.time_column, "time_column"), f"time_column={self.time_column!r}")
+        t, col = _times(data, self.time_column)
         dated = np.isfinite(t)
         later = dated & (t >= self._time._cut)
         earlier = dated & ~later
@@ -269,6 +285,6 @@ class LaterPeriod(FoldRule):
             rows.append(out)
             folds_.append(np.full(out.size, q, np.int64))
         measured = {k: v for k, v in inner.measured.items() if not k.endswith("_imbalance")}  # re-measured on the final folds
-        measured.update(time_column=self.time_column, calibrate_before=self._time._cut)
+        measured.update(time_column=col, calibrate_before=self._time._cut)
         return RuleFolds(fold, inner.n_folds, reason=inner.reason, measured=measured, geometry_crs=inner.geometry_crs,
                          gap_rows=np.concatenate(rows).astype(np.int64), gap_folds=np.concatenate(folds_).astype(np.int64))

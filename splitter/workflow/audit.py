@@ -45,7 +45,7 @@ def audit(
     instead of rasters, standardised on background when there are at least 20
     background records, else on every kept record.
 
-    ``time_column`` (default: the design's time column, else a ``year`` column)
+    ``time_column`` (default: the design's time column, else a ``year``, ``eventDate`` or ``date`` column)
     dates the records: each fold's time gap between evaluation and calibration
     presences is reported in the context (``time_gaps``) and in ``audit.csv``
     (:mod:`splitter.dependence.time_gap`); it is a description, not a rule.
@@ -139,8 +139,9 @@ def audit(
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area inside the region (seed {seed})"
     groups = None
     if group_column:
-        if group_column not in recs.table.columns:
-            raise InputError(f"--group-column {group_column}: no such column; columns are: {', '.join(map(str, recs.table.columns))}.")
+        from splitter.partition.base import find_column
+
+        group_column = find_column(recs.table, group_column, "group_column")  # any case, as the design finds it
         groups = recs.table[group_column].astype(str).str.strip().to_numpy(object)
         context["group_column"] = group_column
     result = audit_split(
@@ -150,18 +151,22 @@ def audit(
         null_splits=null_splits, seed=seed,
     )
     context["null_splits"] = int(null_splits)
-    # Time apart: the column named, else the design's own time column, else a 'year' column.
+    # Time apart: the column named, else the design's own time column, else a year or date column.
     params = assignment.parameters
     designed = (getattr(params, "time_column", None) if not isinstance(params, dict)
                 else ((params.get("design") or {}).get("parameters") or {}).get("time_column"))
-    time_column = time_column or designed or ("year" if "year" in recs.table.columns else None)
+    from splitter.partition.periods import YEAR, decimal_years, time_column_of
+
+    if time_column or designed:
+        time_column = time_column_of(recs.table, time_column or designed)
+    else:  # a year (or date) column when there is one; none is no error here
+        try:
+            time_column = time_column_of(recs.table, YEAR)
+        except InputError:
+            time_column = None
     if time_column is not None:
         from splitter.dependence.time_gap import time_gaps
-        from splitter.partition.periods import decimal_years
 
-        if time_column not in recs.table.columns:
-            raise InputError(f"time_column={time_column!r}: no such column; columns are: "
-                             f"{', '.join(map(str, recs.table.columns))}.")
         gaps = time_gaps(decimal_years(recs.table[time_column].to_numpy(object), f"time_column={time_column!r}"),
                          cal, ev)
         if gaps.n_dated.sum():

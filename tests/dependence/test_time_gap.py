@@ -66,3 +66,25 @@ def test_the_audit_reports_time_apart(tmp_path):
     assert (rand.time_gap_median_years == 0).all() and (rand.time_later_share == 0).all()
     doc = json.loads((tmp_path / "random" / "audit" / "audit.json").read_text())
     assert doc["context"]["time_column"] == "year" and len(doc["context"]["time_gaps"]) == 5
+
+
+def test_the_audit_finds_a_date_column_by_its_usual_names(tmp_path):
+    # No 'year' column: Darwin Core's eventDate dates the records (ISO dates), and a random
+    # design's time gaps are measured from it as from a year column (reference: the same
+    # records with 'year', audited the same way).
+    src = write_records_csv(tmp_path / "records.csv")
+    df = pd.read_csv(src, dtype=str, keep_default_na=False)
+    years = (2006 + np.arange(len(df)) % 15).astype(str)
+    df.assign(year=years).to_csv(tmp_path / "y.csv", index=False)
+    df.assign(eventDate=[f"{y}-01-01" for y in years]).to_csv(tmp_path / "d.csv", index=False)
+    runner = CliRunner()
+    run = lambda *a: runner.invoke(app, [str(x) for x in a])  # noqa: E731
+    docs = {}
+    for name in ("y", "d"):
+        assert run("design", tmp_path / f"{name}.csv", "--method", "random", "--seed", 1,
+                   "--out", tmp_path / name / "folds.csv").exit_code == 0
+        res = run("audit", tmp_path / name / "folds.csv", "--range-km", 20, "--out", tmp_path / name / "audit")
+        assert res.exit_code == 0, res.output
+        docs[name] = json.loads((tmp_path / name / "audit" / "audit.json").read_text())["context"]
+    assert docs["d"]["time_column"] == "eventDate" and docs["y"]["time_column"] == "year"
+    assert docs["d"]["time_gaps"] == docs["y"]["time_gaps"]

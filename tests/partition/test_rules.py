@@ -215,6 +215,21 @@ def test_time_windows_are_contiguous_and_holdout_period_splits_at_the_year(tmp_p
     assert h.n_folds == 1 and h.parameters.calibrate_before == 2018.0
 
 
+@pytest.mark.parametrize("name", ["Year", "eventDate", "date"])
+def test_the_time_column_is_found_as_a_user_names_it(name):
+    # The default 'year' in any case, else Darwin Core's eventDate or a plain date (ISO dates):
+    # the same windows as the 'year' column itself gives (reference: the design on 'year').
+    df = _planar_frame(n=300, seed=5)
+    df["kind"] = np.where(df["label"] == 1, "presence", "background")
+    want = splitter.Periods(time_column="year", periods=3, seed=1).assign(df, crs="EPSG:3035")
+    other = df.drop(columns=["year"]).assign(**{name: df["year"] if name == "Year" else df["year"].astype(str) + "-06-01"})
+    got = splitter.Periods(periods=3, seed=1).assign(other, crs="EPSG:3035")
+    np.testing.assert_array_equal(got.fold, want.fold)
+    assert got.parameters.time_column == name  # the sidecar names the column used
+    with pytest.raises(InputError, match=r"time_column='season': no such column; columns are: .*" + name):
+        splitter.Periods(time_column="season", periods=3).assign(other, crs="EPSG:3035")
+
+
 def test_space_and_time_evaluates_the_later_period_inside_held_out_blocks():
     df = _planar_frame(n=500, seed=4)
     df["kind"] = np.where(df["label"] == 1, "presence", "background")
