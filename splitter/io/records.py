@@ -18,6 +18,7 @@ import numpy as np
 import pandas as pd
 import pyproj
 
+from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.geo import WGS84, Points, is_planar, parse_crs
 
@@ -171,9 +172,10 @@ def _decode_csv(path: Path) -> str:
 
 def _find_column(columns, wanted, names, option, path) -> str:
     if wanted is not None:
-        if wanted not in columns:
+        found = match_column(columns, wanted)
+        if found is None:
             raise InputError(f"{path}: no column named '{wanted}' (given with {option}); columns are: {', '.join(columns)}.")
-        return wanted
+        return found
     lower = {c.lower().strip(): c for c in columns}
     for n in names:
         if n in lower:
@@ -311,7 +313,8 @@ def read_records(
         _check_planar(pts, finite, path, x_col, notes)
 
     record_id = _record_ids(table, path, id_column)
-    kind_column = _kind_column(table, path, kind_column, default_kind, (x_col, y_col, id_column))
+    kind_column = _kind_column(table, path, kind_column, default_kind,
+                               (x_col, y_col, match_column(table.columns, id_column or "record_id")))
     kind = _kinds(table, path, kind_column, default_kind, dropped, zero_means)
     _warn_several_species(table, kind, path, notes)
     return Records(
@@ -468,9 +471,9 @@ def _vector_frame(gdf, path, crs, notes):
 
 
 def _record_ids(table, path, id_column) -> np.ndarray:
-    col = id_column
-    if col is None and "record_id" in table.columns:
-        col = "record_id"
+    col = match_column(table.columns, "record_id" if id_column is None else id_column)
+    if col is None and id_column is not None:
+        col = id_column  # not there: said below
     if col is None:
         return np.array([str(i) for i in range(1, len(table) + 1)], dtype=object)
     if col not in table.columns:
@@ -497,11 +500,10 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
     reading absences as presences would corrupt every test that follows."""
     if given is not None:
         # "none" (when no column has that name): no kind column, every row is default_kind
-        return None if given.lower() == "none" and given not in table.columns else given
-    lower = {str(c).strip().lower(): c for c in table.columns}
+        return None if given.lower() == "none" and given not in table.columns else (match_column(table.columns, given) or given)
     for name in KIND_NAMES:
-        if name in lower:
-            return lower[name]
+        if match_column(table.columns, name) is not None:
+            return match_column(table.columns, name)
     for c in table.columns:
         if c in taken:
             continue

@@ -19,6 +19,7 @@ from dataclasses import dataclass, field, fields, replace
 
 import numpy as np
 
+from splitter.columns import find_column
 from splitter.errors import InputError
 
 
@@ -120,33 +121,6 @@ class RuleInput:
         """Values of a table column (found as :func:`find_column` finds it), or a clear
         error naming ``parameter``."""
         return self.table[find_column(self.table, name, parameter, alternatives)].to_numpy(object)[self.rows]
-
-
-def find_column(table, name: str, parameter: str, alternatives=()) -> str:
-    """The column called ``name``: exactly, else in another case when only one column
-    matches (``Year`` for ``year``), else the first of ``alternatives`` present (the
-    same way); else an InputError naming ``parameter`` and the columns there are.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> find_column(pd.DataFrame(columns=["Year", "Method"]), "year", "time_column")
-    'Year'
-    >>> find_column(pd.DataFrame(columns=["eventDate"]), "year", "time_column", ("eventDate", "date"))
-    'eventDate'
-    """
-    if name in table.columns:
-        return name
-    lower: dict = {}
-    for c in table.columns:
-        lower.setdefault(str(c).strip().lower(), []).append(c)
-    for wanted in (name, *alternatives):
-        hits = lower.get(str(wanted).lower(), [])
-        if len(hits) == 1:
-            return hits[0]
-    cols = ", ".join(map(str, table.columns))
-    tried = f" (nor {', '.join(map(str, alternatives))})" if alternatives else ""
-    raise InputError(f"{parameter}={name!r}: no such column{tried}; columns are: {cols}.")
 
 
 @dataclass(frozen=True)

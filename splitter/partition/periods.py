@@ -12,7 +12,8 @@ from __future__ import annotations
 import numpy as np
 
 from splitter.errors import InputError
-from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count, find_column
+from splitter.columns import find_column
+from splitter.partition.base import FoldRule, RuleFolds, RuleInput, check_fold_count
 
 YEAR = "year"  # the time column when none is named
 # When no "year" column is there: Darwin Core's term for the date, then a plain "date".

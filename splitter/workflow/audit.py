@@ -139,7 +139,7 @@ def audit(
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area inside the region (seed {seed})"
     groups = None
     if group_column:
-        from splitter.partition.base import find_column
+        from splitter.columns import find_column
 
         group_column = find_column(recs.table, group_column, "group_column")  # any case, as the design finds it
         groups = recs.table[group_column].astype(str).str.strip().to_numpy(object)

@@ -137,3 +137,16 @@ def test_several_species_among_the_presences_are_said(tmp_path):
     q = tmp_path / "q.csv"
     q.write_text("x,y,species\n10,45,A a\n11,46,A a\n", encoding="utf-8")
     assert not [n for n in read_records(q).notes if "species" in n]
+
+
+def test_columns_given_in_another_case_are_found(tmp_path):
+    # A spreadsheet's capitalised header: every option names the column as the user thinks of it.
+    p = tmp_path / "r.csv"
+    p.write_text("Record_ID,East,North,Status\na,10,45,present\nb,11,46,absent\n", encoding="utf-8")
+    r = read_records(p, x="east", y="NORTH", kind_column="status")
+    assert (r.x_column, r.y_column) == ("East", "North")
+    assert r.record_id.tolist() == ["a", "b"] and r.kind.tolist() == ["presence", "absence"]  # Record_ID by default
+    q = tmp_path / "q.csv"
+    q.write_text("site,SITE,x,y\na,b,10,45\n", encoding="utf-8")
+    with pytest.raises(InputError, match="no id column 'Site'"):
+        read_records(q, id_column="Site")  # two columns match in another case: none is guessed
