@@ -121,3 +121,22 @@ def test_a_reader_warning_is_printed_once_and_kept_in_the_sidecar(tmp_path):
     assert res.output.count("names 2 species among the presences") == 1
     notes = json.loads((tmp_path / "f.design.json").read_text())["notes"]
     assert any("names 2 species" in n for n in notes)
+
+
+def test_a_users_fold_table_with_a_capitalised_header_needs_no_renaming(tmp_path):
+    # Someone else's split, exported from a spreadsheet: CV_Fold, PA (0/1), Temp. Every option
+    # names the columns in lower case; the audit is the one the exact names give.
+    rng = np.random.default_rng(6)
+    n = 300
+    table = pd.DataFrame({"ID": np.arange(1, n + 1), "Lon": (5 + 4 * rng.random(n)).round(4),
+                          "Lat": (44 + 3 * rng.random(n)).round(4), "PA": (rng.random(n) < 0.4).astype(int),
+                          "CV_Fold": rng.integers(1, 4, n), "Temp": rng.normal(12, 3, n).round(2)})
+    table.to_csv(tmp_path / "theirs.csv", index=False)
+    runner = CliRunner()
+    for names, out in ((("cv_fold", "pa", "id", "temp"), "lower"), (("CV_Fold", "PA", "ID", "Temp"), "exact")):
+        fold, kind, ident, cov = names
+        res = runner.invoke(app, ["audit", str(tmp_path / "theirs.csv"), "--fold-column", fold, "--kind-column", kind,
+                                  "--zero-means", "absence", "--id-column", ident, "--covariate-column", cov,
+                                  "--range-km", "20", "--null-splits", "19", "--out", str(tmp_path / out)])
+        assert res.exit_code == 0, res.output
+    pd.testing.assert_frame_equal(pd.read_csv(tmp_path / "lower" / "audit.csv"), pd.read_csv(tmp_path / "exact" / "audit.csv"))

@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
 from splitter.io.journal import make_folder
@@ -254,6 +255,8 @@ def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str 
     n = len(table)
     fold = np.full(n, -1, np.int64)
     names: dict = {}
+    role_column = role_column and (match_column(table.columns, role_column) or role_column)
+    fold_column = fold_column and (match_column(table.columns, fold_column) or fold_column)
     if role_column:
         if role_column not in table.columns:
             raise InputError(f"{path}: no role column '{role_column}'; columns are: {', '.join(map(str, table.columns))}.")

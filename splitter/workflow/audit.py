@@ -9,6 +9,7 @@ import numpy as np
 
 from splitter.dependence.audit import AuditResult, audit_split
 from splitter.dependence.resplit import NULL_SPLITS, check_null_splits
+from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.partition.assignment import FoldAssignment
 
@@ -197,6 +198,7 @@ def _covariate_columns(table, covariates) -> np.ndarray:
 
     cols = []
     for c in covariates:
+        c = match_column(table.columns, c) or c  # any case, as every column option
         if c not in table.columns:
             raise InputError(f"covariates={c!r}: no such column; columns are: {', '.join(map(str, table.columns))}.")
         vals = covariate_numbers(table[c])

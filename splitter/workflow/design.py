@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from splitter._version import __version__
+from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.geo import Points, crs_text, equal_area_crs
 from splitter.io.records import Records, as_records
@@ -176,6 +177,7 @@ def attach_covariates(records: Records, env=(), covariates=()) -> tuple[Records,
             cols.append(vals[:, j])
             names.append(Path(p).stem)
     for c in covariates:
+        c = match_column(records.table.columns, c) or c  # any case, as every column option
         if c not in records.table.columns:
             raise InputError(f"covariates={c!r}: no such column; columns are: {', '.join(map(str, records.table.columns))}.")
         import pandas as pd

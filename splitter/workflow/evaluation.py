@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.io.journal import make_folder
 from splitter.io.prediction_table import read_prediction_table
@@ -453,6 +454,7 @@ def _fit_and_predict_columns(assignment, model, covariates, prediction_dir, seed
     table = assignment.records.table
     cols = []
     for c in covariates:
+        c = match_column(table.columns, c) or c  # any case, as every column option
         if c not in table.columns:
             raise InputError(f"covariates={c!r}: no such column in the fold table; columns are: "
                              f"{', '.join(map(str, table.columns))}.")

@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 
 from splitter.dependence.variogram import MAX_POINTS, RangeEstimate, fit_ranges
+from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.geo import equal_area_crs, planar_km
 
@@ -119,7 +120,7 @@ def covariate_columns(records, names) -> tuple[dict, list[str]]:
     values, notes = {}, []
     kept = records.kept
     for name in names:
-        name = str(name)
+        name = str(match_column(table.columns, str(name)) or name)  # any case, as every column option
         if name not in table.columns:
             raise InputError(f"covariate column {name!r}: no such column; columns are: {', '.join(map(str, table.columns))}.")
         v = pd.to_numeric(table[name], errors="coerce").to_numpy(float)
