@@ -117,10 +117,10 @@ class RuleInput:
     def is_presence(self) -> np.ndarray:
         return self.kind == "presence"
 
-    def column(self, name: str, parameter: str, alternatives=()) -> np.ndarray:
-        """Values of a table column (found as :func:`find_column` finds it), or a clear
-        error naming ``parameter``."""
-        return self.table[find_column(self.table, name, parameter, alternatives)].to_numpy(object)[self.rows]
+    def column(self, name: str, parameter: str) -> np.ndarray:
+        """Values of a table column (found as :func:`splitter.columns.find_column` finds
+        it), or a clear error naming ``parameter``."""
+        return self.table[find_column(self.table, name, parameter)].to_numpy(object)[self.rows]
 
 
 @dataclass(frozen=True)

@@ -9,7 +9,7 @@ import numpy as np
 
 from splitter.dependence.audit import AuditResult, audit_split
 from splitter.dependence.resplit import NULL_SPLITS, check_null_splits
-from splitter.columns import match_column
+from splitter.columns import find_column, match_column
 from splitter.errors import InputError
 from splitter.partition.assignment import FoldAssignment
 
@@ -140,8 +140,6 @@ def audit(
         context["prediction_locations"] = f"{prediction_sample} locations sampled by area inside the region (seed {seed})"
     groups = None
     if group_column:
-        from splitter.columns import find_column
-
         group_column = find_column(recs.table, group_column, "group_column")  # any case, as the design finds it
         groups = recs.table[group_column].astype(str).str.strip().to_numpy(object)
         context["group_column"] = group_column
