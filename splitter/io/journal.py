@@ -55,7 +55,7 @@ class _Journal:
         for path in self.created:
             _unlink(path)
         for path, old in self.replaced.items():
-            if old.exists():  # else the stop came before the copy, and the file was never touched
+            if os.path.lexists(old):  # else the stop came before the copy, and the file was never touched
                 os.replace(old, path)
         for folder in sorted(self.folders, key=lambda p: len(p.parts), reverse=True):
             try:
