@@ -214,3 +214,17 @@ def test_a_column_named_in_another_case_is_the_same_column(tmp_path):
     exact, other = (pd.read_csv(tmp_path / o / "audit.csv") for o in ("exact", "other"))
     pd.testing.assert_frame_equal(exact, other)
     assert json.loads((tmp_path / "other" / "audit.json").read_text())["context"]["group_column"] == "method"
+
+
+def test_an_audit_without_absences_over_one_with_them_leaves_no_old_absence_table(tmp_path):
+    src = write_records_csv(tmp_path / "r.csv")
+    df = pd.read_csv(src, dtype=str, keep_default_na=False)
+    survey = df.assign(kind=np.where(df.kind == "background", "absence", df.kind))
+    survey.to_csv(tmp_path / "survey.csv", index=False)
+    for name in ("survey", "r"):  # first with absences, then without, into the same folders
+        assert run("design", tmp_path / f"{name}.csv", "--method", "random", "--folds", 3, "--seed", 1,
+                   "--out", tmp_path / "run" / "folds.csv").exit_code == 0
+        assert run("audit", tmp_path / "run" / "folds.csv", "--range-km", 20, "--out", tmp_path / "run" / "audit").exit_code == 0
+        if name == "survey":
+            assert (tmp_path / "run" / "audit" / "audit_absences.csv").exists()
+    assert not (tmp_path / "run" / "audit" / "audit_absences.csv").exists()

@@ -4,6 +4,7 @@ import json
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 import pyproj
 import pytest
 import rasterio
@@ -379,3 +380,36 @@ def test_time_split_options_get_one_line_errors_naming_the_option(tmp_path):
     assert_one_line_error(run("design", src, "--method", "blocks", "--out", out), "--block-size")
     assert_one_line_error(run("design", src, "--block-size", -3, "--out", out), "--block-size -3")
     assert_one_line_error(run("design", src, "--method", "clusters", "--out", out), "--env", "--covariate-column")
+
+
+def test_a_design_without_buffer_over_a_buffered_one_leaves_no_old_gaps(tmp_path):
+    # The earlier design's gaps file would be read back as this one's and shrink every fold's
+    # calibration set. Reference: the same design written into an empty folder.
+    recs = DEMO / "records_with_background.csv"
+    over, fresh = tmp_path / "over" / "f.csv", tmp_path / "fresh" / "f.csv"
+    assert run("design", recs, "--method", "blocks", "--block-size", 100, "--buffer", 100, "--folds", 4,
+               "--seed", 1, "--out", over).exit_code == 0
+    assert over.with_name("f.gaps.csv").exists()
+    for out in (over, fresh):
+        assert run("design", recs, "--method", "random", "--folds", 4, "--seed", 1, "--out", out).exit_code == 0
+    assert sorted(p.name for p in over.parent.iterdir()) == sorted(p.name for p in fresh.parent.iterdir())
+    for out in (over, fresh):
+        assert run("audit", out, "--range-km", 50, "--out", out.parent / "audit").exit_code == 0
+    pd.testing.assert_frame_equal(pd.read_csv(over.parent / "audit" / "audit.csv"),
+                                  pd.read_csv(fresh.parent / "audit" / "audit.csv"))
+
+
+def test_a_gaps_file_the_sidecar_does_not_list_is_not_read(tmp_path):
+    from splitter.io.foldtable import read_fold_table
+
+    out = tmp_path / "f.csv"
+    assert run("design", DEMO / "records_with_background.csv", "--method", "random", "--folds", 4, "--seed", 1,
+               "--out", out).exit_code == 0
+    table = pd.read_csv(out, dtype=str, keep_default_na=False)
+    planted = table.loc[table.fold != "", ["record_id", "fold"]].head(50)  # as an older design might have left
+    planted.to_csv(tmp_path / "f.gaps.csv", index=False)
+    _, assignment, _ = read_fold_table(out)
+    assert assignment.gap_rows.size == 0
+    (tmp_path / "f.design.json").unlink()  # a user's own table with its gaps file: read
+    _, assignment, _ = read_fold_table(out)
+    assert assignment.gap_rows.size == 50

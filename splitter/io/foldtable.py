@@ -12,7 +12,7 @@ import pandas as pd
 from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.io.atomic import atomic_path, atomic_write
-from splitter.io.journal import make_folder
+from splitter.io.journal import make_folder, remove
 from splitter.io.paths import portable
 from splitter.io.records import Records, read_records
 from splitter.partition.assignment import FoldAssignment
@@ -202,6 +202,8 @@ def write_design(assignment: FoldAssignment, out, command: str | None = None, ch
         f = stack.enter_context(atomic_write(side, "w"))
         f.write(to_json(summary, root=out.parent))
         write_table(frame, out, pts)
+    if not with_gaps:
+        remove(gaps_path)  # an earlier design's gaps would be read back as this one's
     paths["design"] = side
     return paths
 
@@ -315,7 +317,9 @@ def read_fold_table(path, *, fold_column: str | None = "fold", role_column: str 
     gap_rows = np.zeros(0, np.int64)
     gap_folds = np.zeros(0, np.int64)
     gpath = companion(path, ".gaps.csv")
-    if gpath.exists():
+    listed = (sidecar or {}).get("outputs")
+    # Our sidecar lists the gaps file it wrote; one it does not list is an earlier design's.
+    if gpath.exists() and (listed is None or "gaps" in listed):
         g = pd.read_csv(gpath, dtype=str, keep_default_na=False)
         pos = pd.Series(np.arange(n), index=recs.record_id.astype(str))
         ok = g["record_id"].isin(pos.index)

@@ -13,7 +13,7 @@ import pandas as pd
 
 from splitter.io.atomic import atomic_write
 from splitter.io.foldtable import to_json
-from splitter.io.journal import make_folder
+from splitter.io.journal import make_folder, remove
 
 
 def write_csv(frame: pd.DataFrame, path) -> Path:
@@ -40,6 +40,8 @@ def write_evaluation_tables(result, out_dir, extra: dict | None = None) -> dict:
     if scores:
         # Per record and fold: the prediction used, or why the record was left out.
         paths["scores"] = write_csv(pd.concat(scores, ignore_index=True), out_dir / "scores.csv")
+    else:
+        remove(out_dir / "scores.csv")  # an earlier run's, which would pass for this one's
     doc = result.to_dict()
     if extra:
         doc.update(extra)
@@ -81,6 +83,8 @@ def write_audit_tables(result, context: dict, out_dir) -> dict:
         # Absences are evaluation data too: the same measures, absences to absences.
         paths["absences"] = write_csv(context["absences"].to_frame(), out_dir / "audit_absences.csv")
         doc["absences"] = context["absences"].to_dict()
+    else:
+        remove(out_dir / "audit_absences.csv")  # an earlier run's, which would pass for this one's
     paths["json"] = write_json(doc, out_dir / "audit.json")
     return paths
 
