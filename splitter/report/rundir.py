@@ -17,6 +17,7 @@ records; it never writes.
 
 from __future__ import annotations
 
+import functools
 import hashlib
 import json
 from dataclasses import dataclass, field
@@ -160,6 +161,17 @@ def _result(path: Path, step: str, read, doc):
                          f"run 'splitter {step}' again to write it.") from None
 
 
+def _check_made_from(path: Path, step: str, context: dict, table_path: Path, digest) -> None:
+    """An audit or evaluation made from another fold table (the folds were designed again
+    after it) must not be reported beside this one. Files written before the digest was
+    recorded are not checked."""
+    made_from = context.get("fold_table_sha256")
+    if made_from and made_from != digest():
+        raise InputError(f"{path}: made from another fold table than {table_path.name} (the folds were designed "
+                         f"again since); run 'splitter {step}' on {table_path.name} again, or remove "
+                         f"{path.parent.name}/.")
+
+
 def _context(doc: dict, result) -> dict:
     """The keys a step wrote beside its result's own."""
     return {k: v for k, v in doc.items() if k not in result.to_dict()}
@@ -238,15 +250,17 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
     folder = sidecar.parent
     files = [table_path, sidecar]
     gaps = table_path.with_name(table_path.stem + ".gaps.csv")
-    if gaps.exists():
+    if gaps.exists() and "gaps" in (design.get("outputs") or {"gaps": None}):  # as the fold-table reader decides
         files.append(gaps)
     records = _read_records(table_path, design)
 
     audit = audit_absences = distance_figure = None
     audit_context: dict = {}
     audit_json = folder / "audit" / "audit.json"
+    digest = functools.cache(lambda: sha256_file(table_path))
     if audit_json.exists():
         audit, audit_absences, audit_context = _result(audit_json, "audit", _read_audit, _load_json(audit_json))
+        _check_made_from(audit_json, "audit", audit_context, table_path, digest)
         # The tables are written from the same results: listed (with their digests), not read.
         files += [p for p in (audit_json, folder / "audit" / "audit.csv", folder / "audit" / "audit_absences.csv")
                   if p.exists()]
@@ -259,6 +273,7 @@ def load_split(sidecar: Path, name: str) -> SplitRun:
     ev_json = folder / "evaluation" / "evaluation.json"
     if ev_json.exists():
         evaluation, evaluation_context = _result(ev_json, "evaluate", _read_evaluation, _load_json(ev_json))
+        _check_made_from(ev_json, "evaluate", evaluation_context, table_path, digest)
         files += [p for p in (ev_json, folder / "evaluation" / "evaluation.csv") if p.exists()]
         stem = folder / "evaluation" / "roc_curves"
         if stem.with_suffix(".png").exists():

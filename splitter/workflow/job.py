@@ -297,6 +297,9 @@ def audit_step(assignment, fold_names, options: JobOptions, out_dir, *, command:
                             group_column=o.group_column, region=o.region, seed=o.seed, fold_names=fold_names,
                             null_splits=o.null_splits, time_column=o.time_column)
     context["command"] = command
+    digest = fold_table_digest(assignment)
+    if digest:
+        context["fold_table_sha256"] = digest  # the appendix checks it against the fold table beside it
     paths = write_audit(result, context, out_dir)
     return result, context, paths
 
@@ -317,7 +320,19 @@ def evaluate_step(assignment, fold_names, options: JobOptions, out_dir, *, comma
     extra = {"command": command}
     if fold_table is not None:
         extra["fold_table"] = str(fold_table)
+    digest = fold_table_digest(assignment)
+    if digest:
+        extra["fold_table_sha256"] = digest  # the appendix checks it against the fold table beside it
     return result, write_evaluation(result, out_dir, extra=extra)
+
+
+def fold_table_digest(assignment) -> str | None:
+    """SHA-256 of the fold table file the folds were read from (taken when it was read),
+    or None for folds that came from no file."""
+    params = assignment.parameters if isinstance(assignment.parameters, dict) else {}
+    source = params.get("source_table")
+    recs = assignment.records
+    return (recs.sources or {}).get(source) if recs is not None and source else None
 
 
 def run_job(records, options: JobOptions, out_dir, *, final_dir=None, root=None, check=None) -> JobResult:

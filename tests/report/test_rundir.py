@@ -344,3 +344,39 @@ def test_a_garbled_result_file_is_one_line_naming_it(run, tmp_path, file, edit, 
     lines = [line for line in res.output.splitlines() if line.strip()]
     assert len(lines) == 1 and Path(file).name in lines[0] and says in re.sub(r"\s+", " ", lines[0])
     assert not (tmp_path / "appendix" / "appendix.md").exists()
+
+
+def test_an_audit_or_evaluation_of_earlier_folds_is_not_reported_beside_new_ones(tmp_path):
+    # design -> audit -> evaluate, then the folds designed again (another seed) into the same
+    # folder: the appendix refuses to put the old audit and evaluation beside the new folds,
+    # naming the step to run again; once both are run again it builds.
+    from splitter.cli import app
+
+    run = lambda *a: CliRunner().invoke(app, [str(x) for x in a])  # noqa: E731
+    recs, folder = DEMO / "records_with_background.csv", tmp_path / "run"
+
+    def evaluate_it():
+        table = pd.read_csv(folder / "folds.csv", dtype=str, keep_default_na=False)
+        rng = np.random.default_rng(3)
+        preds = pd.concat([pd.DataFrame({"record_id": table.record_id, "fold": f,
+                                         "prediction": rng.random(len(table))}) for f in ("1", "2", "3")])
+        preds.to_csv(tmp_path / "preds.csv", index=False)
+        res = run("evaluate", folder / "folds.csv", "--prediction-table", tmp_path / "preds.csv", "--replicates", 20,
+                  "--out", folder / "evaluation")
+        assert res.exit_code == 0, res.output
+
+    for seed in (1, 2):
+        assert run("design", recs, "--method", "random", "--folds", 3, "--seed", seed, "--out", folder / "folds.csv").exit_code == 0
+        if seed == 1:
+            assert run("audit", folder / "folds.csv", "--range-km", 50, "--out", folder / "audit").exit_code == 0
+            evaluate_it()
+            assert run("appendix", folder, "--out", tmp_path / "app1").exit_code == 0
+    res = run("appendix", folder, "--out", tmp_path / "app2")
+    assert res.exit_code == 2 and "audit.json: made from another fold table than folds.csv" in res.output
+    assert "run 'splitter audit' on folds.csv again" in res.output
+    assert run("audit", folder / "folds.csv", "--range-km", 50, "--out", folder / "audit").exit_code == 0
+    res = run("appendix", folder, "--out", tmp_path / "app2")
+    assert res.exit_code == 2 and "evaluation.json: made from another fold table" in res.output
+    evaluate_it()
+    assert run("appendix", folder, "--out", tmp_path / "app2").exit_code == 0
+    assert (tmp_path / "app2" / "appendix.md").is_file()
