@@ -512,15 +512,25 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
         if not head or not (head <= KIND_VALUES.keys() or zero_one and head <= set(ONE_VALUES + ZERO_VALUES)):
             continue  # the cheap look first: most columns fail here
         words = set(table[c].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True)) - {""}
-        if words <= KIND_VALUES.keys() and any(KIND_VALUES[w] != default_kind for w in words):
-            raise InputError(
-                f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' to read them as "
-                f"kinds, or kind_column='none' to take every row as a {default_kind}.")
-        if zero_one and words <= set(ONE_VALUES + ZERO_VALUES) and words & set(ZERO_VALUES):
-            raise InputError(
-                f"{path}: column '{c}' holds {', '.join(sorted(words))}; give kind_column='{c}' and say what 0 means "
-                f"with zero_means: 'absence' (surveyed, not found) or 'background'; or kind_column='none' to take "
-                f"every row as a {default_kind}.")
+        named = words <= KIND_VALUES.keys()
+        # Only values that say something else than default_kind matter: 0 in a records
+        # file (read as presences), 1 in a background file (read as background).
+        contrary = (any(KIND_VALUES[w] != default_kind for w in words) if named else
+                    zero_one and words <= set(ONE_VALUES + ZERO_VALUES)
+                    and bool(words & set(ZERO_VALUES if default_kind == "presence" else ONE_VALUES)))
+        if not contrary:
+            continue
+        held = ", ".join(sorted(words))
+        if default_kind != "presence":  # a background file: no kind option reaches it
+            raise InputError(f"{path}: column '{c}' holds {held}, but every row of a {default_kind} file is read "
+                             f"as {default_kind}; give presences and absences in the records file.")
+        if named:
+            raise InputError(f"{path}: column '{c}' holds {held}; give kind_column='{c}' to read them as kinds, or "
+                             f"kind_column='none' to take every row as a {default_kind}.")
+        raise InputError(
+            f"{path}: column '{c}' holds {held}; give kind_column='{c}' and say what 0 means with zero_means: "
+            f"'absence' (surveyed, not found) or 'background'; or kind_column='none' to take every row as a "
+            f"{default_kind}.")
     return None
 
 

@@ -150,3 +150,17 @@ def test_columns_given_in_another_case_are_found(tmp_path):
     q.write_text("site,SITE,x,y\na,b,10,45\n", encoding="utf-8")
     with pytest.raises(InputError, match="no id column 'Site'"):
         read_records(q, id_column="Site")  # two columns match in another case: none is guessed
+
+
+def test_a_background_file_is_refused_only_for_values_that_are_not_background(tmp_path):
+    # A background file's 0 column agrees with it (and no kind option reaches that file); a 1
+    # or the word "presence" in it would be read as background, so it is refused.
+    b = tmp_path / "b.csv"
+    b.write_text("x,y,pa\n10,45,0\n11,46,0\n", encoding="utf-8")
+    assert read_records(b, default_kind="background").kind.tolist() == ["background", "background"]
+    b.write_text("x,y,pa\n10,45,0\n11,46,1\n", encoding="utf-8")
+    with pytest.raises(InputError, match=r"b.csv: column 'pa' holds 0, 1, but every row of a background file is read"):
+        read_records(b, default_kind="background")
+    b.write_text("x,y,status\n10,45,background\n11,46,presence\n", encoding="utf-8")
+    with pytest.raises(InputError, match="give presences and absences in the records file"):
+        read_records(b, default_kind="background")
