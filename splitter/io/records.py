@@ -501,9 +501,8 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
     if given is not None:
         # "none" (when no column has that name): no kind column, every row is default_kind
         return None if given.lower() == "none" and given not in table.columns else (match_column(table.columns, given) or given)
-    for name in KIND_NAMES:
-        if match_column(table.columns, name) is not None:
-            return match_column(table.columns, name)
+    if kind_column_in(table.columns) is not None:
+        return kind_column_in(table.columns)
     for c in table.columns:
         if c in taken:
             continue
@@ -532,6 +531,11 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
             f"'absence' (surveyed, not found) or 'background'; or kind_column='none' to take every row as a "
             f"{default_kind}.")
     return None
+
+
+def kind_column_in(columns):
+    """The column of ``columns`` read as the kind when none is named (KIND_NAMES, any case), or None."""
+    return next((match_column(columns, n) for n in KIND_NAMES if match_column(columns, n) is not None), None)
 
 
 def _warn_several_species(table, kind, path, notes) -> None:

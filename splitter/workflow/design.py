@@ -11,7 +11,7 @@ from splitter._version import __version__
 from splitter.columns import match_column
 from splitter.errors import InputError
 from splitter.geo import Points, crs_text, equal_area_crs
-from splitter.io.records import Records, as_records
+from splitter.io.records import Records, as_records, kind_column_in
 from splitter import partition as core
 from splitter.geo import planar_km
 from splitter.partition import FoldAssignment, FoldRule, buffer_gaps
@@ -68,7 +68,9 @@ class ReadsRecords:
         if not (hasattr(X, "columns") or hasattr(X, "points")):
             raise InputError(f"X: got {type(X).__name__}; give a GeoDataFrame or a DataFrame with coordinate columns "
                              "(one row per record), so the rule can see where each record is.")
-        return assign_records(self, X, labels=y, groups=groups)
+        # y gives the kinds when X has no kind column; a 0/1 column of X is then a covariate.
+        no_kind = y is not None and hasattr(X, "columns") and kind_column_in(X.columns) is None
+        return assign_records(self, X, labels=y, groups=groups, kind_column="none" if no_kind else None)
 
 
 # The public classes: each core rule (same name, settings, docs and repr) that also reads records.
@@ -411,7 +413,7 @@ def thin_records(recs: Records, thin, env, seed: int):
 
 def _kinds_from_labels(recs: Records, labels, kind_column) -> Records:
     """Kinds from scikit-learn's ``y`` when the table has no kind column."""
-    if kind_column is not None or "kind" in recs.table.columns:
+    if kind_column not in (None, "none") or kind_column_in(recs.table.columns) is not None:
         return recs
     y = np.asarray(labels)
     if y.shape[0] != len(recs):

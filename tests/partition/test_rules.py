@@ -67,6 +67,19 @@ def test_a_rule_object_is_the_cv_argument_of_cross_val_score_on_a_geodataframe_a
                        cross_val_score(model, lonlat, y, cv=rule, scoring="roc_auc"))
 
 
+def test_y_gives_the_kinds_even_beside_a_presence_like_column_of_x():
+    # X with a 0/1 'found' column (a covariate here) and y: the kinds come from y, as without
+    # that column (reference: the same split of X without it); no refusal asks for a kind column.
+    import geopandas as gpd
+
+    df = _planar_frame(n=300, seed=7)
+    y = df["label"].to_numpy()
+    X = gpd.GeoDataFrame(df[["temp"]], geometry=gpd.points_from_xy(df.x, df.y), crs="EPSG:3035")
+    rule = splitter.SpatialBlocks(folds=3, block_size=100, seed=3, random_offset=False)
+    plain = [(tr.tolist(), te.tolist()) for tr, te in rule.split(X, y)]
+    assert [(tr.tolist(), te.tolist()) for tr, te in rule.split(X.assign(found=1 - y), y)] == plain
+
+
 def test_split_on_lon_lat_columns_uses_y_as_the_kind_and_groups_for_group_rules():
     src = write_records_csv_frame()
     y = (src["kind"] == "presence").astype(int).to_numpy()
