@@ -86,6 +86,32 @@ def test_audit_of_a_generalised_table_says_so(tmp_path):
     assert "generalised to 10 km cells" in res.stdout
 
 
+def test_an_evaluation_of_a_generalised_table_on_rasters_says_so(tmp_path):
+    # Rasters are read at the written points: with a generalised table those are cell centres,
+    # and the evaluation says so (a prediction table, matched by record_id, needs no such note).
+    from rasterio.transform import from_origin
+
+    from splitter.io.rasters import write_geotiff
+
+    _lonlat(tmp_path / "r.csv")
+    assert run("design", tmp_path / "r.csv", "--method", "random", "--folds", 3, "--generalise", 10,
+               "--out", tmp_path / "g.csv").exit_code == 0
+    rng = np.random.default_rng(2)
+    for f in (1, 2, 3):
+        write_geotiff(tmp_path / f"p_{f}.tif", rng.random((60, 80)).astype("float32"), from_origin(19.5, 52.5, 0.05, 0.05),
+                      "EPSG:4326")
+    res = run("evaluate", tmp_path / "g.csv", "--predictions", tmp_path / "p_{fold}.tif", "--replicates", 20,
+              "--out", tmp_path / "e")
+    assert res.exit_code == 0, res.output
+    assert "generalised to 10 km cells: the rasters were read at cell centres" in res.stdout
+    table = pd.read_csv(tmp_path / "g.csv", dtype=str, keep_default_na=False)
+    pd.concat([pd.DataFrame({"record_id": table.record_id, "fold": f, "prediction": rng.random(len(table))})
+               for f in ("1", "2", "3")]).to_csv(tmp_path / "preds.csv", index=False)
+    res = run("evaluate", tmp_path / "g.csv", "--prediction-table", tmp_path / "preds.csv", "--replicates", 20,
+              "--out", tmp_path / "e2")
+    assert res.exit_code == 0 and "cell centres" not in res.stdout
+
+
 def test_generalise_must_be_positive(tmp_path):
     _lonlat(tmp_path / "r.csv")
     res = run("design", tmp_path / "r.csv", "--block-size", 40, "--generalise", -2, "--out", tmp_path / "g.csv")

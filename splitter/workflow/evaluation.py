@@ -142,6 +142,13 @@ def evaluate(
     else:
         model_label = "user predictions"
 
+    design = assignment.parameters.get("design") if isinstance(assignment.parameters, dict) else None
+    if isinstance(design, dict) and design.get("generalised_km") and (predictions is not None or model is not None
+                                                                      and not covariates):
+        g = float(design["generalised_km"])
+        notes.append(f"the fold table's coordinates are generalised to {g:g} km cells: the rasters were read at cell "
+                     f"centres (each off by up to {g * 0.5 ** 0.5:.3g} km), not at the records' places; evaluate the "
+                     "exact fold table for scores at the records themselves")
     if predictions is not None and "{fold}" not in str(predictions):
         raise InputError(f"predictions={str(predictions)!r}: give a pattern with {{fold}} in it (e.g. "
                          "'preds/fold_{fold}.tif'), so that each fold is tested on its own model's predictions.")
