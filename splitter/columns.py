@@ -6,7 +6,7 @@ from __future__ import annotations
 
 from splitter.errors import InputError
 
-__all__ = ["match_column", "find_column"]
+__all__ = ["match_column", "first_column", "find_column"]
 
 
 def match_column(columns, name) -> object | None:
@@ -25,6 +25,19 @@ def match_column(columns, name) -> object | None:
     return hits[0] if len(hits) == 1 else None
 
 
+def first_column(columns, names) -> object | None:
+    """The column :func:`match_column` finds for the first of ``names`` that has one, or None
+    (the usual spellings of a column, tried in order).
+
+    Examples
+    --------
+    >>> first_column(["ID", "Lat", "Lon"], ("longitude", "lon", "x"))
+    'Lon'
+    """
+    columns = list(columns)
+    return next((c for c in (match_column(columns, n) for n in names) if c is not None), None)
+
+
 def find_column(table, name: str, parameter: str, alternatives=()) -> str:
     """The column :func:`match_column` finds for ``name``, else for the first of
     ``alternatives`` that matches; else an InputError naming ``parameter`` and the
@@ -38,10 +51,9 @@ def find_column(table, name: str, parameter: str, alternatives=()) -> str:
     >>> find_column(pd.DataFrame(columns=["eventDate"]), "year", "time_column", ("eventDate", "date"))
     'eventDate'
     """
-    for wanted in (name, *alternatives):
-        found = match_column(table.columns, wanted)
-        if found is not None:
-            return found
+    found = first_column(table.columns, (name, *alternatives))
+    if found is not None:
+        return found
     cols = ", ".join(map(str, table.columns))
     tried = f" (nor {', '.join(map(str, alternatives))})" if alternatives else ""
     raise InputError(f"{parameter}={name!r}: no such column{tried}; columns are: {cols}.")

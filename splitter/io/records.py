@@ -18,7 +18,7 @@ import numpy as np
 import pandas as pd
 import pyproj
 
-from splitter.columns import match_column
+from splitter.columns import first_column, match_column
 from splitter.errors import InputError
 from splitter.geo import WGS84, Points, is_planar, parse_crs
 
@@ -176,11 +176,7 @@ def _find_column(columns, wanted, names, option, path) -> str:
         if found is None:
             raise InputError(f"{path}: no column named '{wanted}' (given with {option}); columns are: {', '.join(columns)}.")
         return found
-    lower = {c.lower().strip(): c for c in columns}
-    for n in names:
-        if n in lower:
-            return lower[n]
-    return None
+    return first_column(columns, names)
 
 
 def read_csv_table(path: Path) -> pd.DataFrame:
@@ -501,16 +497,17 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
     if given is not None:
         # "none" (when no column has that name): no kind column, every row is default_kind
         return None if given.lower() == "none" and given not in table.columns else (match_column(table.columns, given) or given)
-    if kind_column_in(table.columns) is not None:
-        return kind_column_in(table.columns)
+    found = kind_column_in(table.columns)
+    if found is not None:
+        return found
     for c in table.columns:
         if c in taken:
             continue
-        head = set(table[c].head(1000).astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True)) - {""}
+        head = set(_kind_text(table[c].head(1000))) - {""}
         zero_one = re.sub(r"[^0-9a-z]", "", str(c).lower()) in PRESENCE_LIKE
         if not head or not (head <= KIND_VALUES.keys() or zero_one and head <= set(ONE_VALUES + ZERO_VALUES)):
             continue  # the cheap look first: most columns fail here
-        words = set(table[c].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True)) - {""}
+        words = set(_kind_text(table[c])) - {""}
         named = words <= KIND_VALUES.keys()
         # Only values that say something else than default_kind matter: 0 in a records
         # file (read as presences), 1 in a background file (read as background).
@@ -535,14 +532,13 @@ def _kind_column(table, path, given, default_kind, taken) -> str | None:
 
 def kind_column_in(columns):
     """The column of ``columns`` read as the kind when none is named (KIND_NAMES, any case), or None."""
-    return next((match_column(columns, n) for n in KIND_NAMES if match_column(columns, n) is not None), None)
+    return first_column(columns, KIND_NAMES)
 
 
 def _warn_several_species(table, kind, path, notes) -> None:
     """A table of several species' presences (a GBIF download of a genus, say) is designed and
     tested as one species; that may be meant, so it is said, not refused."""
-    lower = {str(c).strip().lower(): c for c in table.columns}
-    col = next((lower[n] for n in SPECIES_NAMES if n in lower), None)
+    col = first_column(table.columns, SPECIES_NAMES)
     if col is None:
         return
     names = pd.unique(table.loc[kind == "presence", col].astype(str).str.strip())
@@ -554,9 +550,14 @@ def _warn_several_species(table, kind, path, notes) -> None:
                      "runs many).")
 
 
+def _kind_text(column: pd.Series) -> pd.Series:
+    """Kind values as compared: trimmed, lower case, ``1.0`` as ``1`` (a 0/1 column saved as floats)."""
+    return column.astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True)
+
+
 def _zero_one(table, kind_column) -> bool:
     return kind_column is not None and kind_column in table.columns and \
-        table[kind_column].astype(str).str.strip().str.lower().str.replace(r"\.0$", "", regex=True).isin(ZERO_VALUES).any()
+        _kind_text(table[kind_column]).isin(ZERO_VALUES).any()
 
 
 def check_zero_means(zero_means) -> str | None:
@@ -574,8 +575,7 @@ def _kinds(table, path, kind_column, default_kind, dropped, zero_means=None) -> 
         return np.full(n, default_kind, dtype=object)
     if col not in table.columns:
         raise InputError(f"{path}: no kind column '{col}' (given with --kind-column); columns are: {', '.join(map(str, table.columns))}.")
-    raw = table[col].astype(str).str.strip().str.lower()
-    raw = raw.str.replace(r"\.0$", "", regex=True)
+    raw = _kind_text(table[col])
     zero = raw.isin(ZERO_VALUES).to_numpy()
     if zero.any() and zero_means is None:
         row = int(np.flatnonzero(zero)[0]) + 2

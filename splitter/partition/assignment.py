@@ -171,6 +171,14 @@ class FoldAssignment:
         code[code < 0] = len(KINDS)
         return code
 
+    @property
+    def generalised_km(self) -> float | None:
+        """The cell size (km) the fold table's coordinates were generalised to, as its
+        sidecar says (``design --generalise``); None for exact coordinates."""
+        design = self.parameters.get("design") if isinstance(self.parameters, dict) else None
+        g = design.get("generalised_km") if isinstance(design, dict) else None
+        return float(g) if g else None
+
     def counts(self) -> pd.DataFrame:
         """Records per fold: evaluation and calibration counts by kind, and gaps."""
         kinds = KINDS

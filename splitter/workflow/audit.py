@@ -88,9 +88,8 @@ def audit(
         context["range_estimate"] = est
     context["range_km"] = range_km
 
-    design = assignment.parameters.get("design") if isinstance(assignment.parameters, dict) else None
-    if isinstance(design, dict) and design.get("generalised_km"):
-        g = float(design["generalised_km"])
+    g = assignment.generalised_km
+    if g:
         notes.append(f"the fold table's coordinates are generalised to {g:g} km cells: distances here are between "
                      f"cell centres (each off by up to {g * 0.5 ** 0.5:.3g} km); audit the exact fold table for exact ones")
     kind = assignment.kind

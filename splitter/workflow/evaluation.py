@@ -142,10 +142,8 @@ def evaluate(
     else:
         model_label = "user predictions"
 
-    design = assignment.parameters.get("design") if isinstance(assignment.parameters, dict) else None
-    if isinstance(design, dict) and design.get("generalised_km") and (predictions is not None or model is not None
-                                                                      and not covariates):
-        g = float(design["generalised_km"])
+    g = assignment.generalised_km
+    if g and (predictions is not None or model is not None and not covariates):  # rasters read at the points
         notes.append(f"the fold table's coordinates are generalised to {g:g} km cells: the rasters were read at cell "
                      f"centres (each off by up to {g * 0.5 ** 0.5:.3g} km), not at the records' places; evaluate the "
                      "exact fold table for scores at the records themselves")
